@@ -1,0 +1,44 @@
+// Turning a span of a context source into a Citation that points into the document.
+
+import type { Citation } from '../types.js';
+import type { ContextSource, SourcePart } from './types.js';
+
+/**
+ * A citation for source.text.slice(localStart, localEnd). Offsets become document offsets,
+ * and page/section come from the merged chunk the quote starts in, so a quote from the second
+ * of two merged chunks is placed on that chunk's page.
+ */
+export function citationFor(source: ContextSource, localStart: number, localEnd: number, n: number): Citation {
+  const start = source.start + localStart;
+  const end = source.start + localEnd;
+  const part = partAt(source, start);
+  return {
+    n,
+    documentId: source.documentId,
+    source: source.source,
+    title: source.title,
+    page: part?.page ?? source.page,
+    section: part?.section || source.section,
+    quote: source.text.slice(localStart, localEnd),
+    start,
+    end,
+    effectiveDate: source.effectiveDate,
+  };
+}
+
+function partAt(source: ContextSource, docOffset: number): SourcePart | undefined {
+  return source.parts.find((p) => docOffset >= p.start && docOffset < p.end);
+}
+
+/** True when every character of the document span [start, end) lies inside one of the merged chunks. */
+export function coveredByParts(source: ContextSource, start: number, end: number): boolean {
+  if (source.parts.length === 0) return true;
+  let pos = start;
+  const parts = [...source.parts].sort((a, b) => a.start - b.start);
+  for (const p of parts) {
+    if (p.start > pos) break;
+    if (p.end > pos) pos = p.end;
+    if (pos >= end) return true;
+  }
+  return pos >= end;
+}

@@ -1,0 +1,140 @@
+// Checks a generated answer against its sources: citation markers must point at a source,
+// and each sentence's content words should be found in the sources it cites.
+
+import { splitSentences } from './sentences.js';
+import type { ContextSource } from './types.js';
+import { contentStems } from './words.js';
+
+export interface GroundingOptions {
+  /** A claim is supported when at least this share of its content words is in its cited sources (default 0.5). */
+  minSupport?: number;
+}
+
+export interface GroundedClaim {
+  /** The sentence without its citation markers. */
+  text: string;
+  sources: number[];
+  supported: boolean;
+  support: number;
+}
+
+export interface GroundingResult {
+  /** The answer with markers that point at no source removed. */
+  answer: string;
+  /** Valid source numbers in order of first use. */
+  cited: number[];
+  /** Marker numbers that pointed at no source. */
+  removed: number[];
+  claims: GroundedClaim[];
+}
+
+// "[1]", "[1, 2]", "[1;2]"; consecutive markers "[1][2]" are matched one at a time.
+const MARKER = /\[\s*(\d+(?:\s*[,;]\s*\d+)*)\s*\]/g;
+const LEADING_MARKERS = /^(?:\[\s*\d+(?:\s*[,;]\s*\d+)*\s*\]\s*)+/;
+
+export function checkGrounding(answer: string, sources: ContextSource[], opts: GroundingOptions = {}): GroundingResult {
+  const minSupport = opts.minSupport ?? 0.5;
+  const byN = new Map(sources.map((s) => [s.n, s]));
+  const cited: number[] = [];
+  const removed: number[] = [];
+
+  const cleaned = answer
+    .replace(/[^\S\n]*\[\s*(\d+(?:\s*[,;]\s*\d+)*)\s*\]/g, (whole: string, list: string) => {
+      const nums = parseList(list);
+      const valid = nums.filter((n) => byN.has(n));
+      for (const n of nums) {
+        if (byN.has(n)) {
+          if (!cited.includes(n)) cited.push(n);
+        } else if (!removed.includes(n)) {
+          removed.push(n);
+        }
+      }
+      if (valid.length === nums.length) return whole;
+      if (valid.length === 0) return '';
+      const lead = whole.slice(0, whole.length - whole.trimStart().length);
+      return `${lead}${valid.map((n) => `[${n}]`).join('')}`;
+    })
+    .replace(/[^\S\n]+([.,;:!?])/g, '$1')
+    .trim();
+
+  const sourceStems = new Map<number, Set<string>>();
+  const stemsOf = (n: number): Set<string> => {
+    let s = sourceStems.get(n);
+    if (!s) {
+      s = contentStems(byN.get(n)?.text ?? '');
+      sourceStems.set(n, s);
+    }
+    return s;
+  };
+
+  const claims: GroundedClaim[] = [];
+  for (const { text, markers } of claimSpans(cleaned)) {
+    const words = contentStems(text);
+    if (words.size === 0) continue;
+    const refs = [...new Set(markers)].filter((n) => byN.has(n));
+    let support = 0;
+    if (refs.length > 0) {
+      const pool = new Set<string>();
+      for (const n of refs) for (const w of stemsOf(n)) pool.add(w);
+      let found = 0;
+      for (const w of words) if (pool.has(w)) found++;
+      support = found / words.size;
+    }
+    claims.push({ text, sources: refs, supported: support >= minSupport, support: round3(support) });
+  }
+  return { answer: cleaned, cited, removed, claims };
+}
+
+/** Rewrites every marker number through `mapping` (old → new); numbers not in it are dropped. */
+export function renumberMarkers(answer: string, mapping: ReadonlyMap<number, number>): string {
+  return answer
+    .replace(/[^\S\n]*\[\s*(\d+(?:\s*[,;]\s*\d+)*)\s*\]/g, (whole: string, list: string) => {
+      const mapped = parseList(list)
+        .map((n) => mapping.get(n))
+        .filter((n): n is number => n !== undefined);
+      if (mapped.length === 0) return '';
+      const lead = whole.slice(0, whole.length - whole.trimStart().length);
+      return `${lead}${[...new Set(mapped)].map((n) => `[${n}]`).join('')}`;
+    })
+    .trim();
+}
+
+/**
+ * Answer sentences with the markers that belong to them. Sentence segmentation (UAX #29)
+ * puts a marker written after the full stop ("... 28 days. [1]") at the start of the next
+ * segment, so leading markers are handed back to the sentence before.
+ */
+function claimSpans(answer: string): { text: string; markers: number[] }[] {
+  const out: { text: string; markers: number[] }[] = [];
+  for (const span of splitSentences(answer)) {
+    let body = span.text;
+    const lead = LEADING_MARKERS.exec(body);
+    if (lead) {
+      const prev = out[out.length - 1];
+      if (prev) prev.markers.push(...markersIn(lead[0]));
+      body = body.slice(lead[0].length);
+    }
+    const markers = markersIn(body);
+    const text = body.replace(MARKER, '').replace(/[^\S\n]+([.,;:!?])/g, '$1').replace(/\s+/g, ' ').trim();
+    if (text.length === 0 && out.length === 0 && markers.length > 0) continue;
+    out.push({ text, markers });
+  }
+  return out;
+}
+
+function markersIn(text: string): number[] {
+  const out: number[] = [];
+  for (const m of text.matchAll(MARKER)) out.push(...parseList(m[1] ?? ''));
+  return out;
+}
+
+function parseList(list: string): number[] {
+  return list
+    .split(/[,;]/)
+    .map((x) => Number.parseInt(x.trim(), 10))
+    .filter((n) => Number.isFinite(n));
+}
+
+function round3(x: number): number {
+  return Math.round(x * 1000) / 1000;
+}

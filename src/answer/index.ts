@@ -1,0 +1,16 @@
+export { ABSTAIN_TEXT, DEFAULT_THRESHOLDS, abstainReason, confidence, isAbstentionReply } from './abstain.js';
+export type { AbstainReason, AbstainThresholds, Evidence } from './abstain.js';
+export { createAnswerer, standaloneQuestion } from './answerer.js';
+export type { Answerer, AnswererDeps, AnswererOptions, AnswerRequest, HistoryTurn, RetrieveRequest } from './answerer.js';
+export { CAUTION } from './caution.js';
+export { CompletionError, createCompletionClient } from './completion.js';
+export type { CompletionClientOptions, CompletionFailure } from './completion.js';
+export { buildContext } from './context.js';
+export type { BuildContextOptions } from './context.js';
+export { extractAnswer } from './extractive.js';
+export type { ExtractOptions, ExtractResult } from './extractive.js';
+export { checkGrounding } from './grounding.js';
+export type { GroundedClaim, GroundingOptions, GroundingResult } from './grounding.js';
+export { SYSTEM_PROMPT, buildMessages } from './prompt.js';
+export type { PromptMessage } from './prompt.js';
+export type { AnswerLogger, ChatMessage, CompletionClient, ContextSource, SourcePart } from './types.js';

@@ -1,0 +1,124 @@
+import { z } from 'zod';
+
+// Every option lives here with its default and a one-line description. config/default.json mirrors
+// `configSchema.parse({})` (a test keeps them equal) so operators can read the defaults in one place.
+
+const server = z
+  .object({
+    host: z.string().min(1).default('127.0.0.1').describe('Address to bind (env HOST)'),
+    port: z.number().int().min(0).max(65535).default(8080).describe('TCP port (env PORT)'),
+    bodyLimitBytes: z.number().int().positive().default(1_048_576).describe('Largest accepted JSON request body'),
+    requestTimeoutMs: z.number().int().positive().default(30_000).describe('Deadline for one request'),
+  })
+  .strict()
+  .prefault({});
+
+const seed = z
+  .object({
+    path: z.string().default('seed-docs').describe('Folder ingested into the seed collection when the store is empty'),
+    collection: z.string().default('default').describe('Collection the seed folder is ingested into'),
+    ingestOnEmpty: z.boolean().default(true).describe('Ingest the seed folder at start-up when the store has no documents'),
+  })
+  .strict()
+  .prefault({});
+
+const embedding = z
+  .object({
+    provider: z
+      .enum(['auto', 'transformers', 'hashing'])
+      .default('auto')
+      .describe('auto: the sentence model when it is on disk, else the built-in hashing embedder (env SOURCEBOUND_EMBEDDER)'),
+    model: z.string().min(1).default('Xenova/all-MiniLM-L6-v2').describe('Sentence-embedding model id'),
+    modelDir: z.string().default('models').describe('Folder holding downloaded models (env SOURCEBOUND_MODEL_DIR)'),
+    quantized: z.boolean().default(true).describe('Use the quantized ONNX weights'),
+    batchSize: z.number().int().min(1).max(512).default(32).describe('Texts per embedding call'),
+    hashingDimensions: z.number().int().min(64).max(65536).default(4096).describe('Dimensions of the hashing embedder'),
+  })
+  .strict()
+  .prefault({});
+
+const chunking = z
+  .object({
+    targetTokens: z.number().int().min(16).default(180).describe('Preferred chunk size in embedder tokens'),
+    maxTokens: z.number().int().min(16).default(256).describe('Hard chunk limit in embedder tokens (capped by the model limit)'),
+    overlapTokens: z.number().int().min(0).default(32).describe('Tokens of the previous chunk repeated at the start of the next'),
+  })
+  .strict()
+  .prefault({});
+
+const hnsw = z
+  .object({
+    m: z.number().int().min(2).max(128).default(16).describe('HNSW M: links per node'),
+    efConstruction: z.number().int().min(8).default(200).describe('HNSW candidate list size while building'),
+    efSearch: z.number().int().min(8).default(128).describe('HNSW candidate list size while searching'),
+  })
+  .strict()
+  .prefault({});
+
+const retrieval = z
+  .object({
+    k: z.number().int().min(1).max(100).default(8).describe('Results returned when the request gives no k'),
+    candidates: z.number().int().min(1).max(1000).default(50).describe('Candidates taken from each leg before fusion'),
+    rrfK: z.number().min(0).default(60).describe('Reciprocal rank fusion constant (Cormack, Clarke and Buettcher 2009)'),
+    lexicalWeight: z.number().min(0).default(1).describe('Weight of the BM25 leg in fusion'),
+    denseWeight: z.number().min(0).default(1).describe('Weight of the dense leg in fusion'),
+    hnsw,
+  })
+  .strict()
+  .prefault({});
+
+const answer = z
+  .object({
+    contextBudgetTokens: z.number().int().min(64).default(1800).describe('Token budget of the sources sent to the completion model'),
+    maxSentences: z.number().int().min(1).max(10).default(3).describe('Most sentences in an extractive answer'),
+    minSupport: z.number().min(0).max(1).default(0.5).describe('Share of a claim\'s content words its sources must contain'),
+    minLexicalCoverage: z.number().min(0).max(1).default(0.5).describe('Abstain below this weighted question-term coverage...'),
+    minDenseScore: z.number().min(-1).max(1).default(0.35).describe('...unless the dense similarity reaches this'),
+  })
+  .strict()
+  .prefault({});
+
+const completion = z
+  .object({
+    baseUrl: z.string().url().nullable().default(null).describe('Chat-completions base URL; null answers extractively (env SOURCEBOUND_COMPLETION_URL)'),
+    model: z.string().default('default').describe('Model name sent to the endpoint (env SOURCEBOUND_COMPLETION_MODEL)'),
+    apiKey: z.string().nullable().default(null).describe('Secret; set it through env SOURCEBOUND_COMPLETION_API_KEY'),
+    temperature: z.number().min(0).max(2).default(0).describe('Sampling temperature'),
+    maxTokens: z.number().int().min(1).default(512).describe('Most tokens the endpoint may generate'),
+    timeoutMs: z.number().int().min(100).default(20_000).describe('Per-attempt timeout'),
+    retries: z.number().int().min(0).max(10).default(2).describe('Retries on 429, 5xx and network errors'),
+  })
+  .strict()
+  .prefault({});
+
+const limits = z
+  .object({
+    questionMaxChars: z.number().int().min(1).default(2000).describe('Longest question or query accepted'),
+    kMax: z.number().int().min(1).max(1000).default(50).describe('Largest k a request may ask for'),
+    historyMaxTurns: z.number().int().min(0).default(20).describe('Most earlier turns accepted with a question'),
+    documentMaxBytes: z.number().int().min(1).default(50 * 1024 * 1024).describe('Largest document file ingested'),
+  })
+  .strict()
+  .prefault({});
+
+export const configSchema = z
+  .object({
+    dataDir: z.string().min(1).default('data').describe('Folder for the database and index files (env SOURCEBOUND_DATA_DIR)'),
+    logLevel: z
+      .enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'])
+      .default('info')
+      .describe('Log level (env SOURCEBOUND_LOG_LEVEL)'),
+    server,
+    seed,
+    embedding,
+    chunking,
+    retrieval,
+    answer,
+    completion,
+    limits,
+  })
+  .strict();
+
+export type Config = z.infer<typeof configSchema>;
+/** Keys whose values are never printed or logged. */
+export const SECRET_PATHS: readonly string[] = ['completion.apiKey'];

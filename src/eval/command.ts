@@ -1,0 +1,168 @@
+import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import path from 'node:path';
+import { parseArgs } from 'node:util';
+import { loadConfig } from '../config/index.js';
+import { createLogger } from '../logger.js';
+import { createRuntime } from '../runtime.js';
+import type { LoadedDocument, SearchMode } from '../types.js';
+import { createHash } from 'node:crypto';
+import { formatRun, readCorpus, readQrels, readQueries, type CorpusDoc } from './data.js';
+import { scoreRun, type RetrievalScores } from './metrics.js';
+
+const MODES: readonly SearchMode[] = ['hybrid', 'lexical', 'dense'];
+
+export interface RetrievalEvalOptions {
+  corpus: string;
+  queries: string;
+  qrels: string;
+  mode: SearchMode;
+  /** Ranking depth per query (documents). */
+  depth: number;
+  env: Record<string, string | undefined>;
+  runFile?: string;
+  onProgress?: (msg: string) => void;
+}
+
+export interface RetrievalEvalResult extends RetrievalScores {
+  mode: SearchMode;
+  embedder: string;
+  documents: number;
+  seconds: number;
+}
+
+/** A corpus record as a loaded document: the title as a heading, the text as paragraphs. */
+export function corpusDocToLoaded(d: CorpusDoc): LoadedDocument {
+  const blocks: LoadedDocument['blocks'] = [];
+  if (d.title.trim()) blocks.push({ kind: 'heading', level: 1, text: d.title.trim() });
+  for (const para of d.text.split(/\n\s*\n/)) if (para.trim()) blocks.push({ kind: 'paragraph', text: para.replace(/\s+/g, ' ').trim() });
+  return { format: 'text', title: d.title.trim() || d.id, blocks, pageCount: null, effectiveDate: null, metadata: {} };
+}
+
+/** Ingests the corpus into a throw-away store, runs every query, scores the ranking against the qrels. */
+export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<RetrievalEvalResult> {
+  const started = performance.now();
+  const corpus = readCorpus(opts.corpus);
+  const queries = readQueries(opts.queries);
+  const qrels = readQrels(opts.qrels);
+  const dataDir = mkdtempSync(path.join(tmpdir(), 'sourcebound-eval-'));
+  const config = loadConfig({
+    env: opts.env,
+    overrides: {
+      dataDir,
+      seed: { ingestOnEmpty: false },
+      retrieval: { candidates: Math.max(opts.depth, 100) },
+    },
+  });
+  const logger = createLogger(config.logLevel === 'info' ? 'warn' : config.logLevel, process.stderr as never);
+  const rt = await createRuntime(config, logger);
+  try {
+    opts.onProgress?.(`ingesting ${corpus.length} documents with ${rt.embedder.id}`);
+    const summary = await rt.ingestor.ingestLoaded(
+      'eval',
+      corpus
+        .filter((d) => d.text.trim() || d.title.trim())
+        .map((d) => ({
+          source: d.id,
+          loaded: corpusDocToLoaded(d),
+          contentHash: createHash('sha256').update(`${d.title}\n${d.text}`).digest('hex'),
+          byteSize: Buffer.byteLength(d.text),
+        })),
+    );
+    if (summary.documents.failed > 0) logger.warn({ failures: summary.failures.slice(0, 5) }, 'some corpus documents were not indexed');
+    opts.onProgress?.(`running ${queries.length} queries (${opts.mode})`);
+    const ranked = new Map<string, { doc: string; score: number }[]>();
+    for (const q of queries) {
+      // Chunks are ranked; a document takes the rank of its best chunk.
+      const hits = await rt.retriever.search({ query: q.text, collection: 'eval', k: opts.depth * 2, mode: opts.mode });
+      const seen = new Set<string>();
+      const docs: { doc: string; score: number }[] = [];
+      for (const h of hits) {
+        if (seen.has(h.source)) continue;
+        seen.add(h.source);
+        docs.push({ doc: h.source, score: h.score });
+        if (docs.length >= opts.depth) break;
+      }
+      ranked.set(q.id, docs);
+    }
+    if (opts.runFile) writeFileSync(opts.runFile, formatRun(ranked, `sourcebound-${opts.mode}`));
+    const runs = new Map([...ranked].map(([q, r]) => [q, r.map((x) => x.doc)] as const));
+    // Only queries that were asked are scored; qrels for absent queries are ignored.
+    const asked = new Map([...qrels].filter(([q]) => runs.has(q)));
+    const scores = scoreRun(runs, asked);
+    return {
+      ...scores,
+      mode: opts.mode,
+      embedder: rt.embedder.id,
+      documents: rt.repo.countDocuments('eval'),
+      seconds: Math.round((performance.now() - started) / 100) / 10,
+    };
+  } finally {
+    rt.close();
+    rmSync(dataDir, { recursive: true, force: true });
+  }
+}
+
+export async function runEvalCommand(args: string[], env: Record<string, string | undefined>): Promise<number> {
+  const [kind, ...rest] = args;
+  if (kind !== 'retrieval') {
+    process.stderr.write('sourcebound eval: use `eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]`\n');
+    return 2;
+  }
+  const { values } = parseArgs({
+    args: rest,
+    options: {
+      corpus: { type: 'string' },
+      queries: { type: 'string' },
+      qrels: { type: 'string' },
+      mode: { type: 'string', default: 'hybrid' },
+      k: { type: 'string', default: '1000' },
+      run: { type: 'string' },
+      json: { type: 'boolean' },
+    },
+  });
+  const missing = (['corpus', 'queries', 'qrels'] as const).filter((f) => !values[f]);
+  if (missing.length > 0) {
+    process.stderr.write(`sourcebound eval retrieval: missing ${missing.map((m) => `--${m}`).join(', ')}\n`);
+    return 2;
+  }
+  const mode = values.mode as SearchMode;
+  if (!MODES.includes(mode)) {
+    process.stderr.write(`sourcebound eval retrieval: --mode must be one of ${MODES.join(', ')}\n`);
+    return 2;
+  }
+  const depth = Number(values.k);
+  if (!Number.isInteger(depth) || depth < 1 || depth > 10_000) {
+    process.stderr.write('sourcebound eval retrieval: --k must be an integer from 1 to 10000\n');
+    return 2;
+  }
+  const result = await evaluateRetrieval({
+    corpus: values.corpus!,
+    queries: values.queries!,
+    qrels: values.qrels!,
+    mode,
+    depth,
+    env,
+    ...(values.run ? { runFile: values.run } : {}),
+    onProgress: (m) => {
+      if (!values.json) process.stderr.write(`${m}\n`);
+    },
+  });
+  if (values.json) {
+    process.stdout.write(`${JSON.stringify(result)}\n`);
+  } else {
+    const rows: [string, string][] = [
+      ['mode', result.mode],
+      ['embedder', result.embedder],
+      ['queries', String(result.queries)],
+      ['nDCG@10', result['ndcg@10'].toFixed(4)],
+      ['MAP', result.map.toFixed(4)],
+      ['Recall@10', result['recall@10'].toFixed(4)],
+      ['Recall@100', result['recall@100'].toFixed(4)],
+      ['MRR@10', result['mrr@10'].toFixed(4)],
+      ['seconds', String(result.seconds)],
+    ];
+    process.stdout.write(`${rows.map(([k, v]) => `${k.padEnd(12)}${v}`).join('\n')}\n`);
+  }
+  return 0;
+}

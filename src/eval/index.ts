@@ -1,0 +1,3 @@
+export { ndcgAt, averagePrecision, recallAt, reciprocalRankAt, scoreRun, type Judgments, type RetrievalScores } from './metrics.js';
+export { readCorpus, readQueries, readQrels, parseQrels, formatRun, type CorpusDoc, type Query } from './data.js';
+export { evaluateRetrieval, runEvalCommand, corpusDocToLoaded, type RetrievalEvalOptions, type RetrievalEvalResult } from './command.js';

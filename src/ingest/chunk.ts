@@ -1,0 +1,213 @@
+import type { ChunkDraft, NormalisedDocument, PlacedBlock, TokenCounter } from '../types.js';
+import { splitSentences } from './sentences.js';
+
+export interface ChunkOptions {
+  /** Blocks are packed until a chunk would pass this many tokens. */
+  targetTokens: number;
+  /** Hard limit: no chunk is ever longer. */
+  maxTokens: number;
+  /** A chunk that continues a section may repeat up to this many tokens of the previous chunk's last sentences. */
+  overlapTokens: number;
+  countTokens: TokenCounter;
+  /** Locale for sentence boundaries. */
+  locale?: string;
+}
+
+interface Span {
+  start: number;
+  end: number;
+}
+
+/** A place where a chunk may start: a sentence, line or word-group start. */
+interface Piece extends Span {
+  block: number;
+  section: number;
+  heading: boolean;
+}
+
+interface OpenChunk extends Span {
+  hasBody: boolean;
+  pieces: Piece[];
+}
+
+const graphemes = new Intl.Segmenter('en', { granularity: 'grapheme' });
+
+function lineSpans(text: string, offset: number): Span[] {
+  const spans: Span[] = [];
+  for (const m of text.matchAll(/[^\n]+/g)) {
+    const lead = m[0].length - m[0].trimStart().length;
+    const t = m[0].trim();
+    if (t !== '') spans.push({ start: offset + m.index + lead, end: offset + m.index + lead + t.length });
+  }
+  return spans;
+}
+
+/** Natural units of a block: whole heading, sentences of prose, lines of tables, lists and code. */
+function unitSpans(block: PlacedBlock, locale: string): Span[] {
+  if (block.kind === 'heading') return [{ start: block.start, end: block.end }];
+  if (block.kind === 'paragraph') {
+    return splitSentences(block.text, locale).map((s) => ({ start: block.start + s.start, end: block.start + s.end }));
+  }
+  // Never split inside a table row or list item: lines are the smallest unit.
+  return lineSpans(block.text, block.start);
+}
+
+/**
+ * Cuts a span that alone exceeds `max` into word groups (and a word that alone exceeds it into
+ * grapheme runs), each as long as fits.
+ */
+function fitSpan(text: string, span: Span, max: number, count: TokenCounter): Span[] {
+  const out: Span[] = [];
+  let cur: Span | null = null;
+  const slice = text.slice(span.start, span.end);
+  for (const m of slice.matchAll(/\S+/g)) {
+    const word = { start: span.start + m.index, end: span.start + m.index + m[0].length };
+    if (cur && count(text.slice(cur.start, word.end)) <= max) {
+      cur.end = word.end;
+      continue;
+    }
+    if (cur) out.push(cur);
+    if (count(text.slice(word.start, word.end)) <= max) {
+      cur = { ...word };
+      continue;
+    }
+    cur = null;
+    for (const g of graphemes.segment(text.slice(word.start, word.end))) {
+      const gs = word.start + g.index;
+      const ge = gs + g.segment.length;
+      if (cur && count(text.slice(cur.start, ge)) <= max) {
+        cur.end = ge;
+        continue;
+      }
+      if (cur) out.push(cur);
+      if (count(g.segment) > max) throw new Error(`maxTokens (${max}) is too small to hold the character "${g.segment}"`);
+      cur = { start: gs, end: ge };
+    }
+  }
+  if (cur) out.push(cur);
+  return out;
+}
+
+function firstBlockEndingAfter(blocks: PlacedBlock[], offset: number): number {
+  let lo = 0;
+  let hi = blocks.length;
+  while (lo < hi) {
+    const mid = (lo + hi) >> 1;
+    if (blocks[mid]!.end <= offset) lo = mid + 1;
+    else hi = mid;
+  }
+  return lo;
+}
+
+/**
+ * Splits a normalised document into chunks that follow its structure: each heading starts a
+ * chunk, whole blocks are packed up to `targetTokens`, an oversized block is split at sentence
+ * (or, for tables and lists, line) boundaries, and only a unit that alone passes `maxTokens` is cut
+ * between words. Every chunk is an exact span of `doc.text`; together they cover all of its
+ * non-whitespace characters.
+ */
+export function chunkDocument(doc: NormalisedDocument, opts: ChunkOptions): ChunkDraft[] {
+  const count = opts.countTokens;
+  const max = Math.floor(opts.maxTokens);
+  if (!(max >= 1)) throw new Error(`maxTokens must be at least 1 (got ${opts.maxTokens})`);
+  const target = Math.max(1, Math.min(Math.floor(opts.targetTokens), max));
+  const overlap = Math.max(0, Math.floor(opts.overlapTokens));
+  const locale = opts.locale ?? 'en';
+  const { text, blocks } = doc;
+  const tokensOf = (s: Span): number => count(text.slice(s.start, s.end));
+
+  const drafts: ChunkDraft[] = [];
+  let cur: OpenChunk | null = null;
+  let prev: OpenChunk | null = null;
+  let section = 0;
+
+  const close = (): void => {
+    if (!cur) return;
+    const chunkText = text.slice(cur.start, cur.end);
+    const covered: PlacedBlock[] = [];
+    for (let i = firstBlockEndingAfter(blocks, cur.start); i < blocks.length && blocks[i]!.start < cur.end; i++) {
+      covered.push(blocks[i]!);
+    }
+    const firstBody = cur.pieces.find((p) => !p.heading);
+    const pathBlock = firstBody ? blocks[firstBody.block]! : blocks[cur.pieces[cur.pieces.length - 1]!.block]!;
+    const pages = covered.map((b) => b.page).filter((p): p is number => typeof p === 'number');
+    drafts.push({
+      ordinal: drafts.length,
+      text: chunkText,
+      start: cur.start,
+      end: cur.end,
+      headingPath: [...pathBlock.headingPath],
+      pageStart: pages.length > 0 ? Math.min(...pages) : null,
+      pageEnd: pages.length > 0 ? Math.max(...pages) : null,
+      tokenCount: count(chunkText),
+    });
+    prev = cur;
+    cur = null;
+  };
+
+  /** Opens a chunk at `unit`, reaching back into the previous chunk for overlap where allowed. */
+  const open = (unit: Piece[]): void => {
+    const first = unit[0]!;
+    const end = unit[unit.length - 1]!.end;
+    let pieces = unit;
+    const last: OpenChunk | null = prev;
+    if (overlap > 0 && !first.heading && last && last.end <= first.start) {
+      const carried: Piece[] = [];
+      // The previous chunk's first piece never carries over: the new chunk would swallow it whole.
+      for (let i = last.pieces.length - 1; i >= 1; i--) {
+        const p = last.pieces[i]!;
+        if (p.heading || p.section !== first.section) break;
+        if (count(text.slice(p.start, last.end)) > overlap) break;
+        carried.unshift(p);
+      }
+      while (carried.length > 0 && count(text.slice(carried[0]!.start, end)) > max) carried.shift();
+      pieces = [...carried, ...unit];
+    }
+    cur = { start: pieces[0]!.start, end, hasBody: pieces.some((p) => !p.heading), pieces: [...pieces] };
+  };
+
+  const extend = (unit: Piece[]): void => {
+    cur!.end = unit[unit.length - 1]!.end;
+    cur!.pieces.push(...unit);
+    if (unit.some((p) => !p.heading)) cur!.hasBody = true;
+  };
+
+  /** Adds one piece (≤ max tokens) under the target rule. */
+  const addPiece = (piece: Piece): void => {
+    if (cur && count(text.slice(cur.start, piece.end)) <= (cur.hasBody ? target : max)) extend([piece]);
+    else {
+      close();
+      open([piece]);
+    }
+  };
+
+  blocks.forEach((block, index) => {
+    const isHeading = block.kind === 'heading';
+    if (isHeading) {
+      section++;
+      // A run of headings stays together so that no chunk is a bare heading.
+      if (cur?.hasBody) close();
+    }
+    const toPieces = (spans: Span[]): Piece[] =>
+      spans.map((s) => ({ ...s, block: index, section, heading: isHeading }));
+    if (!isHeading) {
+      const whole = toPieces(unitSpans(block, locale));
+      if (whole.length === 0) return;
+      if (cur && count(text.slice(cur.start, block.end)) <= (cur.hasBody ? target : max)) {
+        extend(whole);
+        return;
+      }
+      if (tokensOf(block) <= target && (!cur || cur.hasBody)) {
+        close();
+        open(whole);
+        return;
+      }
+    }
+    for (const unit of unitSpans(block, locale)) {
+      const spans = tokensOf(unit) <= max ? [unit] : fitSpan(text, unit, max, count);
+      for (const piece of toPieces(spans)) addPiece(piece);
+    }
+  });
+  close();
+  return drafts;
+}

@@ -1,0 +1,71 @@
+const MONTHS: Record<string, number> = {
+  jan: 1, feb: 2, mar: 3, apr: 4, may: 5, jun: 6, jul: 7, aug: 8, sep: 9, oct: 10, nov: 11, dec: 12,
+};
+const MONTH = '(jan(?:uary)?|feb(?:ruary)?|mar(?:ch)?|apr(?:il)?|may|june?|july?|aug(?:ust)?|sept?(?:ember)?|oct(?:ober)?|nov(?:ember)?|dec(?:ember)?)\\.?';
+const WEEKDAY = '(?:(?:mon|tues|wednes|thurs|fri|satur|sun)day,?\\s+)?';
+
+// Each pattern is anchored at the start of the text that follows a trigger phrase.
+const DATE_PATTERNS: { re: RegExp; ymd: (m: RegExpExecArray) => [string, string, string] }[] = [
+  { re: /^(\d{4})[-/.](\d{1,2})[-/.](\d{1,2})\b/, ymd: (m) => [m[1]!, m[2]!, m[3]!] },
+  {
+    re: new RegExp(`^${WEEKDAY}(\\d{1,2})(?:st|nd|rd|th)?\\s+(?:of\\s+)?${MONTH},?\\s+(\\d{4})\\b`, 'i'),
+    ymd: (m) => [m[3]!, m[2]!, m[1]!],
+  },
+  {
+    re: new RegExp(`^${WEEKDAY}${MONTH}\\s+(\\d{1,2})(?:st|nd|rd|th)?,?\\s+(\\d{4})\\b`, 'i'),
+    ymd: (m) => [m[3]!, m[1]!, m[2]!],
+  },
+  // Numeric dates are read day first, as the documents this service targets are written.
+  { re: /^(\d{1,2})[/.-](\d{1,2})[/.-](\d{4})\b/, ymd: (m) => [m[3]!, m[2]!, m[1]!] },
+];
+
+function monthNumber(s: string): number {
+  if (/^\d+$/.test(s)) return Number(s);
+  return MONTHS[s.toLowerCase().slice(0, 3)] ?? 0;
+}
+
+function toIso(y: string, mo: string, d: string): string | null {
+  const year = Number(y);
+  const month = monthNumber(mo);
+  const day = Number(d);
+  if (month < 1 || month > 12 || day < 1) return null;
+  const daysInMonth = new Date(Date.UTC(year, month, 0)).getUTCDate();
+  if (day > daysInMonth) return null;
+  return `${String(year).padStart(4, '0')}-${String(month).padStart(2, '0')}-${String(day).padStart(2, '0')}`;
+}
+
+/** Reads a date at the very start of `s` in any of the supported forms, as YYYY-MM-DD. */
+export function parseDateAt(s: string): string | null {
+  const text = s.trimStart();
+  for (const { re, ymd } of DATE_PATTERNS) {
+    const m = re.exec(text);
+    if (m) return toIso(...ymd(m));
+  }
+  return null;
+}
+
+const METADATA_KEYS = ['effective', 'effective_date', 'effective-date', 'effectivedate', 'date'];
+
+// "Effective from 1 March 2026", "Effective date: 2026-03-01", "comes into effect on ...",
+// "in effect as of ...": the date follows the trigger after optional connecting words.
+const TRIGGER =
+  /\b(?:effective|(?:comes?|came|come)\s+into\s+effect|in\s+effect|takes?\s+effect)\b(?:\s+(?:date|from|on|as\s+(?:of|from)|since|starting|with\s+effect\s+from))*\s*[:\-–—]?\s*(?:on\s+|from\s+)?/gi;
+
+/**
+ * The date from which a document applies, as YYYY-MM-DD: front-matter style metadata first
+ * (`effective`, `effective_date`, `date`), then the first dated "effective ..." phrase in the text.
+ */
+export function findEffectiveDate(text: string, metadata: Record<string, string>): string | null {
+  const lowered = new Map(Object.entries(metadata).map(([k, v]) => [k.toLowerCase(), v]));
+  for (const key of METADATA_KEYS) {
+    const value = lowered.get(key);
+    if (value === undefined) continue;
+    const iso = parseDateAt(value);
+    if (iso) return iso;
+  }
+  for (const m of text.matchAll(TRIGGER)) {
+    const iso = parseDateAt(text.slice(m.index + m[0].length, m.index + m[0].length + 40));
+    if (iso) return iso;
+  }
+  return null;
+}

@@ -1,0 +1,15 @@
+export {
+  createIngestor,
+  documentId,
+  type Ingestor,
+  type IngestOptions,
+  type IngestProgress,
+  type IngestSummary,
+  type FileOutcome,
+} from './pipeline.js';
+export { loadDocument } from './load.js';
+export { detectFormat } from './detect.js';
+export { buildNormalisedDocument, normaliseText } from './normalise.js';
+export { chunkDocument } from './chunk.js';
+export { splitSentences } from './sentences.js';
+export { findEffectiveDate } from './effective-date.js';

@@ -1,0 +1,148 @@
+import type { Block, LoadedDocument } from '../types.js';
+import { findEffectiveDate } from './effective-date.js';
+
+/**
+ * Bytes to string for the text formats: a BOM decides (UTF-8, UTF-16 LE/BE); without one,
+ * strict UTF-8, and bytes that are not valid UTF-8 are read as Latin-1 (the WHATWG
+ * "latin1" label, i.e. windows-1252, which agrees with ISO-8859-1 on every printable byte).
+ */
+export function decodeText(bytes: Uint8Array): string {
+  if (bytes[0] === 0xef && bytes[1] === 0xbb && bytes[2] === 0xbf) {
+    return new TextDecoder('utf-8').decode(bytes.subarray(3));
+  }
+  if (bytes[0] === 0xff && bytes[1] === 0xfe) return new TextDecoder('utf-16le').decode(bytes.subarray(2));
+  if (bytes[0] === 0xfe && bytes[1] === 0xff) return new TextDecoder('utf-16be').decode(bytes.subarray(2));
+  try {
+    return new TextDecoder('utf-8', { fatal: true }).decode(bytes);
+  } catch {
+    return new TextDecoder('latin1').decode(bytes);
+  }
+}
+
+/** The file name without folders or extension, for documents that state no title. */
+export function titleFromFileName(fileName: string): string {
+  const base = fileName.split(/[\\/]/).pop() ?? fileName;
+  const dot = base.lastIndexOf('.');
+  return (dot > 0 ? base.slice(0, dot) : base).trim() || base;
+}
+
+const UNDERLINE_1 = /^\s*={3,}\s*$/;
+const UNDERLINE_2 = /^\s*-{3,}\s*$/;
+const NUMBERED_HEADING = /^(\d{1,3}(?:\.\d{1,3})*)\.?\s+(\S.*)$/u;
+const BULLET = /^\s*(?:[-*•‣◦–]|\d{1,3}[.)]|\([a-z0-9]{1,3}\)|[a-z][.)])\s+\S/u;
+const TABLE_SEPARATOR = /^\s*\|?\s*:?-{2,}:?\s*(?:\|\s*:?-{2,}:?\s*)*\|?\s*$/;
+
+function isShortLine(line: string): boolean {
+  const t = line.trim();
+  return t.length > 0 && t.length <= 80 && t.split(/\s+/).length <= 12;
+}
+
+function endsLikeSentence(line: string): boolean {
+  return /[.,;:!?]["')\]]?$/.test(line.trim());
+}
+
+/** Level of a numbered heading line ("2.1 Eligibility" → 2), or 0 when the line is not one. */
+export function numberedHeadingLevel(line: string): number {
+  const m = NUMBERED_HEADING.exec(line.trim());
+  if (!m || !isShortLine(line) || endsLikeSentence(line)) return 0;
+  if (!/^\p{Lu}/u.test(m[2]!)) return 0;
+  return Math.min(6, m[1]!.split('.').length);
+}
+
+/** ALL-CAPS short lines ("LOST PROPERTY") read as headings in plain text. */
+function isCapsHeading(line: string): boolean {
+  const t = line.trim();
+  return isShortLine(t) && (t.match(/\p{Lu}/gu)?.length ?? 0) >= 3 && !/\p{Ll}/u.test(t) && !/[.,;]$/.test(t);
+}
+
+function tableRow(line: string): string {
+  return line
+    .trim()
+    .replace(/^\|/, '')
+    .replace(/\|$/, '')
+    .split('|')
+    .map((c) => c.trim())
+    .join(' | ');
+}
+
+function groupToBlocks(lines: string[], isLastGroup: boolean): Block[] {
+  const blocks: Block[] = [];
+  let rest = lines;
+  // A heading may sit alone or lead a group; either way it needs something after it.
+  while (rest.length > 0) {
+    const first = rest[0]!;
+    const second = rest[1];
+    if (second !== undefined && UNDERLINE_1.test(second)) {
+      blocks.push({ kind: 'heading', level: 1, text: first.trim() });
+      rest = rest.slice(2);
+      continue;
+    }
+    if (second !== undefined && UNDERLINE_2.test(second) && first.trim() !== '') {
+      blocks.push({ kind: 'heading', level: 2, text: first.trim() });
+      rest = rest.slice(2);
+      continue;
+    }
+    const hasFollower = rest.length > 1 || !isLastGroup;
+    const numbered = numberedHeadingLevel(first);
+    const followerIsNumbered = second !== undefined && NUMBERED_HEADING.test(second.trim());
+    if (hasFollower && numbered > 0 && !followerIsNumbered) {
+      blocks.push({ kind: 'heading', level: numbered, text: first.trim() });
+      rest = rest.slice(1);
+      continue;
+    }
+    if (hasFollower && isCapsHeading(first)) {
+      blocks.push({ kind: 'heading', level: 1, text: first.trim() });
+      rest = rest.slice(1);
+      continue;
+    }
+    break;
+  }
+  if (rest.length === 0) return blocks;
+  if (rest.every((l) => l.includes('|'))) {
+    blocks.push({ kind: 'table', text: rest.filter((l) => !TABLE_SEPARATOR.test(l)).map(tableRow).join('\n') });
+  } else if (BULLET.test(rest[0]!)) {
+    // Continuation lines of a wrapped item join the item they continue.
+    const items: string[] = [];
+    for (const line of rest) {
+      if (BULLET.test(line) || items.length === 0) items.push(line.trim());
+      else items[items.length - 1] += ' ' + line.trim();
+    }
+    blocks.push({ kind: 'list', text: items.join('\n') });
+  } else if (rest.every((l) => /^(?: {4}|\t)/.test(l))) {
+    blocks.push({ kind: 'code', text: rest.map((l) => l.replace(/^(?: {4}|\t)/, '')).join('\n') });
+  } else {
+    // Plain text is usually hard-wrapped; the paragraph is one logical line.
+    blocks.push({ kind: 'paragraph', text: rest.map((l) => l.trim()).join(' ') });
+  }
+  return blocks;
+}
+
+/** Blocks of a plain-text document: blank-line paragraphs, underlined, numbered and ALL-CAPS headings. */
+export function parseTextBlocks(text: string): Block[] {
+  const groups: string[][] = [];
+  let current: string[] = [];
+  for (const line of text.replace(/\r\n?/g, '\n').split('\n')) {
+    if (line.trim() === '') {
+      if (current.length > 0) groups.push(current);
+      current = [];
+    } else {
+      current.push(line.replace(/\s+$/, ''));
+    }
+  }
+  if (current.length > 0) groups.push(current);
+  return groups.flatMap((g, i) => groupToBlocks(g, i === groups.length - 1));
+}
+
+export function loadText(bytes: Uint8Array, fileName: string): LoadedDocument {
+  const text = decodeText(bytes);
+  const blocks = parseTextBlocks(text);
+  const firstHeading = blocks.find((b) => b.kind === 'heading');
+  return {
+    format: 'text',
+    title: firstHeading?.text ?? titleFromFileName(fileName),
+    blocks,
+    pageCount: null,
+    effectiveDate: findEffectiveDate(text, {}),
+    metadata: {},
+  };
+}

@@ -1,0 +1,63 @@
+import type { Block, NormalisedDocument, PlacedBlock } from '../types.js';
+
+// Soft hyphens and byte-order marks are invisible in print but break exact-phrase matching
+// and quote checks, so they go along with the C0/C1 controls.
+const INVISIBLE = /[\u00AD\uFEFF]/g;
+// \p{Cc} covers C0 and C1 controls; \n and \t are the only ones with meaning in our text.
+const CONTROL = /[^\P{Cc}\n\t]/gu;
+// Every Unicode space separator (NBSP, thin space, ideographic space...) reads as a plain space.
+const SPACES = /[\t\p{Zs}]+/gu;
+
+/** NFC, no control characters except \n, tabs and other spaces collapsed to one space, line ends trimmed. */
+export function normaliseText(s: string): string {
+  return s
+    .replace(/\r\n?/g, '\n')
+    .normalize('NFC')
+    .replace(INVISIBLE, '')
+    .replace(CONTROL, '')
+    .replace(SPACES, ' ')
+    .split('\n')
+    .map((line) => line.trimEnd())
+    .join('\n')
+    .trim();
+}
+
+/**
+ * The text a block contributes to the document. Blank lines inside a block are folded so that
+ * "\n\n" in the document text only ever separates blocks; headings are a single line because
+ * they also serve as citation section labels.
+ */
+function blockText(block: Block): string {
+  const text = normaliseText(block.text).replace(/\n(?: ?\n)+/g, '\n');
+  return block.kind === 'heading' ? text.replace(/\n/g, ' ') : text;
+}
+
+function headingLevel(block: Block): number {
+  const level = block.level ?? 1;
+  return Math.min(6, Math.max(1, Math.trunc(level)));
+}
+
+/** Joins the normalised blocks with "\n\n", dropping empty ones, and records offsets and heading paths. */
+export function buildNormalisedDocument(blocks: Block[]): NormalisedDocument {
+  const placed: PlacedBlock[] = [];
+  // Index i holds the current heading of level i + 1; a heading clears every deeper level.
+  const open: (string | undefined)[] = [];
+  let text = '';
+  for (const block of blocks) {
+    const t = blockText(block);
+    if (t === '') continue;
+    if (text !== '') text += '\n\n';
+    const start = text.length;
+    text += t;
+    const out: PlacedBlock = { ...block, text: t, start, end: text.length, headingPath: [] };
+    if (block.kind === 'heading') {
+      const level = headingLevel(block);
+      open.length = level;
+      open[level - 1] = t;
+      out.level = level;
+    }
+    out.headingPath = open.filter((h): h is string => h !== undefined);
+    placed.push(out);
+  }
+  return { text, blocks: placed };
+}

@@ -1,0 +1,321 @@
+import { createHash } from 'node:crypto';
+import { readdir, readFile, stat } from 'node:fs/promises';
+import path from 'node:path';
+import type { Embedder } from '../embed/types.js';
+import { SourceboundError } from '../errors.js';
+import type { Logger } from '../logger.js';
+import type { ChunkInput, Repository, VectorIndexes } from '../store/index.js';
+import type { ChunkDraft, LoadedDocument } from '../types.js';
+import { chunkDocument } from './chunk.js';
+import { detectFormat } from './detect.js';
+import { loadDocument } from './load.js';
+import { buildNormalisedDocument } from './normalise.js';
+
+export interface IngestOptions {
+  targetTokens: number;
+  maxTokens: number;
+  overlapTokens: number;
+  documentMaxBytes: number;
+}
+
+export type FileOutcome = 'added' | 'updated' | 'unchanged' | 'failed' | 'skipped';
+
+export interface IngestSummary {
+  documents: { added: number; updated: number; unchanged: number; removed: number; failed: number };
+  chunks: { embedded: number; reused: number; removed: number };
+  failures: { source: string; reason: string }[];
+  skipped: string[];
+  seconds: number;
+}
+
+export interface IngestProgress {
+  filesDone: number;
+  filesTotal: number;
+  pages: number;
+  chunks: number;
+  current: string;
+}
+
+export interface Ingestor {
+  /** Ingests every supported file under `root` (a folder or one file) into `collection`. */
+  ingestPath(
+    root: string,
+    opts: { collection: string; removeMissing?: boolean; force?: boolean; remember?: boolean; allowEmbedderSwitch?: boolean },
+  ): Promise<IngestSummary>;
+  /** Walks every remembered folder again: changed files re-processed, deleted ones removed. */
+  reindex(opts: { collection?: string; full?: boolean }): Promise<IngestSummary>;
+  /** Indexes documents that were loaded elsewhere (evaluation corpora, API text uploads). */
+  ingestLoaded(
+    collection: string,
+    docs: Iterable<{ source: string; loaded: LoadedDocument; contentHash: string; byteSize: number }>,
+  ): Promise<IngestSummary>;
+  /** The settings a document's chunks depend on; a change re-processes it. */
+  readonly settingsKey: string;
+}
+
+// Extensions looked at in a folder walk; other files are skipped without complaint. A file with no
+// extension is looked at too, and its type is decided from its bytes.
+const CANDIDATE_EXTENSIONS = new Set(['.pdf', '.md', '.markdown', '.html', '.htm', '.txt', '.text', '']);
+
+// Bump when the loaders or chunker change in a way that changes chunks for the same bytes.
+const PIPELINE_VERSION = 1;
+
+export function createIngestor(deps: {
+  repo: Repository;
+  indexes: VectorIndexes;
+  embedder: Embedder;
+  options: IngestOptions;
+  logger: Logger;
+  batchSize?: number;
+  onProgress?: (p: IngestProgress) => void;
+}): Ingestor {
+  const { repo, indexes, embedder, options, logger } = deps;
+  const batchSize = deps.batchSize ?? 32;
+  // Leave room for the heading path that is prepended before embedding, and for [CLS]/[SEP].
+  const maxTokens = Math.max(16, Math.min(options.maxTokens, embedder.maxTokens - 40));
+  const targetTokens = Math.min(options.targetTokens, maxTokens);
+  const settingsKey = `${embedder.id}|chunk:${targetTokens}/${maxTokens}/${options.overlapTokens}|pipeline:${PIPELINE_VERSION}`;
+
+  const emptySummary = (): IngestSummary => ({
+    documents: { added: 0, updated: 0, unchanged: 0, removed: 0, failed: 0 },
+    chunks: { embedded: 0, reused: 0, removed: 0 },
+    failures: [],
+    skipped: [],
+    seconds: 0,
+  });
+
+  const bindCollection = (collection: string, allowSwitch: boolean): void => {
+    repo.ensureCollection(collection);
+    const col = repo.getCollection(collection)!;
+    if (col.embedderId === embedder.id) return;
+    // Vectors of two embedders never share an index: switching is only done by a re-index, which
+    // re-processes every document of the collection (their settings key names the embedder).
+    if (col.embedderId && !allowSwitch) {
+      throw new SourceboundError('SB_ERR_EMBEDDER_MISMATCH', [collection, col.embedderId, embedder.id]);
+    }
+    repo.setCollectionEmbedder(collection, embedder.id, embedder.dimensions);
+  };
+
+  const embedText = (title: string, c: ChunkDraft): string => {
+    const trail = c.headingPath[0] === title ? c.headingPath : [title, ...c.headingPath];
+    return `${trail.join(' > ')}\n${c.text}`;
+  };
+
+  const processFile = async (
+    file: string,
+    source: string,
+    root: string,
+    collection: string,
+    force: boolean,
+    summary: IngestSummary,
+    progress: IngestProgress,
+  ): Promise<FileOutcome> => {
+    const log = logger.child({ source, collection });
+    const info = await stat(file);
+    if (info.size > options.documentMaxBytes) {
+      return fail(summary, source, `file is ${info.size} bytes, over the limit of ${options.documentMaxBytes}`);
+    }
+    const bytes = new Uint8Array(await readFile(file));
+    const contentHash = createHash('sha256').update(bytes).digest('hex');
+    const existing = repo.getDocumentBySource(collection, source);
+    if (existing && !force && existing.contentHash === contentHash && existing.settingsKey === settingsKey) {
+      summary.documents.unchanged++;
+      return 'unchanged';
+    }
+    if (bytes.length === 0) return fail(summary, source, 'the file is empty');
+    const format = detectFormat(bytes, path.basename(file));
+    if (!format) {
+      // A known extension with unreadable content is a failure; anything else is simply not a document.
+      if (path.extname(file) === '') {
+        summary.skipped.push(source);
+        return 'skipped';
+      }
+      return fail(summary, source, 'not a supported document (binary content or unknown type)');
+    }
+    let loaded;
+    try {
+      loaded = await loadDocument(bytes, path.basename(file));
+    } catch (err) {
+      return fail(summary, source, (err as Error).message);
+    }
+    return indexLoaded(loaded, { collection, source, root, contentHash, byteSize: bytes.length, existing: existing !== null }, summary, progress, log);
+  };
+
+  const indexLoaded = async (
+    loaded: LoadedDocument,
+    meta: { collection: string; source: string; root: string | null; contentHash: string; byteSize: number; existing: boolean },
+    summary: IngestSummary,
+    progress: IngestProgress,
+    log: Logger,
+  ): Promise<FileOutcome> => {
+    const { collection, source, root, contentHash } = meta;
+    const normalised = buildNormalisedDocument(loaded.blocks);
+    if (normalised.text.trim().length === 0) return fail(summary, source, 'no text found in the document');
+    const drafts = chunkDocument(normalised, {
+      targetTokens,
+      maxTokens,
+      overlapTokens: options.overlapTokens,
+      countTokens: (t) => embedder.countTokens(t),
+    });
+    const chunks: ChunkInput[] = drafts.map((c) => {
+      const text = embedText(loaded.title, c);
+      return { ...c, chunkHash: createHash('sha256').update(text).digest('hex'), embedText: text } as ChunkInput & { embedText: string };
+    });
+    const vectors = repo.getVectors(embedder.id, chunks.map((c) => c.chunkHash));
+    const toEmbed = chunks.filter((c) => !vectors.has(c.chunkHash)) as (ChunkInput & { embedText: string })[];
+    const unique = [...new Map(toEmbed.map((c) => [c.chunkHash, c])).values()];
+    for (let i = 0; i < unique.length; i += batchSize) {
+      const batch = unique.slice(i, i + batchSize);
+      const out = await embedder.embed(batch.map((c) => c.embedText));
+      batch.forEach((c, j) => vectors.set(c.chunkHash, out[j]!));
+    }
+    summary.chunks.embedded += unique.length;
+    summary.chunks.reused += chunks.length - unique.length;
+    const docId = documentId(collection, source);
+    const { removedChunkIds } = repo.replaceDocument(
+      {
+        id: docId,
+        collection,
+        source,
+        root,
+        title: loaded.title,
+        format: loaded.format,
+        contentHash,
+        byteSize: meta.byteSize,
+        pageCount: loaded.pageCount,
+        effectiveDate: loaded.effectiveDate,
+        metadata: loaded.metadata,
+        text: normalised.text,
+        settingsKey,
+      },
+      chunks.map(({ ordinal, text, start, end, headingPath, pageStart, pageEnd, tokenCount, chunkHash }) => ({
+        ordinal, text, start, end, headingPath, pageStart, pageEnd, tokenCount, chunkHash,
+      })),
+      vectors,
+      embedder.id,
+    );
+    summary.chunks.removed += removedChunkIds.length;
+    progress.pages += loaded.pageCount ?? 0;
+    progress.chunks += chunks.length;
+    log.debug({ chunks: chunks.length, embedded: unique.length }, meta.existing ? 'document updated' : 'document added');
+    if (meta.existing) summary.documents.updated++;
+    else summary.documents.added++;
+    return meta.existing ? 'updated' : 'added';
+  };
+
+  const ingestPath: Ingestor['ingestPath'] = async (rootArg, opts) => {
+    const started = performance.now();
+    const summary = emptySummary();
+    const root = path.resolve(rootArg);
+    const info = await stat(root).catch(() => null);
+    if (!info) throw new SourceboundError('SB_ERR_INGEST_FAILED', [rootArg, 'no such file or folder']);
+    bindCollection(opts.collection, opts.allowEmbedderSwitch ?? opts.force ?? false);
+    const base = info.isDirectory() ? root : path.dirname(root);
+    const files = info.isDirectory() ? await walk(root) : [root];
+    if (info.isDirectory() && (opts.remember ?? true)) repo.addSourceRoot(opts.collection, root);
+    const progress: IngestProgress = { filesDone: 0, filesTotal: files.length, pages: 0, chunks: 0, current: '' };
+    const seen = new Set<string>();
+    for (const file of files) {
+      const source = path.relative(base, file).split(path.sep).join('/');
+      seen.add(source);
+      progress.current = source;
+      try {
+        await processFile(file, source, base, opts.collection, opts.force ?? false, summary, progress);
+      } catch (err) {
+        // One bad file never stops the batch; what was indexed before stays as it was.
+        fail(summary, source, (err as Error).message);
+        logger.error({ source, err }, 'ingest of one document failed');
+      }
+      progress.filesDone++;
+      deps.onProgress?.(progress);
+    }
+    if (opts.removeMissing && info.isDirectory()) {
+      for (const doc of repo.listDocuments(opts.collection)) {
+        if (doc.root === base && !seen.has(doc.source)) {
+          summary.chunks.removed += repo.deleteDocument(doc.id).length;
+          summary.documents.removed++;
+        }
+      }
+    }
+    for (const f of summary.failures) logger.warn({ source: f.source, reason: f.reason }, 'document not ingested');
+    indexes.sync(opts.collection);
+    summary.seconds = round((performance.now() - started) / 1000);
+    return summary;
+  };
+
+  return {
+    settingsKey,
+    ingestPath,
+    async ingestLoaded(collection, docs) {
+      const started = performance.now();
+      const summary = emptySummary();
+      bindCollection(collection, false);
+      const progress: IngestProgress = { filesDone: 0, filesTotal: 0, pages: 0, chunks: 0, current: '' };
+      for (const d of docs) {
+        progress.filesTotal++;
+        progress.current = d.source;
+        const existing = repo.getDocumentBySource(collection, d.source);
+        if (existing && existing.contentHash === d.contentHash && existing.settingsKey === settingsKey) {
+          summary.documents.unchanged++;
+        } else {
+          try {
+            await indexLoaded(d.loaded, { collection, source: d.source, root: null, contentHash: d.contentHash, byteSize: d.byteSize, existing: existing !== null }, summary, progress, logger);
+          } catch (err) {
+            fail(summary, d.source, (err as Error).message);
+          }
+        }
+        progress.filesDone++;
+        deps.onProgress?.(progress);
+      }
+      indexes.sync(collection);
+      summary.seconds = round((performance.now() - started) / 1000);
+      return summary;
+    },
+    async reindex(opts) {
+      const started = performance.now();
+      const total = emptySummary();
+      for (const { collection, root } of repo.listSourceRoots(opts.collection)) {
+        const exists = await stat(root).catch(() => null);
+        if (!exists) {
+          logger.warn({ collection, root }, 'source folder is missing; its documents are kept until it returns or is removed');
+          continue;
+        }
+        const s = await ingestPath(root, { collection, removeMissing: true, force: opts.full ?? false, remember: false, allowEmbedderSwitch: true });
+        for (const k of Object.keys(total.documents) as (keyof IngestSummary['documents'])[]) total.documents[k] += s.documents[k];
+        for (const k of Object.keys(total.chunks) as (keyof IngestSummary['chunks'])[]) total.chunks[k] += s.chunks[k];
+        total.failures.push(...s.failures);
+        total.skipped.push(...s.skipped);
+      }
+      total.seconds = round((performance.now() - started) / 1000);
+      return total;
+    },
+  };
+}
+
+/** Stable id of a document: the same collection and source always map to the same id. */
+export function documentId(collection: string, source: string): string {
+  return createHash('sha256').update(`${collection}\u0000${source}`).digest('hex').slice(0, 24);
+}
+
+function fail(summary: IngestSummary, source: string, reason: string): FileOutcome {
+  summary.documents.failed++;
+  summary.failures.push({ source, reason });
+  return 'failed';
+}
+
+async function walk(dir: string): Promise<string[]> {
+  const out: string[] = [];
+  const entries = await readdir(dir, { withFileTypes: true });
+  entries.sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
+  for (const e of entries) {
+    if (e.name.startsWith('.') || e.name === 'node_modules') continue;
+    const full = path.join(dir, e.name);
+    if (e.isDirectory()) out.push(...(await walk(full)));
+    else if (e.isFile() && CANDIDATE_EXTENSIONS.has(path.extname(e.name).toLowerCase())) out.push(full);
+  }
+  return out;
+}
+
+function round(x: number): number {
+  return Math.round(x * 1000) / 1000;
+}

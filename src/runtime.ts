@@ -1,0 +1,189 @@
+// Wires the stages together from a config: store → embedder → indexes → retriever → answerer → ingestor.
+// The CLI's commands and the server share it; tests build it on a temporary data folder.
+
+import { createAnswerer, createCompletionClient, type Answerer } from './answer/index.js';
+import type { AnswerRequest as HttpAnswerRequest, AppDeps } from './api/app.js';
+import type { Config } from './config/index.js';
+import { resolveEmbedder } from './embed/index.js';
+import type { Embedder } from './embed/types.js';
+import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
+import type { Logger } from './logger.js';
+import { createRetriever, DEFAULT_FIELD_WEIGHTS, type Retriever } from './retrieve/index.js';
+import {
+  createJobs,
+  createRepository,
+  createVectorIndexes,
+  openDatabase,
+  storePaths,
+  type Db,
+  type Jobs,
+  type Repository,
+  type VectorIndexes,
+} from './store/index.js';
+
+export interface Runtime {
+  config: Readonly<Config>;
+  logger: Logger;
+  db: Db;
+  repo: Repository;
+  jobs: Jobs;
+  embedder: Embedder;
+  embedderReason: string;
+  indexes: VectorIndexes;
+  retriever: Retriever;
+  answerer: Answerer;
+  extractiveAnswerer: Answerer;
+  ingestor: Ingestor;
+  close(): void;
+}
+
+export async function createRuntime(
+  config: Readonly<Config>,
+  logger: Logger,
+  opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder } = {},
+): Promise<Runtime> {
+  const paths = storePaths(config.dataDir);
+  const db = openDatabase(paths.database);
+  const repo = createRepository(db);
+  const jobs = createJobs(db);
+  let embedder: Embedder;
+  let embedderReason: string;
+  if (opts.embedder) {
+    embedder = opts.embedder;
+    embedderReason = 'embedder supplied by the caller';
+  } else {
+    const resolved = await resolveEmbedder({
+      modelId: config.embedding.model,
+      modelDir: config.embedding.modelDir,
+      quantized: config.embedding.quantized,
+      batchSize: config.embedding.batchSize,
+      hashingDimensions: config.embedding.hashingDimensions,
+      provider: config.embedding.provider,
+    });
+    embedder = resolved.embedder;
+    embedderReason = resolved.reason;
+  }
+  const indexes = createVectorIndexes({
+    repo,
+    dir: paths.indexDir,
+    embedderId: embedder.id,
+    dimensions: embedder.dimensions,
+    params: config.retrieval.hnsw,
+    logger: logger.child({ stage: 'index' }),
+  });
+  const retriever = createRetriever({
+    repo,
+    indexes,
+    embedder,
+    options: {
+      candidates: config.retrieval.candidates,
+      rrfK: config.retrieval.rrfK,
+      lexicalWeight: config.retrieval.lexicalWeight,
+      denseWeight: config.retrieval.denseWeight,
+      fieldWeights: DEFAULT_FIELD_WEIGHTS,
+    },
+  });
+  const answerOptions = {
+    k: config.retrieval.k,
+    contextBudgetTokens: config.answer.contextBudgetTokens,
+    minSupport: config.answer.minSupport,
+    minLexicalCoverage: config.answer.minLexicalCoverage,
+    minDenseScore: config.answer.minDenseScore,
+  };
+  const answerLog = logger.child({ stage: 'answer' });
+  const retrieve = (q: Parameters<Retriever['search']>[0]) => retriever.search(q);
+  const completion = config.completion.baseUrl
+    ? createCompletionClient({
+        baseUrl: config.completion.baseUrl,
+        model: config.completion.model,
+        ...(config.completion.apiKey ? { apiKey: config.completion.apiKey } : {}),
+        temperature: config.completion.temperature,
+        maxTokens: config.completion.maxTokens,
+        timeoutMs: config.completion.timeoutMs,
+        retries: config.completion.retries,
+      })
+    : undefined;
+  const answerer = createAnswerer({
+    retrieve,
+    embedder,
+    ...(completion ? { completion } : {}),
+    logger: answerLog,
+    options: answerOptions,
+  });
+  const extractiveAnswerer = completion
+    ? createAnswerer({ retrieve, embedder, logger: answerLog, options: answerOptions })
+    : answerer;
+  const ingestor = createIngestor({
+    repo,
+    indexes,
+    embedder,
+    options: {
+      targetTokens: config.chunking.targetTokens,
+      maxTokens: config.chunking.maxTokens,
+      overlapTokens: config.chunking.overlapTokens,
+      documentMaxBytes: config.limits.documentMaxBytes,
+    },
+    logger: logger.child({ stage: 'ingest' }),
+    batchSize: config.embedding.batchSize,
+    ...(opts.onProgress ? { onProgress: opts.onProgress } : {}),
+  });
+  return {
+    config,
+    logger,
+    db,
+    repo,
+    jobs,
+    embedder,
+    embedderReason,
+    indexes,
+    retriever,
+    answerer,
+    extractiveAnswerer,
+    ingestor,
+    close() {
+      indexes.close();
+      if (db.open) db.close();
+    },
+  };
+}
+
+/** Runs an ingest as a recorded job, so its outcome can be read back later. */
+export async function ingestAsJob(
+  rt: Runtime,
+  kind: 'ingest' | 'reindex',
+  collection: string | null,
+  payload: Record<string, unknown>,
+  run: () => Promise<IngestSummary>,
+): Promise<IngestSummary> {
+  const job = rt.jobs.create(kind, collection, payload);
+  rt.jobs.start(job.id);
+  try {
+    const summary = await run();
+    rt.jobs.succeed(job.id, summary);
+    return summary;
+  } catch (err) {
+    rt.jobs.fail(job.id, (err as Error).message);
+    throw err;
+  }
+}
+
+/** The HTTP layer's view of a runtime. */
+export function appDeps(rt: Runtime, isReady: () => boolean): AppDeps {
+  return {
+    logger: rt.logger,
+    isReady,
+    search: (req) => rt.retriever.search(req),
+    answer: (req: HttpAnswerRequest) => {
+      const answerer = req.style === 'extractive' ? rt.extractiveAnswerer : rt.answerer;
+      const { style: _style, ...rest } = req;
+      return answerer.answer(rest);
+    },
+    health: () => ({
+      embedder: { id: rt.embedder.id, semantic: rt.embedder.semantic, dimensions: rt.embedder.dimensions, note: rt.embedderReason },
+      completion: rt.config.completion.baseUrl ? 'configured' : 'none (extractive answers)',
+      ready: isReady(),
+    }),
+    collections: () =>
+      rt.repo.listCollections().map((c) => ({ name: c.name, documents: c.documents, chunks: c.chunks, embedderId: c.embedderId })),
+  };
+}

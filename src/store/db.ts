@@ -1,0 +1,35 @@
+import { mkdirSync } from 'node:fs';
+import path from 'node:path';
+import Database from 'better-sqlite3';
+import { MIGRATIONS } from './migrations.js';
+
+export type Db = Database.Database;
+
+/** Opens (creating if needed) the SQLite store in WAL mode and brings its schema up to date. */
+export function openDatabase(file: string, opts: { readonly?: boolean } = {}): Db {
+  if (file !== ':memory:') mkdirSync(path.dirname(file), { recursive: true });
+  const db = new Database(file, { readonly: opts.readonly ?? false });
+  // WAL lets the server read while a CLI ingest writes; busy_timeout makes the second writer wait, not fail.
+  if (!opts.readonly) db.pragma('journal_mode = WAL');
+  db.pragma('busy_timeout = 10000');
+  db.pragma('foreign_keys = ON');
+  db.pragma('synchronous = NORMAL');
+  if (!opts.readonly) migrate(db);
+  return db;
+}
+
+export function schemaVersion(db: Db): number {
+  return db.pragma('user_version', { simple: true }) as number;
+}
+
+export function migrate(db: Db): number {
+  const current = schemaVersion(db);
+  for (let v = current; v < MIGRATIONS.length; v++) {
+    const sql = MIGRATIONS[v]!;
+    db.transaction(() => {
+      db.exec(sql);
+      db.pragma(`user_version = ${v + 1}`);
+    }).immediate();
+  }
+  return schemaVersion(db);
+}

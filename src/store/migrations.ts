@@ -1,0 +1,91 @@
+// Versioned schema. Each entry runs once, in order, inside a transaction; PRAGMA user_version
+// records how far a database has come. Never edit a shipped migration: add a new one.
+
+export const MIGRATIONS: readonly string[] = [
+  // 1: the initial schema
+  `
+  CREATE TABLE collections (
+    name TEXT PRIMARY KEY,
+    embedder_id TEXT,
+    dimensions INTEGER,
+    -- bumped on every change to the collection's chunks; index files record the generation they hold
+    generation INTEGER NOT NULL DEFAULT 0,
+    created_at TEXT NOT NULL
+  );
+
+  -- folders a collection was ingested from, walked again by \`sourcebound reindex\`
+  CREATE TABLE sources (
+    collection TEXT NOT NULL REFERENCES collections(name) ON DELETE CASCADE,
+    root TEXT NOT NULL,
+    added_at TEXT NOT NULL,
+    PRIMARY KEY (collection, root)
+  );
+
+  CREATE TABLE documents (
+    id TEXT PRIMARY KEY,
+    collection TEXT NOT NULL REFERENCES collections(name) ON DELETE CASCADE,
+    source TEXT NOT NULL,
+    root TEXT,
+    title TEXT NOT NULL,
+    format TEXT NOT NULL,
+    content_hash TEXT NOT NULL,
+    byte_size INTEGER NOT NULL,
+    page_count INTEGER,
+    effective_date TEXT,
+    metadata TEXT NOT NULL DEFAULT '{}',
+    text TEXT NOT NULL,
+    -- embedder id + chunker settings the chunks were made with; a change re-processes the document
+    settings_key TEXT NOT NULL,
+    created_at TEXT NOT NULL,
+    updated_at TEXT NOT NULL,
+    UNIQUE (collection, source)
+  );
+
+  -- AUTOINCREMENT: chunk ids are HNSW labels, so an id is never handed out twice
+  CREATE TABLE chunks (
+    id INTEGER PRIMARY KEY AUTOINCREMENT,
+    document_id TEXT NOT NULL REFERENCES documents(id) ON DELETE CASCADE,
+    ordinal INTEGER NOT NULL,
+    text TEXT NOT NULL,
+    start_offset INTEGER NOT NULL,
+    end_offset INTEGER NOT NULL,
+    heading_path TEXT NOT NULL DEFAULT '[]',
+    page_start INTEGER,
+    page_end INTEGER,
+    token_count INTEGER NOT NULL,
+    -- sha256 of the text that was embedded (heading path + chunk text): the vector cache key
+    chunk_hash TEXT NOT NULL
+  );
+  CREATE INDEX chunks_by_document ON chunks(document_id, ordinal);
+
+  -- BM25 over three fields; rowid = chunks.id. Contentless: the text lives in chunks.
+  CREATE VIRTUAL TABLE chunks_fts USING fts5(
+    title, heading, body,
+    content='', contentless_delete=1,
+    tokenize='porter unicode61 remove_diacritics 2'
+  );
+
+  CREATE TABLE vectors (
+    model_id TEXT NOT NULL,
+    chunk_hash TEXT NOT NULL,
+    dimensions INTEGER NOT NULL,
+    vector BLOB NOT NULL,
+    PRIMARY KEY (model_id, chunk_hash)
+  ) WITHOUT ROWID;
+
+  CREATE TABLE jobs (
+    id TEXT PRIMARY KEY,
+    kind TEXT NOT NULL,
+    collection TEXT,
+    state TEXT NOT NULL CHECK (state IN ('queued', 'running', 'succeeded', 'failed')),
+    attempts INTEGER NOT NULL DEFAULT 0,
+    payload TEXT NOT NULL DEFAULT '{}',
+    result TEXT,
+    error TEXT,
+    created_at TEXT NOT NULL,
+    started_at TEXT,
+    finished_at TEXT
+  );
+  CREATE INDEX jobs_by_state ON jobs(state, created_at);
+  `,
+];

@@ -1,0 +1,355 @@
+import type { Db } from './db.js';
+
+export interface CollectionRow {
+  name: string;
+  embedderId: string | null;
+  dimensions: number | null;
+  generation: number;
+  documents: number;
+  chunks: number;
+}
+
+export interface DocumentRecord {
+  id: string;
+  collection: string;
+  source: string;
+  root: string | null;
+  title: string;
+  format: string;
+  contentHash: string;
+  byteSize: number;
+  pageCount: number | null;
+  effectiveDate: string | null;
+  metadata: Record<string, string>;
+  settingsKey: string;
+  createdAt: string;
+  updatedAt: string;
+}
+
+export interface ChunkInput {
+  ordinal: number;
+  text: string;
+  start: number;
+  end: number;
+  headingPath: string[];
+  pageStart: number | null;
+  pageEnd: number | null;
+  tokenCount: number;
+  chunkHash: string;
+}
+
+export interface ChunkRecord extends ChunkInput {
+  id: number;
+  documentId: string;
+}
+
+/** A chunk joined with its document: what retrieval hands on. */
+export interface ChunkView {
+  chunkId: number;
+  documentId: string;
+  source: string;
+  title: string;
+  text: string;
+  start: number;
+  end: number;
+  headingPath: string[];
+  pageStart: number | null;
+  pageEnd: number | null;
+  effectiveDate: string | null;
+  chunkHash: string;
+}
+
+export interface NewDocument {
+  id: string;
+  collection: string;
+  source: string;
+  root: string | null;
+  title: string;
+  format: string;
+  contentHash: string;
+  byteSize: number;
+  pageCount: number | null;
+  effectiveDate: string | null;
+  metadata: Record<string, string>;
+  text: string;
+  settingsKey: string;
+}
+
+export interface FtsRow {
+  chunkId: number;
+  score: number;
+}
+
+export interface Repository {
+  readonly db: Db;
+  ensureCollection(name: string): void;
+  getCollection(name: string): CollectionRow | null;
+  listCollections(): CollectionRow[];
+  setCollectionEmbedder(name: string, embedderId: string, dimensions: number): void;
+  bumpGeneration(name: string): number;
+  addSourceRoot(collection: string, root: string): void;
+  listSourceRoots(collection?: string): { collection: string; root: string }[];
+  getDocumentBySource(collection: string, source: string): DocumentRecord | null;
+  getDocument(id: string): DocumentRecord | null;
+  getDocumentText(id: string): string | null;
+  listDocuments(collection: string): DocumentRecord[];
+  countDocuments(collection?: string): number;
+  /** Replaces a document and all of its chunks in one transaction. Returns the removed chunk ids. */
+  replaceDocument(doc: NewDocument, chunks: ChunkInput[], vectors: Map<string, Float32Array>, modelId: string): {
+    removedChunkIds: number[];
+    chunkIds: number[];
+  };
+  deleteDocument(id: string): number[];
+  chunksOfCollection(collection: string): { id: number; chunkHash: string }[];
+  chunkViews(ids: readonly number[]): Map<number, ChunkView>;
+  getVectors(modelId: string, hashes: readonly string[]): Map<string, Float32Array>;
+  searchFts(collection: string, match: string, limit: number, weights: FtsWeights): FtsRow[];
+  transaction<T>(fn: () => T): T;
+}
+
+export interface FtsWeights {
+  title: number;
+  heading: number;
+  body: number;
+}
+
+const now = (): string => new Date().toISOString();
+
+export function vectorToBlob(v: Float32Array): Buffer {
+  return Buffer.from(v.buffer, v.byteOffset, v.byteLength);
+}
+
+export function blobToVector(b: Buffer): Float32Array {
+  // Copy: the Buffer may share (and be unaligned within) a larger allocation.
+  const copy = new Uint8Array(b.byteLength);
+  copy.set(b);
+  return new Float32Array(copy.buffer);
+}
+
+export function createRepository(db: Db): Repository {
+  const st = {
+    ensureCollection: db.prepare(
+      'INSERT INTO collections (name, created_at) VALUES (?, ?) ON CONFLICT(name) DO NOTHING',
+    ),
+    getCollection: db.prepare(`
+      SELECT c.name, c.embedder_id AS embedderId, c.dimensions, c.generation,
+        (SELECT count(*) FROM documents d WHERE d.collection = c.name) AS documents,
+        (SELECT count(*) FROM chunks k JOIN documents d ON d.id = k.document_id WHERE d.collection = c.name) AS chunks
+      FROM collections c WHERE c.name = ?`),
+    listCollections: db.prepare('SELECT name FROM collections ORDER BY name'),
+    setEmbedder: db.prepare('UPDATE collections SET embedder_id = ?, dimensions = ? WHERE name = ?'),
+    bump: db.prepare('UPDATE collections SET generation = generation + 1 WHERE name = ? RETURNING generation'),
+    addSource: db.prepare(
+      'INSERT INTO sources (collection, root, added_at) VALUES (?, ?, ?) ON CONFLICT DO NOTHING',
+    ),
+    listSources: db.prepare('SELECT collection, root FROM sources ORDER BY collection, root'),
+    listSourcesOf: db.prepare('SELECT collection, root FROM sources WHERE collection = ? ORDER BY root'),
+    docBySource: db.prepare('SELECT * FROM documents WHERE collection = ? AND source = ?'),
+    docById: db.prepare('SELECT * FROM documents WHERE id = ?'),
+    docText: db.prepare('SELECT text FROM documents WHERE id = ?'),
+    docsOf: db.prepare('SELECT * FROM documents WHERE collection = ? ORDER BY source'),
+    countDocs: db.prepare('SELECT count(*) AS n FROM documents'),
+    countDocsOf: db.prepare('SELECT count(*) AS n FROM documents WHERE collection = ?'),
+    chunkIdsOfDoc: db.prepare('SELECT id FROM chunks WHERE document_id = ?'),
+    deleteFts: db.prepare('DELETE FROM chunks_fts WHERE rowid = ?'),
+    deleteChunksOfDoc: db.prepare('DELETE FROM chunks WHERE document_id = ?'),
+    deleteDoc: db.prepare('DELETE FROM documents WHERE id = ?'),
+    upsertDoc: db.prepare(`
+      INSERT INTO documents (id, collection, source, root, title, format, content_hash, byte_size, page_count,
+        effective_date, metadata, text, settings_key, created_at, updated_at)
+      VALUES (@id, @collection, @source, @root, @title, @format, @contentHash, @byteSize, @pageCount,
+        @effectiveDate, @metadata, @text, @settingsKey, @now, @now)
+      ON CONFLICT(id) DO UPDATE SET source = excluded.source, root = excluded.root, title = excluded.title,
+        format = excluded.format, content_hash = excluded.content_hash, byte_size = excluded.byte_size,
+        page_count = excluded.page_count, effective_date = excluded.effective_date, metadata = excluded.metadata,
+        text = excluded.text, settings_key = excluded.settings_key, updated_at = excluded.updated_at`),
+    insertChunk: db.prepare(`
+      INSERT INTO chunks (document_id, ordinal, text, start_offset, end_offset, heading_path, page_start, page_end,
+        token_count, chunk_hash)
+      VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`),
+    insertFts: db.prepare('INSERT INTO chunks_fts (rowid, title, heading, body) VALUES (?, ?, ?, ?)'),
+    insertVector: db.prepare(
+      'INSERT INTO vectors (model_id, chunk_hash, dimensions, vector) VALUES (?, ?, ?, ?) ON CONFLICT DO NOTHING',
+    ),
+    chunksOfCollection: db.prepare(`
+      SELECT k.id, k.chunk_hash AS chunkHash FROM chunks k JOIN documents d ON d.id = k.document_id
+      WHERE d.collection = ? ORDER BY k.id`),
+    getVector: db.prepare('SELECT vector FROM vectors WHERE model_id = ? AND chunk_hash = ?'),
+  };
+
+  const toDoc = (r: Record<string, unknown>): DocumentRecord => ({
+    id: r.id as string,
+    collection: r.collection as string,
+    source: r.source as string,
+    root: (r.root as string | null) ?? null,
+    title: r.title as string,
+    format: r.format as string,
+    contentHash: r.content_hash as string,
+    byteSize: r.byte_size as number,
+    pageCount: (r.page_count as number | null) ?? null,
+    effectiveDate: (r.effective_date as string | null) ?? null,
+    metadata: JSON.parse((r.metadata as string) || '{}') as Record<string, string>,
+    settingsKey: r.settings_key as string,
+    createdAt: r.created_at as string,
+    updatedAt: r.updated_at as string,
+  });
+
+  const removeChunksOf = (docId: string): number[] => {
+    const ids = (st.chunkIdsOfDoc.all(docId) as { id: number }[]).map((r) => r.id);
+    for (const id of ids) st.deleteFts.run(id);
+    st.deleteChunksOfDoc.run(docId);
+    return ids;
+  };
+
+  const repo: Repository = {
+    db,
+    ensureCollection(name) {
+      st.ensureCollection.run(name, now());
+    },
+    getCollection(name) {
+      const r = st.getCollection.get(name) as CollectionRow | undefined;
+      return r ?? null;
+    },
+    listCollections() {
+      return (st.listCollections.all() as { name: string }[]).map((r) => repo.getCollection(r.name)!);
+    },
+    setCollectionEmbedder(name, embedderId, dimensions) {
+      st.setEmbedder.run(embedderId, dimensions, name);
+    },
+    bumpGeneration(name) {
+      const r = st.bump.get(name) as { generation: number } | undefined;
+      return r?.generation ?? 0;
+    },
+    addSourceRoot(collection, root) {
+      st.addSource.run(collection, root, now());
+    },
+    listSourceRoots(collection) {
+      return (collection ? st.listSourcesOf.all(collection) : st.listSources.all()) as {
+        collection: string;
+        root: string;
+      }[];
+    },
+    getDocumentBySource(collection, source) {
+      const r = st.docBySource.get(collection, source) as Record<string, unknown> | undefined;
+      return r ? toDoc(r) : null;
+    },
+    getDocument(id) {
+      const r = st.docById.get(id) as Record<string, unknown> | undefined;
+      return r ? toDoc(r) : null;
+    },
+    getDocumentText(id) {
+      const r = st.docText.get(id) as { text: string } | undefined;
+      return r?.text ?? null;
+    },
+    listDocuments(collection) {
+      return (st.docsOf.all(collection) as Record<string, unknown>[]).map(toDoc);
+    },
+    countDocuments(collection) {
+      const r = (collection ? st.countDocsOf.get(collection) : st.countDocs.get()) as { n: number };
+      return r.n;
+    },
+    replaceDocument(doc, chunks, vectors, modelId) {
+      return db
+        .transaction(() => {
+          const removedChunkIds = removeChunksOf(doc.id);
+          st.upsertDoc.run({ ...doc, metadata: JSON.stringify(doc.metadata), now: now() });
+          const chunkIds: number[] = [];
+          const heading = (c: ChunkInput): string => c.headingPath.join(' > ');
+          for (const c of chunks) {
+            const info = st.insertChunk.run(
+              doc.id,
+              c.ordinal,
+              c.text,
+              c.start,
+              c.end,
+              JSON.stringify(c.headingPath),
+              c.pageStart,
+              c.pageEnd,
+              c.tokenCount,
+              c.chunkHash,
+            );
+            const id = Number(info.lastInsertRowid);
+            chunkIds.push(id);
+            st.insertFts.run(id, doc.title, heading(c), c.text);
+            const v = vectors.get(c.chunkHash);
+            if (v) st.insertVector.run(modelId, c.chunkHash, v.length, vectorToBlob(v));
+          }
+          repo.bumpGeneration(doc.collection);
+          return { removedChunkIds, chunkIds };
+        })
+        .immediate();
+    },
+    deleteDocument(id) {
+      return db
+        .transaction(() => {
+          const d = st.docById.get(id) as { collection: string } | undefined;
+          if (!d) return [];
+          const removed = removeChunksOf(id);
+          st.deleteDoc.run(id);
+          repo.bumpGeneration(d.collection);
+          return removed;
+        })
+        .immediate();
+    },
+    chunksOfCollection(collection) {
+      return st.chunksOfCollection.all(collection) as { id: number; chunkHash: string }[];
+    },
+    chunkViews(ids) {
+      const out = new Map<number, ChunkView>();
+      if (ids.length === 0) return out;
+      // Chunked IN lists stay under SQLite's bound-parameter limit.
+      for (let i = 0; i < ids.length; i += 500) {
+        const part = ids.slice(i, i + 500);
+        const rows = db
+          .prepare(
+            `SELECT k.id, k.document_id, k.text, k.start_offset, k.end_offset, k.heading_path, k.page_start, k.page_end, k.chunk_hash,
+               d.source, d.title, d.effective_date
+             FROM chunks k JOIN documents d ON d.id = k.document_id WHERE k.id IN (${part.map(() => '?').join(',')})`,
+          )
+          .all(...part) as Record<string, unknown>[];
+        for (const r of rows) {
+          out.set(r.id as number, {
+            chunkId: r.id as number,
+            documentId: r.document_id as string,
+            source: r.source as string,
+            title: r.title as string,
+            text: r.text as string,
+            start: r.start_offset as number,
+            end: r.end_offset as number,
+            headingPath: JSON.parse(r.heading_path as string) as string[],
+            pageStart: (r.page_start as number | null) ?? null,
+            pageEnd: (r.page_end as number | null) ?? null,
+            effectiveDate: (r.effective_date as string | null) ?? null,
+            chunkHash: r.chunk_hash as string,
+          });
+        }
+      }
+      return out;
+    },
+    getVectors(modelId, hashes) {
+      const out = new Map<string, Float32Array>();
+      for (const h of hashes) {
+        if (out.has(h)) continue;
+        const r = st.getVector.get(modelId, h) as { vector: Buffer } | undefined;
+        if (r) out.set(h, blobToVector(r.vector));
+      }
+      return out;
+    },
+    searchFts(collection, match, limit, w) {
+      // FTS5's bm25() returns "more negative is better"; we negate it so larger is better everywhere else.
+      const rows = db
+        .prepare(
+          `SELECT f.rowid AS chunkId, -bm25(chunks_fts, ?, ?, ?) AS score
+           FROM chunks_fts f JOIN chunks k ON k.id = f.rowid JOIN documents d ON d.id = k.document_id
+           WHERE chunks_fts MATCH ? AND d.collection = ?
+           ORDER BY bm25(chunks_fts, ?, ?, ?) LIMIT ?`,
+        )
+        .all(w.title, w.heading, w.body, match, collection, w.title, w.heading, w.body, limit) as FtsRow[];
+      return rows;
+    },
+    transaction(fn) {
+      return db.transaction(fn).immediate();
+    },
+  };
+  return repo;
+}

@@ -1,0 +1,113 @@
+// Plain data types that pipeline stages hand to each other. No stage imports another
+// stage's internals; they agree on these shapes instead.
+
+/** Formats the loaders understand. */
+export type DocumentFormat = 'pdf' | 'markdown' | 'html' | 'text';
+
+/** One structural unit of a loaded document, in reading order. */
+export interface Block {
+  kind: 'heading' | 'paragraph' | 'list' | 'table' | 'code';
+  /** Text of the block, already normalised (NFC, single spaces inside lines, no control chars). */
+  text: string;
+  /** Heading level 1..6 for headings. */
+  level?: number;
+  /** 1-based page number, for paged formats (PDF). */
+  page?: number;
+}
+
+/** What a loader returns for one file. */
+export interface LoadedDocument {
+  format: DocumentFormat;
+  /** Title from metadata, the first heading, or the file name. */
+  title: string;
+  blocks: Block[];
+  /** Number of pages for paged formats, else null. */
+  pageCount: number | null;
+  /** Effective date in ISO form (YYYY-MM-DD) when the document states one. */
+  effectiveDate: string | null;
+  /** Free-form metadata (front matter, PDF info). */
+  metadata: Record<string, string>;
+}
+
+/** A block placed in the document's normalised text. */
+export interface PlacedBlock extends Block {
+  /** Character offsets into NormalisedDocument.text: text.slice(start, end) === block.text */
+  start: number;
+  end: number;
+  /** Headings above this block, outermost first (a heading block's own path includes itself). */
+  headingPath: string[];
+}
+
+/** A document as one normalised string plus its placed blocks. Blocks are joined by "\n\n". */
+export interface NormalisedDocument {
+  text: string;
+  blocks: PlacedBlock[];
+}
+
+/** A chunk produced by the chunker, before it is stored. */
+export interface ChunkDraft {
+  ordinal: number;
+  /** Exactly normalised.text.slice(start, end). */
+  text: string;
+  start: number;
+  end: number;
+  headingPath: string[];
+  pageStart: number | null;
+  pageEnd: number | null;
+  /** Tokens of `text` in the embedder's tokenizer. */
+  tokenCount: number;
+}
+
+/** Counts tokens the way the active embedder's tokenizer does. */
+export type TokenCounter = (text: string) => number;
+
+/** A retrieval hit as returned by the retriever and /v1/search. */
+export interface SearchHit {
+  chunkId: number;
+  documentId: string;
+  source: string;
+  title: string;
+  page: number | null;
+  pageEnd: number | null;
+  section: string;
+  headingPath: string[];
+  text: string;
+  start: number;
+  end: number;
+  effectiveDate: string | null;
+  score: number;
+  /** Per-leg ranks (1-based) where the chunk appeared, for explanation and calibration. */
+  ranks: { lexical?: number; dense?: number };
+  /** Best cosine similarity from the dense leg, when it saw this chunk. */
+  denseScore?: number;
+}
+
+export type SearchMode = 'hybrid' | 'lexical' | 'dense';
+
+export interface Citation {
+  n: number;
+  documentId: string;
+  source: string;
+  title: string;
+  page: number | null;
+  section: string;
+  quote: string;
+  /** Character span of the quote in the document's normalised text. */
+  start: number;
+  end: number;
+  effectiveDate: string | null;
+}
+
+export type AnswerMode = 'generative' | 'extractive';
+
+export interface AnswerResult {
+  answer: string;
+  abstained: boolean;
+  mode: AnswerMode;
+  citations: Citation[];
+  confidence: number;
+  caution: string;
+  fallbackReason?: string;
+  question: string;
+  timings: Record<string, number>;
+}

@@ -1,0 +1,210 @@
+import { afterEach, describe, expect, it } from 'vitest';
+import { ABSTAIN_TEXT } from '../../src/answer/abstain.js';
+import { createAnswerer, standaloneQuestion, type AnswererDeps, type RetrieveRequest } from '../../src/answer/answerer.js';
+import { CAUTION } from '../../src/answer/caution.js';
+import { createCompletionClient } from '../../src/answer/completion.js';
+import type { CompletionClient } from '../../src/answer/types.js';
+import type { AnswerResult, SearchHit } from '../../src/types.js';
+import { DOCS, conceptEmbedder, countWords, wholeDoc } from './fixtures.js';
+import { okReply, startStub, type StubReply, type StubServer } from './stub-server.js';
+
+const options = { k: 8, contextBudgetTokens: 2000, minSupport: 0.5, minLexicalCoverage: 0.4, minDenseScore: 0.5 };
+const embedder = conceptEmbedder([], 1024);
+const docText = new Map(Object.values(DOCS).map((d) => [d.id, d.text]));
+
+function hitsFixture(denseScore = 0.3): SearchHit[] {
+  return [wholeDoc(DOCS.refund, { score: 0.9, denseScore }), wholeDoc(DOCS.access, { score: 0.6, denseScore: denseScore - 0.1 })];
+}
+
+function build(over: Partial<AnswererDeps> = {}, hits: SearchHit[] = hitsFixture()) {
+  const queries: RetrieveRequest[] = [];
+  let clock = 0;
+  const answerer = createAnswerer({
+    retrieve: async (q) => {
+      queries.push(q);
+      clock += 5;
+      return hits;
+    },
+    embedder,
+    countTokens: countWords,
+    now: () => clock++,
+    options,
+    ...over,
+  });
+  return { answerer, queries };
+}
+
+function fixedReply(reply: string | Error): CompletionClient {
+  return {
+    complete: async () => {
+      if (reply instanceof Error) throw reply;
+      return reply;
+    },
+  };
+}
+
+function expectQuotesVerbatim(r: AnswerResult): void {
+  for (const c of r.citations) expect(docText.get(c.documentId)?.slice(c.start, c.end)).toBe(c.quote);
+}
+
+let stub: StubServer | null = null;
+afterEach(async () => {
+  await stub?.close();
+  stub = null;
+});
+
+async function stubClient(replies: StubReply[]): Promise<CompletionClient> {
+  stub = await startStub(replies);
+  return createCompletionClient({
+    baseUrl: stub.baseUrl,
+    model: 'mvt-test-model',
+    temperature: 0,
+    maxTokens: 200,
+    timeoutMs: 2000,
+    retries: 1,
+    sleep: async () => undefined,
+  });
+}
+
+describe('createAnswerer without a completion endpoint', () => {
+  it('answers a direct question extractively with verbatim citations and the caution', async () => {
+    const { answerer, queries } = build();
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(r.abstained).toBe(false);
+    expect(r.mode).toBe('extractive');
+    expect(r.answer).toContain('within 28 days');
+    expect(r.answer).toContain('[1]');
+    expect(r.citations[0]).toMatchObject({ n: 1, documentId: 'doc-refund' });
+    expectQuotesVerbatim(r);
+    expect(r.caution).toBe(CAUTION);
+    expect(r.confidence).toBeGreaterThan(0);
+    expect(r.confidence).toBeLessThanOrEqual(1);
+    expect(r.fallbackReason).toBeUndefined();
+    expect(queries[0]).toEqual({ query: 'How long do I have to claim a delay refund?', collection: 'default', k: 8, mode: 'hybrid' });
+  });
+
+  it('abstains on a question the documents share no words with', async () => {
+    const { answerer } = build();
+    const r = await answerer.answer({ question: 'Is smoking permitted in the staff canteen?', collection: 'default' });
+    expect(r).toMatchObject({ abstained: true, answer: ABSTAIN_TEXT, citations: [], confidence: 0, caution: CAUTION });
+  });
+
+  it('abstains when retrieval finds nothing', async () => {
+    const { answerer } = build({}, []);
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(r).toMatchObject({ abstained: true, answer: ABSTAIN_TEXT, citations: [], caution: CAUTION });
+  });
+
+  it('passes k and mode through to retrieval', async () => {
+    const { answerer, queries } = build();
+    await answerer.answer({ question: 'umbrellas', collection: 'staff', k: 3, mode: 'lexical' });
+    expect(queries[0]).toMatchObject({ collection: 'staff', k: 3, mode: 'lexical' });
+  });
+
+  it('reports retrieval, answer and total timings from the injected clock', async () => {
+    const { answerer } = build();
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(Object.keys(r.timings).sort()).toEqual(['answerMs', 'retrieveMs', 'totalMs']);
+    expect(r.timings.retrieveMs).toBe(6);
+    expect(r.timings.totalMs).toBe((r.timings.retrieveMs ?? 0) + (r.timings.answerMs ?? 0));
+  });
+});
+
+describe('createAnswerer with a completion endpoint', () => {
+  it('falls back to an extractive answer with a reason when the endpoint keeps failing', async () => {
+    const completion = await stubClient([{ status: 500 }]);
+    const { answerer } = build({ completion });
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(stub?.seen).toHaveLength(2);
+    expect(r).toMatchObject({ abstained: false, mode: 'extractive', fallbackReason: 'completion_http_500', caution: CAUTION });
+    expect(r.answer).toContain('within 28 days');
+    expectQuotesVerbatim(r);
+  });
+
+  it('removes a citation marker that points at no source and renumbers the rest by first use', async () => {
+    const completion = await stubClient([
+      okReply('Umbrellas are kept for 7 days [2]. Claims for delay refunds must be made within 28 days of the journey [7].'),
+    ]);
+    const { answerer } = build({ completion });
+    const r = await answerer.answer({ question: 'How long are umbrellas kept?', collection: 'default' });
+    expect(r.abstained).toBe(false);
+    expect(r.mode).toBe('generative');
+    expect(r.answer).not.toContain('[7]');
+    expect(r.answer).toBe('Umbrellas are kept for 7 days [1]. Claims for delay refunds must be made within 28 days of the journey.');
+    expect(r.citations).toHaveLength(1);
+    expect(r.citations[0]).toMatchObject({ n: 1, documentId: 'doc-access', quote: 'Umbrellas are kept for 7 days only.' });
+    expectQuotesVerbatim(r);
+    const sent = stub?.seen[0]?.body as { messages: { role: string; content: string }[] };
+    expect(sent.messages[1]?.content).toContain('Question: How long are umbrellas kept?');
+  });
+
+  it('abstains when no sentence of the reply is supported by its sources', async () => {
+    const { answerer } = build({
+      completion: fixedReply('Passengers may claim a free annual pass from the mayor [1]. Tickets never expire.'),
+    });
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(r).toMatchObject({ abstained: true, mode: 'generative', answer: ABSTAIN_TEXT, citations: [], caution: CAUTION });
+  });
+
+  it('abstains when the model replies with the abstention sentence', async () => {
+    const { answerer } = build({ completion: fixedReply(ABSTAIN_TEXT) });
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(r).toMatchObject({ abstained: true, mode: 'generative', answer: ABSTAIN_TEXT, caution: CAUTION });
+  });
+
+  it('does not call the model when the evidence is already too weak', async () => {
+    let calls = 0;
+    const { answerer } = build({
+      completion: {
+        complete: async () => {
+          calls++;
+          return 'x';
+        },
+      },
+    });
+    const r = await answerer.answer({ question: 'Is smoking permitted in the staff canteen?', collection: 'default' });
+    expect(r.abstained).toBe(true);
+    expect(calls).toBe(0);
+  });
+
+  it('falls back with a generic reason when the client throws something unexpected', async () => {
+    const { answerer } = build({ completion: fixedReply(new Error('boom')) });
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(r).toMatchObject({ mode: 'extractive', fallbackReason: 'completion_failed', abstained: false });
+  });
+
+  it('puts the caution on every result, answered or abstained', async () => {
+    const results: AnswerResult[] = [];
+    for (const completion of [undefined, fixedReply('nonsense without support'), fixedReply(new Error('down'))]) {
+      const { answerer } = build(completion ? { completion } : {});
+      results.push(await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' }));
+      results.push(await answerer.answer({ question: 'Is smoking permitted in the staff canteen?', collection: 'default' }));
+    }
+    expect(results.some((r) => r.abstained)).toBe(true);
+    expect(results.some((r) => !r.abstained)).toBe(true);
+    for (const r of results) expect(r.caution).toBe(CAUTION);
+  });
+});
+
+describe('follow-up questions', () => {
+  it('carry the key words of the last user turn into retrieval and the result', async () => {
+    const { answerer, queries } = build();
+    const r = await answerer.answer({
+      question: 'And for trams?',
+      collection: 'default',
+      history: [
+        { role: 'user', content: 'How long do I have to claim a delay refund?' },
+        { role: 'assistant', content: 'Claims must be made within 28 days [1].' },
+      ],
+    });
+    expect(r.question).toBe('claim delay refund And for trams?');
+    expect(queries[0]?.query).toBe(r.question);
+  });
+
+  it('leave a question without history unchanged and skip words it already has', () => {
+    expect(standaloneQuestion('  Where is lost property?  ')).toBe('Where is lost property?');
+    expect(standaloneQuestion('What about refund claims for trams?', [{ role: 'user', content: 'Delay refund claims?' }])).toBe(
+      'Delay What about refund claims for trams?',
+    );
+  });
+});

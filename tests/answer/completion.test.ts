@@ -1,0 +1,162 @@
+import { afterEach, describe, expect, it } from 'vitest';
+import { CompletionError, createCompletionClient, parseRetryAfter, type CompletionClientOptions } from '../../src/answer/completion.js';
+import type { ChatMessage } from '../../src/answer/types.js';
+import { okReply, startStub, type StubReply, type StubServer } from './stub-server.js';
+
+const messages: ChatMessage[] = [
+  { role: 'system', content: 'Answer from the sources.' },
+  { role: 'user', content: 'How long do I have to claim?' },
+];
+
+let stub: StubServer | null = null;
+afterEach(async () => {
+  await stub?.close();
+  stub = null;
+});
+
+async function setup(replies: StubReply[], over: Partial<CompletionClientOptions> = {}) {
+  stub = await startStub(replies);
+  const delays: number[] = [];
+  const client = createCompletionClient({
+    baseUrl: stub.baseUrl,
+    model: 'mvt-test-model',
+    temperature: 0,
+    maxTokens: 300,
+    timeoutMs: 2000,
+    retries: 2,
+    sleep: async (ms) => {
+      delays.push(ms);
+    },
+    random: () => 0.5,
+    ...over,
+  });
+  return { client, delays, stub };
+}
+
+async function failure(p: Promise<unknown>): Promise<CompletionError> {
+  const err = await p.then(
+    () => null,
+    (e: unknown) => e,
+  );
+  expect(err).toBeInstanceOf(CompletionError);
+  return err as CompletionError;
+}
+
+describe('createCompletionClient', () => {
+  it('posts the chat-completions request and returns choices[0].message.content', async () => {
+    const { client, stub } = await setup([okReply('Claims take 28 days [1].')], { apiKey: 'sk-test' });
+    await expect(client.complete(messages)).resolves.toBe('Claims take 28 days [1].');
+    expect(stub.seen).toHaveLength(1);
+    const req = stub.seen[0]!;
+    expect(req.method).toBe('POST');
+    expect(req.url).toBe('/v1/chat/completions');
+    expect(req.headers.authorization).toBe('Bearer sk-test');
+    expect(req.body).toEqual({ model: 'mvt-test-model', messages, temperature: 0, max_tokens: 300, stream: false });
+  });
+
+  it('sends no authorization header without an api key', async () => {
+    const { client, stub } = await setup([okReply('ok')]);
+    await client.complete(messages);
+    expect(stub.seen[0]?.headers.authorization).toBeUndefined();
+  });
+
+  it('retries after a 500 with full-jitter backoff and then succeeds', async () => {
+    const { client, delays, stub } = await setup([{ status: 500, body: { error: 'busy' } }, okReply('second time')]);
+    await expect(client.complete(messages)).resolves.toBe('second time');
+    expect(stub.seen).toHaveLength(2);
+    // random() = 0.5 of the first ceiling (500 ms).
+    expect(delays).toEqual([250]);
+  });
+
+  it('waits for the Retry-After seconds a 429 asks for', async () => {
+    const { client, delays, stub } = await setup([{ status: 429, headers: { 'retry-after': '3' } }, okReply('after wait')]);
+    await expect(client.complete(messages)).resolves.toBe('after wait');
+    expect(stub.seen).toHaveLength(2);
+    expect(delays).toEqual([3000]);
+  });
+
+  it('caps a very long Retry-After at the largest backoff', async () => {
+    const { client, delays } = await setup([{ status: 429, headers: { 'retry-after': '3600' } }, okReply('ok')], {
+      maxBackoffMs: 10_000,
+    });
+    await client.complete(messages);
+    expect(delays).toEqual([10_000]);
+  });
+
+  it('gives up after the configured retries with the last status as the reason', async () => {
+    const { client, delays, stub } = await setup([{ status: 503 }]);
+    const err = await failure(client.complete(messages));
+    expect(err.reason).toBe('http_503');
+    expect(err.attempts).toBe(3);
+    expect(stub.seen).toHaveLength(3);
+    // Ceilings 500 then 1000 ms, each halved by random() = 0.5.
+    expect(delays).toEqual([250, 500]);
+  });
+
+  it('does not retry a 400', async () => {
+    const { client, stub, delays } = await setup([{ status: 400, body: { error: 'bad' } }, okReply('never')]);
+    const err = await failure(client.complete(messages));
+    expect(err.reason).toBe('http_400');
+    expect(stub.seen).toHaveLength(1);
+    expect(delays).toEqual([]);
+  });
+
+  it('reports a timeout when the server is slower than the per-attempt limit', async () => {
+    const { client, stub } = await setup([{ delayMs: 1500, ...okReply('late') }], { timeoutMs: 100, retries: 1 });
+    const err = await failure(client.complete(messages));
+    expect(err.reason).toBe('timeout');
+    expect(stub.seen).toHaveLength(2);
+  });
+
+  it('reports a body that is not JSON as malformed, without retrying', async () => {
+    const { client, stub } = await setup([{ body: '<html>oops' }, okReply('never')]);
+    const err = await failure(client.complete(messages));
+    expect(err.reason).toBe('malformed');
+    expect(stub.seen).toHaveLength(1);
+  });
+
+  it('reports JSON without message content as malformed', async () => {
+    const { client } = await setup([{ body: { choices: [] } }]);
+    expect((await failure(client.complete(messages))).reason).toBe('malformed');
+  });
+
+  it('reports an unreachable endpoint as a network error after retrying', async () => {
+    const dead = await startStub([]);
+    const baseUrl = dead.baseUrl;
+    await dead.close();
+    const delays: number[] = [];
+    const client = createCompletionClient({
+      baseUrl,
+      model: 'm',
+      temperature: 0,
+      maxTokens: 10,
+      timeoutMs: 2000,
+      retries: 1,
+      sleep: async (ms) => {
+        delays.push(ms);
+      },
+      random: () => 0,
+    });
+    const err = await failure(client.complete(messages));
+    expect(err.reason).toBe('network');
+    expect(err.attempts).toBe(2);
+    expect(delays).toEqual([0]);
+  });
+
+  it('stops at once when the caller cancels', async () => {
+    const { client } = await setup([{ delayMs: 1500, ...okReply('late') }]);
+    const ctl = new AbortController();
+    setTimeout(() => ctl.abort(), 50);
+    const err = await failure(client.complete(messages, ctl.signal));
+    expect(err.reason).toBe('aborted');
+  });
+});
+
+describe('parseRetryAfter', () => {
+  it('reads delta-seconds and ignores other forms (RFC 9110 section 10.2.3)', () => {
+    expect(parseRetryAfter('2')).toBe(2000);
+    expect(parseRetryAfter(' 0 ')).toBe(0);
+    expect(parseRetryAfter('Wed, 21 Oct 2026 07:28:00 GMT')).toBeUndefined();
+    expect(parseRetryAfter(null)).toBeUndefined();
+  });
+});

@@ -1,0 +1,100 @@
+import { describe, expect, it } from 'vitest';
+import { buildContext } from '../../src/answer/context.js';
+import { extractAnswer } from '../../src/answer/extractive.js';
+import type { ContextSource } from '../../src/answer/types.js';
+import { DOCS, type DocFixture, conceptEmbedder, countWords, hitAt, hitBetween, wholeDoc } from './fixtures.js';
+import type { SearchHit } from '../../src/types.js';
+
+const docsById = new Map(Object.values(DOCS).map((d) => [d.id, d]));
+
+function context(hits: SearchHit[]): ContextSource[] {
+  return buildContext(hits, { budgetTokens: 10_000, countTokens: countWords });
+}
+
+function expectVerbatim(citations: { documentId: string; quote: string; start: number; end: number }[]): void {
+  expect(citations.length).toBeGreaterThan(0);
+  for (const c of citations) {
+    const doc = docsById.get(c.documentId) as DocFixture;
+    expect(doc.text.slice(c.start, c.end)).toBe(c.quote);
+  }
+}
+
+describe('extractAnswer', () => {
+  const sources = context([wholeDoc(DOCS.refund, { score: 0.9 }), wholeDoc(DOCS.access, { score: 0.4 })]);
+
+  it('quotes the sentence that answers a direct question, with [1] and a verbatim span', async () => {
+    const r = await extractAnswer('How long do I have to claim a delay refund?', sources, { maxSentences: 1 });
+    expect(r.citations[0]?.quote).toBe('Claims for delay refunds must be made within 28 days of the journey.');
+    expect(r.answer).toBe('Claims for delay refunds must be made within 28 days of the journey. [1]');
+    expectVerbatim(r.citations);
+    expect(r.support).toBeGreaterThan(0.6);
+  });
+
+  it('finds the answer to a paraphrased question through a rare shared word', async () => {
+    const r = await extractAnswer('What happens to an umbrella somebody leaves behind?', sources);
+    expect(r.citations.map((c) => c.quote)).toContain('Umbrellas are kept for 7 days only.');
+    expectVerbatim(r.citations);
+    // The only source cited is the accessibility document, so it is renumbered to 1.
+    expect(r.citations.every((c) => c.n === 1 && c.documentId === 'doc-access')).toBe(true);
+    expect(r.answer).toContain('[1]');
+  });
+
+  it('uses embedding similarity to answer a paraphrase with little word overlap', async () => {
+    const embedder = conceptEmbedder([
+      ['bike', 'bikes', 'bicycle', 'bicycles'],
+      ['take', 'bring', 'carried', 'carry'],
+      ['folding', 'folded', 'fold', 'foldable'],
+    ]);
+    const question = 'Can I bring a foldable bike?';
+    const withoutModel = await extractAnswer(question, sources, { maxSentences: 1 });
+    const withModel = await extractAnswer(question, sources, { maxSentences: 1, embedder });
+    expect(withModel.citations[0]?.quote).toBe('Folding bicycles may be carried on all services if folded.');
+    expect(withoutModel.citations[0]?.quote).not.toBe(withModel.citations[0]?.quote);
+    expect(withModel.cosine).toBeGreaterThan(0.5);
+    expectVerbatim(withModel.citations);
+  });
+
+  it('adds the sentence before one that starts with a pronoun, keeping the quote verbatim', async () => {
+    const r = await extractAnswer('Must dogs stay on a lead?', sources, { maxSentences: 1 });
+    expect(r.citations[0]?.quote).toBe(
+      'Guide dogs and assistance dogs travel free on all services. They must stay on a lead and off the seats.',
+    );
+    expectVerbatim(r.citations);
+  });
+
+  it('keeps several close sentences in document order, numbered by source in order of first use', async () => {
+    const ctx = context([wholeDoc(DOCS.refund, { score: 0.9 }), wholeDoc(DOCS.oldRefund, { score: 0.8 })]);
+    const r = await extractAnswer('Within how many days must delay refund claims be made?', ctx);
+    const quotes = r.citations.map((c) => c.quote);
+    expect(quotes).toContain('Claims for delay refunds must be made within 28 days of the journey.');
+    expect(quotes).toContain('Claims for delay refunds must be made within 14 days of the journey.');
+    expect(new Set(r.citations.map((c) => c.n))).toEqual(new Set([1, 2]));
+    expect(r.answer).toMatch(/\[1\].*\[2\]/);
+    expectVerbatim(r.citations);
+  });
+
+  it('never quotes headings or table separator rows', async () => {
+    const r = await extractAnswer('How to claim compensation', sources);
+    for (const c of r.citations) {
+      expect(c.quote).not.toBe('How to claim');
+      expect(c.quote).not.toMatch(/^\|[-|]+\|$/);
+    }
+  });
+
+  it('places a quote from the second of two merged chunks on that chunk page and section', async () => {
+    const first = hitBetween(DOCS.refund, 'Delay Refunds Policy', 'timetable.', { page: 1, pageEnd: 1, section: 'When you can claim' });
+    const second = hitBetween(DOCS.refund, 'How to claim', 'valid claim.', { page: 2, pageEnd: 2, section: 'How to claim' });
+    const ctx = context([first, second]);
+    expect(ctx).toHaveLength(1);
+    const r = await extractAnswer('When is compensation paid?', ctx, { maxSentences: 1 });
+    expect(r.citations[0]).toMatchObject({ page: 2, section: 'How to claim' });
+    expectVerbatim(r.citations);
+  });
+
+  it('returns an empty answer with no support when there is nothing to quote', async () => {
+    const r = await extractAnswer('Anything?', []);
+    expect(r).toEqual({ answer: '', citations: [], support: 0, cosine: null });
+    const junkOnly = context([hitAt(DOCS.refund, DOCS.refund.text.indexOf('|---|'), DOCS.refund.text.indexOf('|---|') + 7)]);
+    expect((await extractAnswer('fare', junkOnly)).answer).toBe('');
+  });
+});

@@ -1,0 +1,60 @@
+import { describe, expect, it } from 'vitest';
+import { buildContext } from '../../src/answer/context.js';
+import { checkGrounding, renumberMarkers } from '../../src/answer/grounding.js';
+import { DOCS, countWords, wholeDoc } from './fixtures.js';
+
+const sources = buildContext([wholeDoc(DOCS.refund, { score: 0.9 }), wholeDoc(DOCS.access, { score: 0.5 })], {
+  budgetTokens: 10_000,
+  countTokens: countWords,
+});
+
+describe('checkGrounding', () => {
+  it('removes markers that point at no source and reports them', () => {
+    const g = checkGrounding('Claims must be made within 28 days [7]. Umbrellas are kept for 7 days [2].', sources);
+    expect(g.answer).toBe('Claims must be made within 28 days. Umbrellas are kept for 7 days [2].');
+    expect(g.removed).toEqual([7]);
+    expect(g.cited).toEqual([2]);
+  });
+
+  it('keeps the valid part of a combined marker', () => {
+    const g = checkGrounding('Claims must be made within 28 days [1, 9].', sources);
+    expect(g.answer).toBe('Claims must be made within 28 days [1].');
+    expect(g.removed).toEqual([9]);
+  });
+
+  it('scores each sentence by the share of its content words found in the sources it cites', () => {
+    const g = checkGrounding(
+      'Claims must be made within 28 days of the journey [1]. Refunds are paid in gold coins by the mayor [1]. Dogs ride free.',
+      sources,
+    );
+    expect(g.claims).toHaveLength(3);
+    expect(g.claims[0]).toMatchObject({ sources: [1], supported: true, support: 1 });
+    expect(g.claims[1]?.supported).toBe(false);
+    expect(g.claims[1]?.support).toBeLessThan(0.5);
+    // Cites nothing, so it has no support even though the words appear in source 2.
+    expect(g.claims[2]).toMatchObject({ sources: [], supported: false, support: 0 });
+  });
+
+  it('gives a marker written after the full stop to the sentence before it', () => {
+    const g = checkGrounding('Umbrellas are kept for 7 days. [2] Claims must be made within 28 days. [1]', sources);
+    expect(g.claims.map((c) => c.sources)).toEqual([[2], [1]]);
+    expect(g.claims.every((c) => c.supported)).toBe(true);
+  });
+
+  it('checks the claim against the cited source only, not every source', () => {
+    const g = checkGrounding('Umbrellas are kept for 7 days [1].', sources);
+    expect(g.claims[0]?.supported).toBe(false);
+  });
+
+  it('uses the configured support threshold', () => {
+    const answer = 'Umbrellas are kept for seven days by the depot [2].';
+    expect(checkGrounding(answer, sources, { minSupport: 0.5 }).claims[0]?.supported).toBe(true);
+    expect(checkGrounding(answer, sources, { minSupport: 0.95 }).claims[0]?.supported).toBe(false);
+  });
+});
+
+describe('renumberMarkers', () => {
+  it('rewrites markers through the mapping and drops unmapped ones', () => {
+    expect(renumberMarkers('A [3]. B [1][3]. C [5].', new Map([[3, 1], [1, 2]]))).toBe('A [1]. B [2][1]. C.');
+  });
+});
