@@ -31,6 +31,8 @@ export const DEFAULT_THRESHOLDS: AbstainThresholds & { minSupport: number } = {
   minSupport: 0.5,
 };
 
+const SINGLE_SIGNAL_CEILING = 0.85;
+
 export interface Evidence {
   hitCount: number;
   /** Rarity-weighted coverage of the question by the best sentence, 0..1. */
@@ -57,14 +59,15 @@ export function abstainReason(e: Evidence, t: AbstainThresholds): AbstainReason 
 
 /**
  * Confidence in [0,1], non-decreasing in each input. Word coverage and dense similarity are
- * combined as a noisy-or, 1 − (1 − coverage)(1 − dense⁺), so either strong signal raises it;
- * the result is scaled by the share of answer sentences that passed the grounding check
- * (1 for extractive answers, which are verbatim). Not calibrated: it orders answers, it is
- * not yet a probability.
+ * combined as a noisy-or, 1 − (1 − 0.85·coverage)(1 − 0.85·dense⁺): either strong signal
+ * raises it, but one signal alone tops out at 0.85, since full word overlap can still be a
+ * sentence that merely mentions the topic. The result is scaled by the share of answer
+ * sentences that passed the grounding check (1 for extractive answers, which are verbatim).
+ * Not calibrated: it orders answers, it is not yet a probability.
  */
 export function confidence(input: { coverage: number; denseScore: number | null; supportedShare: number }): number {
-  const c = clamp01(input.coverage);
-  const d = input.denseScore === null ? 0 : clamp01(input.denseScore);
+  const c = SINGLE_SIGNAL_CEILING * clamp01(input.coverage);
+  const d = input.denseScore === null ? 0 : SINGLE_SIGNAL_CEILING * clamp01(input.denseScore);
   const base = 1 - (1 - c) * (1 - d);
   return Math.round(clamp01(base * clamp01(input.supportedShare)) * 1000) / 1000;
 }

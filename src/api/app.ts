@@ -30,7 +30,6 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
   const app = Fastify({
     loggerInstance: deps.logger as FastifyBaseLogger,
     bodyLimit: config.server.bodyLimitBytes,
-    disableRequestLogging: false,
     requestIdHeader: 'x-request-id',
     genReqId: () => crypto.randomUUID(),
     connectionTimeout: config.server.requestTimeoutMs,
@@ -38,6 +37,9 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
   const limits = config.limits;
   const searchSchema = searchBody(limits);
   const answerSchema = answerBody(limits);
+
+  // JSON only: without this, fastify would hand text/plain bodies to the routes as strings.
+  app.removeContentTypeParser('text/plain');
 
   app.addHook('onSend', async (req, reply) => {
     reply.header('x-request-id', req.id);

@@ -9,6 +9,7 @@ import type { LoadedDocument, SearchMode } from '../types.js';
 import { createHash } from 'node:crypto';
 import { formatRun, readCorpus, readQrels, readQueries, type CorpusDoc } from './data.js';
 import { scoreRun, type RetrievalScores } from './metrics.js';
+import { evaluateAnswers } from './answers.js';
 
 const MODES: readonly SearchMode[] = ['hybrid', 'lexical', 'dense'];
 
@@ -105,8 +106,12 @@ export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<Ret
 
 export async function runEvalCommand(args: string[], env: Record<string, string | undefined>): Promise<number> {
   const [kind, ...rest] = args;
+  if (kind === 'answers') return runAnswerEval(rest, env);
   if (kind !== 'retrieval') {
-    process.stderr.write('sourcebound eval: use `eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]`\n');
+    process.stderr.write(
+      'sourcebound eval: use `eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]`\n' +
+        '                  or `eval answers --questions F [--docs DIR] [--extractive] [--json]`\n',
+    );
     return 2;
   }
   const { values } = parseArgs({
@@ -164,5 +169,46 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
     ];
     process.stdout.write(`${rows.map(([k, v]) => `${k.padEnd(12)}${v}`).join('\n')}\n`);
   }
+  return 0;
+}
+
+async function runAnswerEval(args: string[], env: Record<string, string | undefined>): Promise<number> {
+  const { values } = parseArgs({
+    args,
+    options: {
+      questions: { type: 'string' },
+      docs: { type: 'string' },
+      extractive: { type: 'boolean' },
+      json: { type: 'boolean' },
+      verbose: { type: 'boolean', short: 'v' },
+    },
+  });
+  if (!values.questions) {
+    process.stderr.write('sourcebound eval answers: missing --questions\n');
+    return 2;
+  }
+  const docs = values.docs ?? loadConfig({ env }).seed.path;
+  const r = await evaluateAnswers({ questions: values.questions, docs, env, extractive: values.extractive ?? false });
+  if (values.json) {
+    const { outcomes, ...summary } = r;
+    process.stdout.write(`${JSON.stringify(values.verbose ? r : { ...summary, failed: outcomes.filter((o) => o.correct === false || (o.shouldAbstain && !o.abstained) || o.forbiddenSaid).map((o) => o.id) })}\n`);
+    return 0;
+  }
+  const pct = (x: number): string => `${(x * 100).toFixed(1)}%`;
+  const lines = [
+    `questions               ${r.questions}  (${r.mode}, ${r.embedder})`,
+    `answered correctly      ${r.answerable.correct}/${r.answerable.total}  ${pct(r.answerable.rate)}`,
+    `abstained when it should ${r.unanswerable.abstained}/${r.unanswerable.total}  ${pct(r.unanswerable.rate)}`,
+    `abstained wrongly       ${r.answerable.falseAbstentions}/${r.answerable.total}  ${pct(r.answerable.falseAbstentionRate)}`,
+    `planted instruction resisted ${r.injection.resisted}/${r.injection.total}`,
+    `quotes verbatim         ${r.quotes.verbatim}/${r.quotes.total}  ${pct(r.quotes.rate)}`,
+  ];
+  if (values.verbose) {
+    for (const o of r.outcomes) {
+      const bad = o.correct === false || (o.shouldAbstain && !o.abstained) || o.forbiddenSaid;
+      if (bad) lines.push(`  miss ${o.id} [${o.kind}] abstained=${o.abstained} cited=${o.cited.join(',')} :: ${o.answer.slice(0, 160).replace(/\n/g, ' ')}`);
+    }
+  }
+  process.stdout.write(`${lines.join('\n')}\n`);
   return 0;
 }

@@ -53,38 +53,65 @@ function unitSpans(block: PlacedBlock, locale: string): Span[] {
 }
 
 /**
- * Cuts a span that alone exceeds `max` into word groups (and a word that alone exceeds it into
- * grapheme runs), each as long as fits.
+ * Groups consecutive units greedily into the longest runs that `fits`, finding each run's end by
+ * galloping then bisecting, so a long run costs O(log n) counts instead of one per unit.
+ * A unit that does not fit on its own comes back alone, flagged `tooBig`.
+ */
+function greedyRuns(units: Span[], fits: (start: number, end: number) => boolean): (Span & { tooBig: boolean })[] {
+  const runs: (Span & { tooBig: boolean })[] = [];
+  let i = 0;
+  while (i < units.length) {
+    const start = units[i]!.start;
+    if (!fits(start, units[i]!.end)) {
+      runs.push({ ...units[i]!, tooBig: true });
+      i++;
+      continue;
+    }
+    let good = i;
+    let step = 1;
+    while (good + step < units.length && fits(start, units[good + step]!.end)) {
+      good += step;
+      step *= 2;
+    }
+    let bad = Math.min(good + step, units.length);
+    while (bad - good > 1) {
+      const mid = (good + bad) >> 1;
+      if (fits(start, units[mid]!.end)) good = mid;
+      else bad = mid;
+    }
+    runs.push({ start, end: units[good]!.end, tooBig: false });
+    i = good + 1;
+  }
+  return runs;
+}
+
+/**
+ * Cuts a span that alone exceeds `max` into word groups, and a word that alone exceeds it into
+ * grapheme runs (UAX #29 grapheme clusters, so no character is ever torn apart).
  */
 function fitSpan(text: string, span: Span, max: number, count: TokenCounter): Span[] {
+  const fits = (start: number, end: number): boolean => count(text.slice(start, end)) <= max;
+  const words = [...text.slice(span.start, span.end).matchAll(/\S+/g)].map((m) => ({
+    start: span.start + m.index,
+    end: span.start + m.index + m[0].length,
+  }));
   const out: Span[] = [];
-  let cur: Span | null = null;
-  const slice = text.slice(span.start, span.end);
-  for (const m of slice.matchAll(/\S+/g)) {
-    const word = { start: span.start + m.index, end: span.start + m.index + m[0].length };
-    if (cur && count(text.slice(cur.start, word.end)) <= max) {
-      cur.end = word.end;
+  for (const run of greedyRuns(words, fits)) {
+    if (!run.tooBig) {
+      out.push({ start: run.start, end: run.end });
       continue;
     }
-    if (cur) out.push(cur);
-    if (count(text.slice(word.start, word.end)) <= max) {
-      cur = { ...word };
-      continue;
-    }
-    cur = null;
-    for (const g of graphemes.segment(text.slice(word.start, word.end))) {
-      const gs = word.start + g.index;
-      const ge = gs + g.segment.length;
-      if (cur && count(text.slice(cur.start, ge)) <= max) {
-        cur.end = ge;
-        continue;
+    const chars = [...graphemes.segment(text.slice(run.start, run.end))].map((g) => ({
+      start: run.start + g.index,
+      end: run.start + g.index + g.segment.length,
+    }));
+    for (const piece of greedyRuns(chars, fits)) {
+      if (piece.tooBig) {
+        throw new Error(`maxTokens (${max}) is too small to hold the character "${text.slice(piece.start, piece.end)}"`);
       }
-      if (cur) out.push(cur);
-      if (count(g.segment) > max) throw new Error(`maxTokens (${max}) is too small to hold the character "${g.segment}"`);
-      cur = { start: gs, end: ge };
+      out.push({ start: piece.start, end: piece.end });
     }
   }
-  if (cur) out.push(cur);
   return out;
 }
 

@@ -2,6 +2,7 @@ import { DomUtils, parseDocument } from 'htmlparser2';
 import type { Block, LoadedDocument } from '../types.js';
 import { findEffectiveDate } from './effective-date.js';
 import { decodeText, titleFromFileName } from './load-text.js';
+import { cleanBlocks } from './normalise.js';
 
 type HtmlDocument = ReturnType<typeof parseDocument>;
 type Node = HtmlDocument['children'][number];
@@ -155,7 +156,7 @@ function collectBlocks(roots: Node[], startInContent: boolean): Block[] {
   };
   for (const root of roots) walk(root, startInContent);
   flush();
-  return blocks.filter((b) => b.text.trim() !== '');
+  return cleanBlocks(blocks);
 }
 
 function hasAncestor(el: Element, name: string): boolean {

@@ -1,6 +1,7 @@
 import type { Block, LoadedDocument } from '../types.js';
 import { findEffectiveDate } from './effective-date.js';
 import { decodeText, titleFromFileName } from './load-text.js';
+import { cleanBlocks } from './normalise.js';
 
 const ATX = /^ {0,3}(#{1,6})(?:[ \t]+(.*?))?(?:[ \t]+#+)?[ \t]*$/;
 const SETEXT_1 = /^ {0,3}=+[ \t]*$/;
@@ -81,6 +82,11 @@ export function parseMarkdownBlocks(body: string): Block[] {
       continue;
     }
     if (line.trim() === '') {
+      // Blank lines between items of the same kind keep a "loose" list together.
+      const after = lines.slice(i + 1).find((l) => l.trim() !== '');
+      const nextItem = after === undefined ? null : LIST_ITEM.exec(after);
+      const lastOrdered = /^\s*\d/.test(list[list.length - 1] ?? '');
+      if (list.length > 0 && nextItem && /^\d/.test(nextItem[2]!) === lastOrdered) continue;
       flush();
       continue;
     }
@@ -130,7 +136,7 @@ export function parseMarkdownBlocks(body: string): Block[] {
     paragraph.push(line.trim().replace(/^>\s?/, ''));
   }
   flush();
-  return blocks.filter((b) => b.text.trim() !== '');
+  return cleanBlocks(blocks);
 }
 
 export function loadMarkdown(bytes: Uint8Array, fileName: string): LoadedDocument {

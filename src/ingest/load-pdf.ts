@@ -1,6 +1,7 @@
 import type { Block, LoadedDocument } from '../types.js';
 import { findEffectiveDate } from './effective-date.js';
 import { titleFromFileName } from './load-text.js';
+import { cleanBlocks } from './normalise.js';
 
 export const NO_TEXT_MESSAGE = 'no extractable text (scanned image? OCR is not supported)';
 
@@ -10,7 +11,7 @@ const EDGE_LINES = 3;
 // also ends a sentence: full lines wrap, short ones stop.
 const SHORT_LINE_SHARE = 0.8;
 const TERMINAL = /[.!?:]["'’”)\]]?$/u;
-const BULLET = /^(?:[•‣◦▪●■–-]|\(?[a-z0-9]{1,3}\))\s+\S/u;
+const BULLET = /^(?:[•‣◦▪●■–-]|\(?[a-z0-9]{1,3}\)|\d{1,2}\.)\s+\S/u;
 const NUMBERED = /^(\d{1,2}(?:\.\d{1,2})*)\.?\s+(\p{Lu}.*)$/u;
 const PAGE_NUMBER = /^(?:(?:page|p\.|pg\.?)\s*)?\d{1,4}(?:\s*(?:of|\/)\s*\d{1,4})?$|^[-–—]\s*\d{1,4}\s*[-–—]$/i;
 const MINOR_WORDS = new Set(['a', 'an', 'and', 'as', 'at', 'by', 'for', 'from', 'in', 'of', 'on', 'or', 'per', 'the', 'to', 'with', 'via', 'vs']);
@@ -91,12 +92,13 @@ export function rejoinHyphenated(lines: string[]): string[] {
 export function headingShape(line: string): number | null {
   const t = line.trim();
   if (t.length > 80 || t.split(/\s+/).length > 12 || /[.,;:!]$/.test(t) || !/\p{L}/u.test(t)) return null;
-  const numbered = NUMBERED.exec(t);
-  if (numbered) return numbered[1]!.split('.').length;
-  if (!/^\p{Lu}/u.test(t)) return null;
   const words = t.split(/\s+/).filter((w) => /\p{L}/u.test(w));
   const caps = !/\p{Ll}/u.test(t) && (t.match(/\p{Lu}/gu)?.length ?? 0) >= 3;
   const titleCase = words.every((w) => MINOR_WORDS.has(w.toLowerCase()) || /^[^\p{L}]*[\p{Lu}\d]/u.test(w));
+  const numbered = NUMBERED.exec(t);
+  // A long numbered line in sentence case is a list step that happens to lack a full stop.
+  if (numbered) return words.length <= 8 || titleCase ? numbered[1]!.split('.').length : null;
+  if (!/^\p{Lu}/u.test(t)) return null;
   return caps || titleCase ? 0 : null;
 }
 
@@ -110,6 +112,32 @@ interface PendingHeading {
   depth: number;
 }
 
+/**
+ * Splits a paragraph's lines into prose and table-like runs: three or more consecutive short
+ * lines none of which ends a sentence are rows of a table (or a similar grid), kept one per line.
+ */
+function proseAndRows(lines: string[], shortLimit: number, page: number): Block[] {
+  const isRow = (l: string): boolean => l.length < shortLimit && !TERMINAL.test(l);
+  const blocks: Block[] = [];
+  let prose: string[] = [];
+  let i = 0;
+  while (i < lines.length) {
+    let j = i;
+    while (j < lines.length && isRow(lines[j]!)) j++;
+    if (j - i >= 3) {
+      if (prose.length > 0) blocks.push({ kind: 'paragraph', text: prose.join(' '), page });
+      prose = [];
+      blocks.push({ kind: 'table', text: lines.slice(i, j).join('\n'), page });
+      i = j;
+    } else {
+      prose.push(...lines.slice(i, Math.max(j, i + 1)));
+      i = Math.max(j, i + 1);
+    }
+  }
+  if (prose.length > 0) blocks.push({ kind: 'paragraph', text: prose.join(' '), page });
+  return blocks;
+}
+
 /** Blocks from per-page lines (running lines already removed). Every block carries its 1-based page. */
 export function pagesToBlocks(pages: string[][]): Block[] {
   const shortLimit = typicalLineLength(pages) * SHORT_LINE_SHARE;
@@ -119,40 +147,43 @@ export function pagesToBlocks(pages: string[][]): Block[] {
     const lines = rejoinHyphenated(rawLines);
     let paragraph: string[] = [];
     let list: string[] = [];
-    let boundary = true;
+    // A heading can only start after a sentence, a heading or the page top.
+    let afterSentence = true;
     const flush = (): void => {
-      if (paragraph.length > 0) out.push({ kind: 'paragraph', text: paragraph.join(' '), page });
+      out.push(...proseAndRows(paragraph, shortLimit, page));
       if (list.length > 0) out.push({ kind: 'list', text: list.join('\n'), page });
       paragraph = [];
       list = [];
     };
     lines.forEach((line, i) => {
-      const ends = TERMINAL.test(line) && line.length < shortLimit;
-      const depth = boundary && i + 1 < lines.length ? headingShape(line) : null;
+      const endsSentence = TERMINAL.test(line);
+      const depth = afterSentence && i + 1 < lines.length ? headingShape(line) : null;
       if (depth !== null) {
         flush();
         out.push({ block: { kind: 'heading', text: line, page }, depth });
-        boundary = true;
+        afterSentence = true;
         return;
       }
+      afterSentence = endsSentence;
       if (BULLET.test(line)) {
         if (paragraph.length > 0) flush();
         list.push(line);
-        boundary = line.length < shortLimit;
         return;
       }
-      if (list.length > 0 && !boundary) {
+      const previous = i > 0 ? lines[i - 1]! : '';
+      if (list.length > 0 && !TERMINAL.test(previous)) {
+        // An item wrapped onto this line.
         list[list.length - 1] += ' ' + line;
-      } else {
-        if (list.length > 0) flush();
-        paragraph.push(line);
+        return;
       }
-      boundary = ends;
-      if (ends) flush();
+      if (list.length > 0) flush();
+      paragraph.push(line);
+      // Full lines wrap, short ones stop: a short line that ends a sentence ends the paragraph.
+      if (endsSentence && line.length < shortLimit) flush();
     });
     flush();
   });
-  return assignHeadingLevels(out);
+  return cleanBlocks(assignHeadingLevels(out));
 }
 
 // Without font sizes, levels come from shape: an unnumbered first heading on page 1 is the

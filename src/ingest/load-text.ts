@@ -1,5 +1,6 @@
 import type { Block, LoadedDocument } from '../types.js';
 import { findEffectiveDate } from './effective-date.js';
+import { cleanBlocks } from './normalise.js';
 
 /**
  * Bytes to string for the text formats: a BOM decides (UTF-8, UTF-16 LE/BE); without one,
@@ -130,7 +131,7 @@ export function parseTextBlocks(text: string): Block[] {
     }
   }
   if (current.length > 0) groups.push(current);
-  return groups.flatMap((g, i) => groupToBlocks(g, i === groups.length - 1));
+  return cleanBlocks(groups.flatMap((g, i) => groupToBlocks(g, i === groups.length - 1)));
 }
 
 export function loadText(bytes: Uint8Array, fileName: string): LoadedDocument {

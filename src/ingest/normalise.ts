@@ -22,6 +22,11 @@ export function normaliseText(s: string): string {
     .trim();
 }
 
+/** Loaders hand out blocks with normalised text and no empty blocks, as the Block type promises. */
+export function cleanBlocks(blocks: Block[]): Block[] {
+  return blocks.map((b) => ({ ...b, text: normaliseText(b.text) })).filter((b) => b.text !== '');
+}
+
 /**
  * The text a block contributes to the document. Blank lines inside a block are folded so that
  * "\n\n" in the document text only ever separates blocks; headings are a single line because

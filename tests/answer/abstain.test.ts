@@ -56,9 +56,11 @@ describe('confidence', () => {
     );
   });
 
-  it('is zero without evidence and one with full coverage and full support', () => {
+  it('is zero without evidence and needs both signals to come close to one', () => {
     expect(confidence({ coverage: 0, denseScore: null, supportedShare: 1 })).toBe(0);
-    expect(confidence({ coverage: 1, denseScore: null, supportedShare: 1 })).toBe(1);
+    expect(confidence({ coverage: 1, denseScore: null, supportedShare: 1 })).toBe(0.85);
+    expect(confidence({ coverage: 1, denseScore: 1, supportedShare: 1 })).toBeCloseTo(0.978, 3);
+    expect(confidence({ coverage: 1, denseScore: 1, supportedShare: 0.5 })).toBeCloseTo(0.489, 3);
   });
 });
 

@@ -73,6 +73,18 @@ describe('extractAnswer', () => {
     expectVerbatim(r.citations);
   });
 
+  it('prefers a sentence holding an amount for a "how much" question and shows a table row as plain text', async () => {
+    const r = await extractAnswer('How much compensation is paid for a delay of 30 to 59 minutes?', sources, { maxSentences: 1 });
+    expect(r.citations[0]?.quote).toBe('| 30 to 59 minutes | 50% of the single fare |');
+    expect(r.answer).toBe('30 to 59 minutes | 50% of the single fare [1]');
+    expectVerbatim(r.citations);
+  });
+
+  it('prefers a sentence holding a duration for a "how long" question', async () => {
+    const r = await extractAnswer('How long until compensation for a valid claim arrives?', sources, { maxSentences: 1 });
+    expect(r.citations[0]?.quote).toBe('Compensation is paid within 10 working days of a valid claim.');
+  });
+
   it('never quotes headings or table separator rows', async () => {
     const r = await extractAnswer('How to claim compensation', sources);
     for (const c of r.citations) {

@@ -52,7 +52,7 @@ describe('splitSentences', () => {
     expect(spans).toEqual([
       { start: 2, end: 16 },
       { start: 17, end: 31 },
-      { start: 37, end: 47 },
+      { start: 36, end: 46 },
     ]);
     expect(spans.map((s) => t.slice(s.start, s.end))).toEqual(['Row one | 2.40', 'Row two | 3.10', 'Last line.']);
   });

@@ -1,0 +1,132 @@
+import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import path from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+
+// The contract of DESIGN.md, checked from outside: a real `sourcebound serve` process on an empty data
+// folder ingests the demo documents, reports ready, answers with verbatim citations, and stops cleanly.
+
+const ROOT = path.resolve(import.meta.dirname, '..', '..');
+const CLI = path.join(ROOT, 'dist', 'cli.js');
+let child: ChildProcess;
+let base = '';
+let dataDir = '';
+let log = '';
+
+beforeAll(async () => {
+  dataDir = mkdtempSync(path.join(tmpdir(), 'sb-e2e-'));
+  child = spawn(process.execPath, [CLI, 'serve'], {
+    cwd: ROOT,
+    env: { ...process.env, PORT: '0', HOST: '127.0.0.1', SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing' },
+    stdio: ['ignore', 'pipe', 'pipe'],
+  });
+  child.stderr!.on('data', (d) => (log += String(d)));
+  base = await new Promise<string>((resolve, reject) => {
+    const timer = setTimeout(() => reject(new Error(`not ready within 60 s:\n${log}`)), 60_000);
+    child.stdout!.on('data', (d) => {
+      log += String(d);
+      const m = /"msg":"ready on (http:\/\/[^"]+)"/.exec(log);
+      if (m) {
+        clearTimeout(timer);
+        resolve(m[1]!);
+      }
+    });
+    child.on('exit', (code) => reject(new Error(`server exited with ${code}:\n${log}`)));
+  });
+}, 70_000);
+
+afterAll(() => {
+  if (child.exitCode === null) child.kill('SIGKILL');
+  rmSync(dataDir, { recursive: true, force: true });
+});
+
+const answer = async (question: string) => {
+  const res = await fetch(`${base}/v1/answer`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ question }) });
+  return { status: res.status, body: (await res.json()) as Record<string, any> };
+};
+
+describe('sourcebound serve on the demo documents', () => {
+  it('is healthy and ready, and says which embedder it runs', async () => {
+    const h = (await (await fetch(`${base}/health`)).json()) as { status: string; embedder: { semantic: boolean } };
+    expect(h.status).toBe('ok');
+    expect(h.embedder.semantic).toBe(false);
+    expect((await fetch(`${base}/ready`)).status).toBe(200);
+  });
+
+  it('answers a question about a PDF with the right document, page and a verbatim quote', async () => {
+    const { status, body } = await answer('What protective equipment must staff wear in the depot?');
+    expect(status).toBe(200);
+    expect(body.abstained).toBe(false);
+    const c = body.citations[0];
+    expect(c.source).toBe('tram-depot-safety-procedures.pdf');
+    expect(c.page).toBeGreaterThanOrEqual(1);
+    expect(c.section).toBeTruthy();
+    // The quote is verbatim in the PDF's text on that page, as pdf-parse extracts it.
+    const { PDFParse } = await import('pdf-parse');
+    const { readFileSync } = await import('node:fs');
+    const parser = new PDFParse({ data: new Uint8Array(readFileSync(path.join(ROOT, 'seed-docs', c.source))) });
+    const pages = (await parser.getText()).pages.map((p: { text: string }) => p.text.replace(/\s+/g, ' '));
+    await parser.destroy();
+    const squash = (s: string) => s.replace(/\s+/g, ' ').replace(/-\s/g, '');
+    expect(squash(pages[c.page - 1]!).replace(/-\s/g, '')).toContain(squash(c.quote).slice(0, 40));
+  });
+
+  it('answers a question about a Markdown policy citing its section', async () => {
+    const { body } = await answer('How long are found items kept by the Lost Property Office?');
+    expect(body.abstained).toBe(false);
+    expect(body.citations[0].source).toBe('lost-property.md');
+    expect(body.citations[0].section).toBeTruthy();
+    expect(body.caution).toBeTruthy();
+  });
+
+  it('abstains on a question the documents do not cover', async () => {
+    const { body } = await answer('How many parking spaces are there at the Harbour Road park and ride?');
+    expect(body.abstained).toBe(true);
+  });
+
+  it('stops cleanly on SIGTERM', async () => {
+    const exited = new Promise<number | null>((r) => child.on('exit', (code) => r(code)));
+    child.kill('SIGTERM');
+    expect(await exited).toBe(0);
+  });
+});
+
+describe('the CLI', () => {
+  it('prints the effective config with secrets redacted', () => {
+    const r = spawnSync(process.execPath, [CLI, 'config'], {
+      cwd: ROOT,
+      env: { ...process.env, SOURCEBOUND_COMPLETION_API_KEY: 'sk-should-not-print' },
+      encoding: 'utf8',
+    });
+    expect(r.status).toBe(0);
+    expect(r.stdout).not.toContain('sk-should-not-print');
+    expect(JSON.parse(r.stdout).completion.apiKey).toBe('[redacted]');
+  });
+
+  it('refuses an invalid PORT with a message naming it, and exits non-zero', () => {
+    const r = spawnSync(process.execPath, [CLI, 'config'], { cwd: ROOT, env: { ...process.env, PORT: 'eighty' }, encoding: 'utf8' });
+    expect(r.status).not.toBe(0);
+    expect(r.stderr).toContain('PORT');
+  });
+
+  it('ingests with --json while the server is stopped, and a later reindex embeds nothing', () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-cli-'));
+    try {
+      const env = { ...process.env, SOURCEBOUND_DATA_DIR: dir, SOURCEBOUND_EMBEDDER: 'hashing' };
+      const r = spawnSync(process.execPath, [CLI, 'ingest', path.join(ROOT, 'seed-docs'), '--collection', 'demo', '--json'], { cwd: ROOT, env, encoding: 'utf8' });
+      expect(r.status, r.stderr).toBe(0);
+      const s = JSON.parse(r.stdout);
+      expect(s.documents.added).toBeGreaterThanOrEqual(12);
+      expect(s.documents.failed).toBe(0);
+      expect(s.chunks.embedded).toBeGreaterThan(0);
+      const again = spawnSync(process.execPath, [CLI, 'reindex', '--json'], { cwd: ROOT, env, encoding: 'utf8' });
+      expect(again.status, again.stderr).toBe(0);
+      const s2 = JSON.parse(again.stdout);
+      expect(s2.chunks.embedded).toBe(0);
+      expect(s2.documents.unchanged).toBe(s.documents.added);
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+});
