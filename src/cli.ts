@@ -5,7 +5,7 @@
 import { realpathSync } from 'node:fs';
 import { parseArgs } from 'node:util';
 import { buildApp } from './api/app.js';
-import { loadConfig, redactConfig, type Config } from './config/index.js';
+import { configReference, loadConfig, redactConfig, type Config } from './config/index.js';
 import { modelPath, modelPresent, pullModel } from './embed/index.js';
 import { SourceboundError } from './errors.js';
 import type { IngestProgress, IngestSummary } from './ingest/index.js';
@@ -25,7 +25,8 @@ Usage:
                                                  measure retrieval on a test collection (TREC qrels)
   sourcebound model pull [<id>]                  download the embedding model into the model folder
   sourcebound model status                       say which embedder the service would use
-  sourcebound config [--check]                   print the effective configuration (secrets redacted)
+  sourcebound config [--check] [--reference]     print the effective configuration (secrets redacted),
+                                                 validate it, or list every option
 
 Environment: PORT, HOST, SOURCEBOUND_DATA_DIR, SOURCEBOUND_CONFIG (a JSON file), SOURCEBOUND_LOG_LEVEL,
 SOURCEBOUND_EMBEDDER, SOURCEBOUND_MODEL_DIR, SOURCEBOUND_COMPLETION_URL, SOURCEBOUND_COMPLETION_MODEL,
@@ -270,7 +271,11 @@ async function model(args: string[], env: Record<string, string | undefined>): P
 }
 
 async function printConfig(args: string[], env: Record<string, string | undefined>): Promise<number> {
-  const { values } = parseArgs({ args, options: { check: { type: 'boolean' } } });
+  const { values } = parseArgs({ args, options: { check: { type: 'boolean' }, reference: { type: 'boolean' } } });
+  if (values.reference) {
+    process.stdout.write(`${configReference()}\n`);
+    return 0;
+  }
   const cfg = config(env);
   if (values.check) {
     process.stdout.write('configuration is valid\n');

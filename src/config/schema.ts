@@ -5,8 +5,8 @@ import { z } from 'zod';
 
 const server = z
   .object({
-    host: z.string().min(1).default('127.0.0.1').describe('Address to bind (env HOST)'),
-    port: z.number().int().min(0).max(65535).default(8080).describe('TCP port (env PORT)'),
+    host: z.string().min(1).default('127.0.0.1').describe('Address to bind'),
+    port: z.number().int().min(0).max(65535).default(8080).describe('TCP port'),
     bodyLimitBytes: z.number().int().positive().default(1_048_576).describe('Largest accepted JSON request body'),
     requestTimeoutMs: z.number().int().positive().default(30_000).describe('Deadline for one request'),
   })
@@ -27,9 +27,9 @@ const embedding = z
     provider: z
       .enum(['auto', 'transformers', 'hashing'])
       .default('auto')
-      .describe('auto: the sentence model when it is on disk, else the built-in hashing embedder (env SOURCEBOUND_EMBEDDER)'),
+      .describe('auto: the sentence model when it is on disk, else the built-in hashing embedder'),
     model: z.string().min(1).default('Xenova/all-MiniLM-L6-v2').describe('Sentence-embedding model id'),
-    modelDir: z.string().default('models').describe('Folder holding downloaded models (env SOURCEBOUND_MODEL_DIR)'),
+    modelDir: z.string().default('models').describe('Folder holding downloaded models'),
     quantized: z.boolean().default(true).describe('Use the quantized ONNX weights'),
     batchSize: z.number().int().min(1).max(512).default(32).describe('Texts per embedding call'),
     hashingDimensions: z.number().int().min(64).max(65536).default(4096).describe('Dimensions of the hashing embedder'),
@@ -80,8 +80,8 @@ const answer = z
 
 const completion = z
   .object({
-    baseUrl: z.string().url().nullable().default(null).describe('Chat-completions base URL; null answers extractively (env SOURCEBOUND_COMPLETION_URL)'),
-    model: z.string().default('default').describe('Model name sent to the endpoint (env SOURCEBOUND_COMPLETION_MODEL)'),
+    baseUrl: z.string().url().nullable().default(null).describe('Chat-completions base URL; null answers extractively'),
+    model: z.string().default('default').describe('Model name sent to the endpoint'),
     apiKey: z.string().nullable().default(null).describe('Secret; set it through env SOURCEBOUND_COMPLETION_API_KEY'),
     temperature: z.number().min(0).max(2).default(0).describe('Sampling temperature'),
     maxTokens: z.number().int().min(1).default(512).describe('Most tokens the endpoint may generate'),
@@ -103,11 +103,11 @@ const limits = z
 
 export const configSchema = z
   .object({
-    dataDir: z.string().min(1).default('data').describe('Folder for the database and index files (env SOURCEBOUND_DATA_DIR)'),
+    dataDir: z.string().min(1).default('data').describe('Folder for the database and index files'),
     logLevel: z
       .enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'])
       .default('info')
-      .describe('Log level (env SOURCEBOUND_LOG_LEVEL)'),
+      .describe('Log level'),
     server,
     seed,
     embedding,

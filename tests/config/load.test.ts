@@ -76,3 +76,16 @@ describe('configuration', () => {
     expect(Object.isFrozen(c) && Object.isFrozen(c.server)).toBe(true);
   });
 });
+
+describe('documentation of the options', () => {
+  it('lists every option of the schema in docs/configuration.md exactly as `config --reference` prints it', async () => {
+    const { configReference } = await import('../../src/config/index.js');
+    const doc = readFileSync(path.join(PACKAGE_ROOT, 'docs', 'configuration.md'), 'utf8');
+    expect(doc).toContain(configReference());
+  });
+
+  it('keeps the production example valid', () => {
+    const f = path.join(PACKAGE_ROOT, 'config', 'production.example.json');
+    expect(() => loadConfig({ env: { SOURCEBOUND_CONFIG: f } })).not.toThrow();
+  });
+});
