@@ -2,13 +2,17 @@
 // The one entry point: serve | ingest | reindex | eval | model | config.
 // Only this file reads process.env and argv, creates the logger, listens and handles signals.
 
-import { realpathSync } from 'node:fs';
+import { randomBytes } from 'node:crypto';
+import { existsSync, realpathSync } from 'node:fs';
+import path from 'node:path';
+import { authEnforced, checkAuthConfig, sha256Hex } from './api/auth.js';
+import { openDatabase, storePaths } from './store/index.js';
 import { parseArgs } from 'node:util';
 import { buildApp } from './api/app.js';
 import { configReference, loadConfig, redactConfig, type Config } from './config/index.js';
 import { modelPath, modelPresent, pullModel } from './embed/index.js';
 import { SourceboundError } from './errors.js';
-import type { IngestProgress, IngestSummary } from './ingest/index.js';
+import { formatProgress, formatSummary, summaryJson, type IngestProgress, type IngestSummary } from './ingest/index.js';
 import { createLogger, type Logger } from './logger.js';
 import { appDeps, createRuntime, ingestAsJob, type Runtime } from './runtime.js';
 import { runEvalCommand } from './eval/command.js';
@@ -25,6 +29,9 @@ Usage:
                                                  measure retrieval on a test collection (TREC qrels)
   sourcebound model pull [<id>]                  download the embedding model into the model folder
   sourcebound model status                       say which embedder the service would use
+  sourcebound key new [--id ID] [--scopes query,ingest,admin] [--collections C1,C2|*]
+                                                 make an API key and print its config entry
+  sourcebound backup <file>                      write a consistent copy of the database (safe while serving)
   sourcebound config [--check] [--reference]     print the effective configuration (secrets redacted),
                                                  validate it, or list every option
 
@@ -51,6 +58,10 @@ export async function main(argv: string[], env: Record<string, string | undefine
       return model(rest, env);
     case 'config':
       return printConfig(rest, env);
+    case 'key':
+      return keyCommand(rest);
+    case 'backup':
+      return backup(rest, env);
     default:
       process.stderr.write(`sourcebound: unknown command "${command}"\n\n${USAGE}\n`);
       return 2;
@@ -68,8 +79,13 @@ function cliLogger(cfg: Readonly<Config>, json: boolean): Logger {
 
 async function serve(env: Record<string, string | undefined>): Promise<number> {
   const cfg = config(env);
+  checkAuthConfig(cfg.auth, cfg.server.host);
   const logger = createLogger(cfg.logLevel);
   const rt = await createRuntime(cfg, logger);
+  logger.info(
+    { auth: authEnforced(cfg.auth, cfg.server.host) ? `required (${cfg.auth.keys.length} keys)` : 'off (loopback only)' },
+    'access control',
+  );
   const level = rt.embedder.semantic ? 'info' : 'warn';
   logger[level](
     { embedder: rt.embedder.id, semantic: rt.embedder.semantic, dimensions: rt.embedder.dimensions },
@@ -193,10 +209,8 @@ async function withRuntime(
   const started = performance.now();
   const onProgress = (p: IngestProgress): void => {
     if (!tty) return;
-    const secs = (performance.now() - started) / 1000;
-    const rate = secs > 0 ? (p.chunks / secs).toFixed(0) : '0';
-    const line = `files ${p.filesDone}/${p.filesTotal}  pages ${p.pages}  chunks ${p.chunks}  ${rate} chunks/s  ${p.current}`;
-    process.stderr.write(`\r\x1b[2K${line.slice(0, (process.stderr.columns ?? 100) - 1)}`);
+    const line = formatProgress(p, (performance.now() - started) / 1000, process.stderr.columns ?? 100);
+    process.stderr.write(`\r\x1b[2K${line}`);
   };
   const rt = await createRuntime(cfg, logger, { onProgress });
   if (!rt.embedder.semantic && !json) process.stderr.write(`note: ${rt.embedderReason}\n`);
@@ -226,18 +240,7 @@ function addSummary(total: IngestSummary, s: IngestSummary): void {
 }
 
 function report(s: IngestSummary, json: boolean): void {
-  if (json) {
-    process.stdout.write(`${JSON.stringify(s)}\n`);
-    return;
-  }
-  const d = s.documents;
-  const lines = [
-    `documents: ${d.added} added, ${d.updated} updated, ${d.unchanged} unchanged, ${d.removed} removed, ${d.failed} failed`,
-    `chunks:    ${s.chunks.embedded} embedded, ${s.chunks.reused} reused, ${s.chunks.removed} removed`,
-    `time:      ${s.seconds} s`,
-  ];
-  for (const f of s.failures) lines.push(`failed:    ${f.source}: ${f.reason}`);
-  process.stdout.write(`${lines.join('\n')}\n`);
+  process.stdout.write(`${json ? summaryJson(s) : formatSummary(s)}\n`);
 }
 
 async function model(args: string[], env: Record<string, string | undefined>): Promise<number> {
@@ -267,6 +270,59 @@ async function model(args: string[], env: Record<string, string | undefined>): P
   });
   if (process.stderr.isTTY) process.stderr.write('\r\x1b[2K');
   process.stdout.write(`model ${modelId} saved to ${result.path} (${result.files.length} files)\n`);
+  return 0;
+}
+
+async function keyCommand(args: string[]): Promise<number> {
+  const [sub, ...rest] = args;
+  if (sub !== 'new') {
+    process.stderr.write('sourcebound key: use `key new [--id ID] [--scopes query,ingest,admin] [--collections C1,C2|*]`\n');
+    return 2;
+  }
+  const { values } = parseArgs({
+    args: rest,
+    options: { id: { type: 'string' }, scopes: { type: 'string', default: 'query' }, collections: { type: 'string', default: '*' } },
+  });
+  const scopes = values.scopes!.split(',').map((s) => s.trim()).filter(Boolean);
+  const bad = scopes.filter((s) => !['query', 'ingest', 'admin'].includes(s));
+  if (bad.length > 0 || scopes.length === 0) {
+    process.stderr.write(`sourcebound key new: unknown scope ${bad.join(', ')}; use query, ingest, admin\n`);
+    return 2;
+  }
+  const key = `sb_${randomBytes(24).toString('base64url')}`;
+  const entry = {
+    id: values.id ?? `key-${randomBytes(3).toString('hex')}`,
+    sha256: sha256Hex(key),
+    scopes,
+    collections: values.collections!.split(',').map((s) => s.trim()).filter(Boolean),
+  };
+  process.stdout.write(
+    `API key (shown once; give it to the client, it is not stored anywhere):\n  ${key}\n\n` +
+      `Add this entry to auth.keys in your config file:\n${JSON.stringify(entry, null, 2)}\n`,
+  );
+  return 0;
+}
+
+async function backup(args: string[], env: Record<string, string | undefined>): Promise<number> {
+  const [dest] = args;
+  if (!dest) {
+    process.stderr.write('sourcebound backup: give the file to write, e.g. `sourcebound backup /backups/sourcebound-2026-12-02.db`\n');
+    return 2;
+  }
+  const cfg = config(env);
+  const { database } = storePaths(cfg.dataDir);
+  if (!existsSync(database)) {
+    process.stderr.write(`sourcebound backup: no database at ${database}\n`);
+    return 1;
+  }
+  const db = openDatabase(database, { readonly: true });
+  try {
+    // SQLite's online backup API: a consistent snapshot even while the server writes (WAL mode).
+    await db.backup(path.resolve(dest));
+  } finally {
+    db.close();
+  }
+  process.stdout.write(`database copied to ${path.resolve(dest)}; index files are rebuilt from it on start-up\n`);
   return 0;
 }
 

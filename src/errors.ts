@@ -20,6 +20,12 @@ export const ERRORS = {
   SB_ERR_CONFIG_INVALID: { status: 500, message: 'Invalid configuration:\n%s' },
   SB_ERR_MODEL_MISSING: { status: 500, message: '%s' },
   SB_ERR_INTERNAL: { status: 500, message: 'Internal error' },
+  SB_ERR_UNAUTHORIZED: { status: 401, message: 'A valid API key is required: send "Authorization: Bearer <key>"' },
+  SB_ERR_FORBIDDEN: { status: 403, message: 'This API key may not %s' },
+  SB_ERR_BUSY: { status: 503, message: 'The service is busy (%s); retry shortly' },
+  SB_ERR_RATE_LIMITED: { status: 429, message: 'Too many requests for this key; retry in %s seconds' },
+  SB_ERR_DEADLINE: { status: 503, message: 'The request did not finish within %s ms' },
+  SB_ERR_AUTH_CONFIG: { status: 500, message: '%s' },
 } as const;
 
 export type ErrorCode = keyof typeof ERRORS;
@@ -35,6 +41,11 @@ export class SourceboundError extends Error {
     this.code = code;
     this.status = ERRORS[code].status;
     this.details = details;
+  }
+
+  /** fastify and its plugins read `statusCode`. */
+  get statusCode(): number {
+    return this.status;
   }
 }
 

@@ -8,6 +8,9 @@ import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
 import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
 import type { Logger } from './logger.js';
+import { createMetrics, type Metrics } from './api/metrics.js';
+import { createLimiter } from './limiter.js';
+import type { CompletionClient } from './answer/index.js';
 import { createRetriever, DEFAULT_FIELD_WEIGHTS, type Retriever } from './retrieve/index.js';
 import {
   createJobs,
@@ -34,13 +37,14 @@ export interface Runtime {
   answerer: Answerer;
   extractiveAnswerer: Answerer;
   ingestor: Ingestor;
+  metrics: Metrics;
   close(): void;
 }
 
 export async function createRuntime(
   config: Readonly<Config>,
   logger: Logger,
-  opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder } = {},
+  opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder; processMetrics?: boolean } = {},
 ): Promise<Runtime> {
   const paths = storePaths(config.dataDir);
   const db = openDatabase(paths.database);
@@ -71,10 +75,36 @@ export async function createRuntime(
     params: config.retrieval.hnsw,
     logger: logger.child({ stage: 'index' }),
   });
-  const retriever = createRetriever({
+  const metrics = createMetrics(
+    {
+      indexSizes: () => repo.listCollections().map((c) => ({ collection: c.name, chunks: c.chunks, documents: c.documents })),
+      jobCounts: () => jobs.counts(),
+    },
+    { processMetrics: opts.processMetrics ?? true },
+  );
+  // Queries share a bounded number of embedding slots; past the queue, requests get 503 + Retry-After
+  // rather than waiting behind an ever-longer line. Ingest embeds outside these slots.
+  const queryLimiter = createLimiter(config.limits.maxConcurrentQueries, config.limits.maxQueuedQueries, 'query embeddings');
+  const queryEmbedder: Embedder = {
+    id: embedder.id,
+    dimensions: embedder.dimensions,
+    semantic: embedder.semantic,
+    maxTokens: embedder.maxTokens,
+    countTokens: (t) => embedder.countTokens(t),
+    embed: (texts) =>
+      queryLimiter.run(async () => {
+        const end = metrics.embeddingDuration.startTimer({ path: 'query' });
+        try {
+          return await embedder.embed(texts);
+        } finally {
+          end();
+        }
+      }),
+  };
+  const baseRetriever = createRetriever({
     repo,
     indexes,
-    embedder,
+    embedder: queryEmbedder,
     options: {
       candidates: config.retrieval.candidates,
       rrfK: config.retrieval.rrfK,
@@ -89,10 +119,21 @@ export async function createRuntime(
     minSupport: config.answer.minSupport,
     minLexicalCoverage: config.answer.minLexicalCoverage,
     minDenseScore: config.answer.minDenseScore,
+    headingCredit: config.answer.headingCredit,
+    kindMissPenalty: config.answer.kindMissPenalty,
+    minCoverageWithUnknownTerm: config.answer.minCoverageWithUnknownTerm,
   };
   const answerLog = logger.child({ stage: 'answer' });
-  const retrieve = (q: Parameters<Retriever['search']>[0]) => retriever.search(q);
-  const completion = config.completion.baseUrl
+  const retrieve = async (q: Parameters<Retriever['search']>[0]) => {
+    const end = metrics.retrievalDuration.startTimer({ mode: q.mode });
+    try {
+      return await baseRetriever.search(q);
+    } finally {
+      end();
+    }
+  };
+  const retriever: Retriever = { search: retrieve };
+  const completionClient = config.completion.baseUrl
     ? createCompletionClient({
         baseUrl: config.completion.baseUrl,
         model: config.completion.model,
@@ -103,15 +144,38 @@ export async function createRuntime(
         retries: config.completion.retries,
       })
     : undefined;
+  const completionLimiter = createLimiter(
+    config.limits.maxConcurrentCompletions,
+    config.limits.maxQueuedCompletions,
+    'completion calls',
+  );
+  const completion: CompletionClient | undefined = completionClient
+    ? {
+        complete: (messages, signal) =>
+          completionLimiter.run(async () => {
+            try {
+              const out = await completionClient.complete(messages, signal);
+              metrics.completionCalls.inc({ outcome: 'ok' });
+              return out;
+            } catch (err) {
+              metrics.completionCalls.inc({ outcome: 'error' });
+              throw err;
+            }
+          }).catch((err: unknown) => {
+            if ((err as { code?: string }).code === 'SB_ERR_BUSY') metrics.completionCalls.inc({ outcome: 'busy' });
+            throw err;
+          }),
+      }
+    : undefined;
   const answerer = createAnswerer({
     retrieve,
-    embedder,
+    embedder: queryEmbedder,
     ...(completion ? { completion } : {}),
     logger: answerLog,
     options: answerOptions,
   });
   const extractiveAnswerer = completion
-    ? createAnswerer({ retrieve, embedder, logger: answerLog, options: answerOptions })
+    ? createAnswerer({ retrieve, embedder: queryEmbedder, logger: answerLog, options: answerOptions })
     : answerer;
   const ingestor = createIngestor({
     repo,
@@ -140,6 +204,7 @@ export async function createRuntime(
     answerer,
     extractiveAnswerer,
     ingestor,
+    metrics,
     close() {
       indexes.close();
       if (db.open) db.close();
@@ -172,6 +237,7 @@ export function appDeps(rt: Runtime, isReady: () => boolean): AppDeps {
   return {
     logger: rt.logger,
     isReady,
+    metrics: rt.metrics,
     search: (req) => rt.retriever.search(req),
     answer: (req: HttpAnswerRequest) => {
       const answerer = req.style === 'extractive' ? rt.extractiveAnswerer : rt.answerer;

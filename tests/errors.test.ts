@@ -23,6 +23,12 @@ describe('the error table', () => {
       SB_ERR_CONFIG_INVALID: 500,
       SB_ERR_MODEL_MISSING: 500,
       SB_ERR_INTERNAL: 500,
+      SB_ERR_UNAUTHORIZED: 401,
+      SB_ERR_FORBIDDEN: 403,
+      SB_ERR_BUSY: 503,
+      SB_ERR_RATE_LIMITED: 429,
+      SB_ERR_DEADLINE: 503,
+      SB_ERR_AUTH_CONFIG: 500,
     });
   });
 

@@ -5,7 +5,6 @@ import type { AnswerMode, AnswerResult, Citation, SearchHit, SearchMode } from '
 import {
   ABSTAIN_TEXT,
   abstainReason,
-  bestSentenceCoverage,
   confidence,
   headingSet,
   isAbstentionReply,
@@ -15,12 +14,14 @@ import { CAUTION } from './caution.js';
 import { citationFor } from './cite.js';
 import { CompletionError } from './completion.js';
 import { buildContext } from './context.js';
-import { extractAnswer } from './extractive.js';
+import { absentTerms, extractAnswer, questionCoverage } from './extractive.js';
 import { checkGrounding, renumberMarkers, type GroundedClaim } from './grounding.js';
 import { buildMessages } from './prompt.js';
 import { isJunkSentence, splitSentences } from './sentences.js';
+import { expansionWords, termIn } from './synonyms.js';
 import type { AnswerLogger, CompletionClient, ContextSource } from './types.js';
-import { contentStems, contentTokens } from './words.js';
+import { chooseVersions, versionNote } from './versions.js';
+import { contentStems, contentTokens, stem } from './words.js';
 
 export interface AnswererOptions {
   k: number;
@@ -30,6 +31,12 @@ export interface AnswererOptions {
   minDenseScore: number;
   /** At most this many sources in the context (default 8). */
   maxSources?: number;
+  /** Credit for a question term found only in a sentence's headings or table header, 0..1 (default 0.5). */
+  headingCredit?: number;
+  /** Share of evidence lost when a precise question (how long, how much ...) meets a sentence without that kind of fact (default 0.25). */
+  kindMissPenalty?: number;
+  /** When the question names a topic term found nowhere in the collection, the best sentence must cover at least this much (default 0.8). */
+  minCoverageWithUnknownTerm?: number;
 }
 
 export interface RetrieveRequest {
@@ -84,12 +91,20 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
     async answer(req: AnswerRequest): Promise<AnswerResult> {
       const t0 = now();
       const question = standaloneQuestion(req.question, req.history);
-      const hits = await deps.retrieve({
-        query: question,
+      // The policy's own wording for terms the question phrased its own way, so lexical search
+      // can reach the passage; the reply still shows the question as asked.
+      const extra = expansionWords(question);
+      const k = req.k ?? opts.k;
+      const request: RetrieveRequest = {
+        query: extra.length > 0 ? `${question} ${extra.join(' ')}` : question,
         collection: req.collection,
-        k: req.k ?? opts.k,
+        k,
         mode: req.mode ?? 'hybrid',
-      });
+      };
+      let versions = chooseVersions(question, await deps.retrieve(request));
+      // Dropped versions freed places in the context; fill them with the next hits.
+      if (versions.dropped > 0) versions = chooseVersions(question, await deps.retrieve({ ...request, k: k + versions.dropped }));
+      const hits = versions.kept;
       const t1 = now();
       const timings = (): Record<string, number> => {
         const t2 = now();
@@ -111,14 +126,25 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
         return r;
       };
 
-      const denseBest = bestDense(hits);
+      // A hashing vector's cosine re-measures word overlap, so only a learned model's
+      // similarity counts as separate evidence.
+      const denseBest = deps.embedder.semantic ? bestDense(hits) : null;
       const sources = buildContext(hits, {
         budgetTokens: opts.contextBudgetTokens,
         countTokens,
         ...(opts.maxSources !== undefined ? { maxSources: opts.maxSources } : {}),
       });
-      const coverage = bestSentenceCoverage(question, sources);
-      const early = abstainReason({ hitCount: sources.length, coverage, denseScore: denseBest }, thresholds);
+      const credit = opts.headingCredit ?? 0.5;
+      const penalty = opts.kindMissPenalty ?? 0.25;
+      const { common, unknown } = await lookUpAbsent(question, sources, req.collection, deps.retrieve);
+      // A topic term the whole collection never mentions ("wifi") says the question is about
+      // something the documents do not cover, so the rest of it must be covered very well.
+      const thresholdsNow =
+        unknown.size > 0
+          ? { ...thresholds, minLexicalCoverage: Math.max(thresholds.minLexicalCoverage, opts.minCoverageWithUnknownTerm ?? 0.8) }
+          : thresholds;
+      const coverage = questionCoverage(question, sources, credit, penalty, common);
+      const early = abstainReason({ hitCount: sources.length, coverage, denseScore: denseBest }, thresholdsNow);
       if (early) return abstain(early, 'extractive');
 
       let fallbackReason: string | undefined;
@@ -131,12 +157,12 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
           const supported = g.claims.filter((c) => c.supported).length;
           const late = abstainReason(
             { hitCount: sources.length, coverage, denseScore: denseBest, supportedClaims: supported },
-            thresholds,
+            thresholdsNow,
           );
           if (late) return abstain(late, 'generative');
           const { answer, citations } = generativeCitations(g.answer, g.cited, g.claims, sources);
           return {
-            answer,
+            answer: withVersionNote(answer, citations, versions.chosen),
             abstained: false,
             mode: 'generative',
             citations,
@@ -152,12 +178,13 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
         }
       }
 
-      const ex = await extractAnswer(question, sources, { embedder: deps.embedder });
-      const dense = maxOrNull(denseBest, ex.cosine);
-      const reason = ex.answer ? abstainReason({ hitCount: sources.length, coverage: ex.support, denseScore: dense }, thresholds) : 'weak_evidence';
+      const ex = await extractAnswer(question, sources, { embedder: deps.embedder, contextCredit: credit, kindMissPenalty: penalty, commonTerms: common });
+      const dense = deps.embedder.semantic ? maxOrNull(denseBest, ex.cosine) : null;
+      log.debug({ coverage, support: ex.support, dense, uncovered: ex.uncovered, absent: ex.absent, unknown: [...unknown] }, 'extractive evidence');
+      const reason = ex.answer ? abstainReason({ hitCount: sources.length, coverage: ex.support, denseScore: dense }, thresholdsNow) : 'weak_evidence';
       if (reason) return abstain(reason, 'extractive', fallbackReason);
       const result: AnswerResult = {
-        answer: ex.answer,
+        answer: withVersionNote(ex.answer, ex.citations, versions.chosen),
         abstained: false,
         mode: 'extractive',
         citations: ex.citations,
@@ -175,22 +202,80 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
 /**
  * Offline condensation of a follow-up: the content words of the last user turn that the
  * follow-up does not already contain are put in front of it, so "and for trams?" after a
- * question about delay refunds retrieves delay-refund passages.
+ * question about delay refunds retrieves delay-refund passages. A carried word of the same
+ * kind as one the follow-up names ("trams" when it asks "and on buses?") is the thing being
+ * swapped, so it is left behind; and a follow-up without its own question opener keeps the
+ * previous one ("how long ..."), since it asks for the same kind of fact.
  */
 export function standaloneQuestion(question: string, history?: HistoryTurn[]): string {
   const q = question.trim();
   const lastUser = [...(history ?? [])].reverse().find((t) => t.role === 'user');
   if (!lastUser) return q;
   const have = contentStems(q);
+  const swapped = new Set<number>();
+  CONTRASTS.forEach((row, i) => {
+    if (row.some((w) => have.has(w))) swapped.add(i);
+  });
   const carried: string[] = [];
   const seen = new Set<string>();
   for (const t of contentTokens(lastUser.content)) {
     if (have.has(t.stem) || seen.has(t.stem)) continue;
     seen.add(t.stem);
+    if (CONTRASTS.some((row, i) => swapped.has(i) && row.includes(t.stem))) continue;
     carried.push(lastUser.content.slice(t.start, t.end));
     if (carried.length >= MAX_CARRIED_WORDS) break;
   }
-  return carried.length > 0 ? `${carried.join(' ')} ${q}` : q;
+  if (carried.length === 0) return q;
+  const opener = OPENER.test(q) ? null : (OPENER.exec(lastUser.content.trim())?.[0] ?? null);
+  return `${opener ? `${opener.toLowerCase()} ` : ''}${carried.join(' ')} ${q}`;
+}
+
+// A term held by at least this many chunks of the collection is common there.
+const COMMON_CHUNKS = 3;
+// Lexical look-ups per question for terms the context lacks; questions rarely have more.
+const MAX_LOOKUPS = 4;
+
+/**
+ * Topic terms the context lacks, sorted by how often the collection at large holds them. A term
+ * the whole collection lacks ("wifi") says the question is about something else; one that is
+ * common elsewhere ("tram") only says retrieval brought other passages. One lexical query per
+ * term, counting hits whose text really holds it.
+ */
+async function lookUpAbsent(
+  question: string,
+  sources: ContextSource[],
+  collection: string,
+  retrieve: AnswererDeps['retrieve'],
+): Promise<{ common: Set<string>; unknown: Set<string> }> {
+  const common = new Set<string>();
+  const unknown = new Set<string>();
+  for (const term of absentTerms(question, sources).slice(0, MAX_LOOKUPS)) {
+    const hits = await retrieve({ query: term.label, collection, k: 20, mode: 'lexical' });
+    const holding = hits.filter((h) => termIn(term, contentStems(h.text))).length;
+    if (holding >= COMMON_CHUNKS) common.add(term.label);
+    if (holding === 0) unknown.add(term.label);
+  }
+  return { common, unknown };
+}
+
+// Words that name alternatives of one kind: a follow-up naming one replaces the other.
+const CONTRASTS: readonly string[][] = [
+  ['tram', 'bus', 'train', 'coach', 'ferry'],
+  ['adult', 'child', 'senior', 'student', 'infant'],
+  ['weekday', 'weekend', 'saturday', 'sunday'],
+  ['single', 'return', 'season'],
+].map((row) => row.map((w) => stem(w)));
+
+// Openers that fix the kind of fact asked for.
+const OPENER = /^\W*(?:how (?:long|soon|quickly|much|many|far|old|often)|when|where|what time)\b/i;
+
+/** Names the version used when an answer cites a policy that had another version in the context. */
+function withVersionNote(answer: string, citations: Citation[], chosen: ReadonlyMap<string, string>): string {
+  for (const c of citations) {
+    const date = chosen.get(c.documentId);
+    if (date) return `${answer} ${versionNote(date)}`;
+  }
+  return answer;
 }
 
 /**

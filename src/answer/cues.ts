@@ -11,7 +11,8 @@ const FACT: Record<AnswerKind, RegExp> = {
   amount: /[£$€]\s?\d|\b\d+(?:\.\d+)?\s?(?:%|percent|pence)|\bno charge\b|\bfree\b|\bhalf\b/i,
   time: /\b\d{1,2}[:.]\d{2}\b|\b\d{1,2}\s+(?:january|february|march|april|may|june|july|august|september|october|november|december)\b|\b(?:monday|tuesday|wednesday|thursday|friday|saturday|sunday)s?\b/i,
   age: /\baged?\s+\d+|\b\d+\s+(?:or\s+over|and\s+over|or\s+older)\b|\bunder\s+\d+\b/i,
-  count: new RegExp(`\\b${NUMBER_WORD}\\b|\\b(?:a|one)\\s+(?:single|maximum)\\b`, 'i'),
+  // A number before a word, but not a clause number opening the sentence ("1.1 These ...").
+  count: new RegExp(`(?<!^[\\s\\d.]*)\\b${NUMBER_WORD}\\s+(?!of\\b)\\p{L}{3,}`, 'iu'),
   measure: /\b\d+(?:\.\d+)?\s*(?:metres?|meters?|m|km\/h|km|mph|miles?|v|kv|volts?|kg)\b/i,
   place: /\b(?:at|to|in|from)\s+(?:the\s+)?\p{Lu}\p{L}+/u,
   rule: /\b(?:allowed|not|may|must|only|cannot|permitted|prohibited|never|no)\b/i,
@@ -37,6 +38,14 @@ export function answerCue(question: string): AnswerKind | null {
 
 // Enough to decide between sentences of similar coverage, not to outweigh a missing topic word.
 const CUE_BONUS = 0.1;
+
+// Kinds precise enough that a sentence lacking one does not answer the question at all.
+const STRICT: ReadonlySet<AnswerKind> = new Set(['duration', 'amount', 'time', 'age', 'count', 'measure']);
+
+/** True when the question asks for a precise kind of fact and the sentence holds none. */
+export function missesKind(kind: AnswerKind | null, sentence: string): boolean {
+  return kind !== null && STRICT.has(kind) && !FACT[kind].test(sentence);
+}
 
 /** The score lift for a sentence that holds the kind of fact asked for. */
 export function cueBonus(kind: AnswerKind | null, sentence: string): number {

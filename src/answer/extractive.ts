@@ -4,11 +4,11 @@
 import type { Embedder } from '../embed/types.js';
 import type { Citation } from '../types.js';
 import { headingSet } from './abstain.js';
-import { answerCue, cueBonus } from './cues.js';
+import { answerCue, cueBonus, missesKind, type AnswerKind } from './cues.js';
 import { citationFor, coveredByParts } from './cite.js';
 import { isPlantedInstruction } from './planted.js';
 import { isJunkSentence, splitSentences, type SentenceSpan } from './sentences.js';
-import { questionTerms, termIn, type QuestionTerm } from './synonyms.js';
+import { isLightTerm, questionTerms, termIn, type QuestionTerm } from './synonyms.js';
 import type { ContextSource } from './types.js';
 import { contentStems, tokenize } from './words.js';
 
@@ -20,6 +20,10 @@ export interface ExtractOptions {
   closeRatio?: number;
   /** Credit for a question term found only in a sentence's headings or table header, 0..1 (default 0.5). */
   contextCredit?: number;
+  /** Share of support lost when the question asks for a duration, amount, time, age, count or measure and the best sentence holds none (default 0.25). */
+  kindMissPenalty?: number;
+  /** Labels of question terms known to be common in the collection at large (see `absentTerms`). */
+  commonTerms?: ReadonlySet<string>;
 }
 
 export interface ExtractResult {
@@ -32,6 +36,10 @@ export interface ExtractResult {
   support: number;
   /** Cosine between the question and the best sentence, when an embedder was given. */
   cosine: number | null;
+  /** Question terms the best sentence (with its headings) does not hold, with their rarity weight. */
+  uncovered: { term: string; weight: number }[];
+  /** Topic terms of the question that no candidate sentence or heading holds. */
+  absent: string[];
 }
 
 interface Candidate {
@@ -42,6 +50,8 @@ interface Candidate {
   stems: Set<string>;
   /** Stems of the headings above the sentence and, for a table row, of the header row. */
   context: Set<string>;
+  /** Numeric ranges the sentence states ("30 to 59 minutes", "66 or over"). */
+  ranges: [number, number][];
   coverage: number;
   score: number;
   cosine: number | null;
@@ -50,6 +60,18 @@ interface Candidate {
 // Sentences opening with these lean on the sentence before them for their meaning.
 const LEANS_BACK =
   /^(?:this|that|these|those|it|its|they|their|them|such|however|but|also|otherwise|therefore|thus|instead|in (?:this|that|such) case|as a result|in addition|then)\b/i;
+
+const DEFAULT_KIND_MISS_PENALTY = 0.25;
+
+/** The idf a term gets when no candidate holds it (df = 0). */
+function absentWeight(n: number): number {
+  return Math.log(1 + (n + 0.5) / 0.5) - 1e-9;
+}
+
+/** A sentence's coverage, reduced when it lacks the precise kind of fact the question asks for. */
+function evidence(c: Candidate, cue: AnswerKind | null, penalty: number): number {
+  return missesKind(cue, c.span.text) ? c.coverage * (1 - penalty) : c.coverage;
+}
 
 // A small lift for sentences from better-retrieved sources, enough to decide near-ties.
 const RANK_BONUS = 0.03;
@@ -65,14 +87,14 @@ export async function extractAnswer(
   const maxSentences = Math.max(1, opts.maxSentences ?? 3);
   const closeRatio = opts.closeRatio ?? 0.85;
   const cands = candidates(sources);
-  const none: ExtractResult = { answer: '', citations: [], support: 0, cosine: null };
+  const none: ExtractResult = { answer: '', citations: [], support: 0, cosine: null, uncovered: [], absent: [] };
   if (cands.length === 0) return none;
 
   const contextCredit = opts.contextCredit ?? 0.5;
   const cue = answerCue(question);
   let terms = questionTerms(question);
   if (terms.length === 0) terms = tokenize(question).map((t) => ({ label: t.word, alts: [[t.stem]] }));
-  const weights = termWeights(terms, cands);
+  const weights = termWeights(terms, cands, opts.commonTerms);
   const q = new Set(terms.flatMap((t) => t.alts.flat()));
   for (const c of cands) {
     // Coverage decides; among sentences covering the question equally, prefer the focused one
@@ -88,7 +110,7 @@ export async function extractAnswer(
 
   const ranked = [...cands].sort((a, b) => b.score - a.score);
   const best = ranked[0];
-  if (!best || best.coverage <= 0) return none;
+  if (!best || (best.coverage <= 0 && (best.cosine ?? 0) <= 0)) return none;
 
   const chosen: Candidate[] = [best];
   const seen = new Set([best.span.text]);
@@ -118,7 +140,12 @@ export async function extractAnswer(
   return {
     answer: parts.join(' '),
     citations,
-    support: best.coverage,
+    support: missesKind(cue, parts.join(' ')) ? best.coverage * (1 - (opts.kindMissPenalty ?? DEFAULT_KIND_MISS_PENALTY)) : best.coverage,
+    absent: terms.filter((t, i) => !isLightTerm(t) && (weights[i] ?? 0) >= absentWeight(cands.length)).map((t) => t.label),
+    uncovered: terms
+      .map((t, i) => ({ term: t.label, weight: Math.round((weights[i] ?? 0) * 100) / 100, held: holds(t, best) || termIn(t, best.context) }))
+      .filter((t) => !t.held)
+      .map(({ term, weight }) => ({ term, weight })),
     cosine: best.cosine,
   };
 }
@@ -148,7 +175,8 @@ export function candidates(sources: ContextSource[]): Candidate[] {
         continue;
       }
       const context = contentStems(`${sectionAt(source, span.start)} ${tableHeader(source.text, span)}`);
-      out.push({ sourceIndex, span, prev, stems: contentStems(span.text), context, coverage: 0, score: 0, cosine: null });
+      const ranges = numericRanges(span.text);
+      out.push({ sourceIndex, span, prev, stems: contentStems(span.text), context, ranges, coverage: 0, score: 0, cosine: null });
       prev = span;
     }
   });
@@ -159,14 +187,24 @@ export function candidates(sources: ContextSource[]): Candidate[] {
  * BM25-style idf of each term over the candidate sentences (with their headings), as in
  * Lucene: ln(1 + (N − df + 0.5)/(df + 0.5)). A term no candidate holds weighs most.
  */
-function termWeights(terms: QuestionTerm[], cands: Candidate[]): number[] {
+function termWeights(terms: QuestionTerm[], cands: Candidate[], common: ReadonlySet<string> = new Set()): number[] {
   const n = cands.length;
   return terms.map((t) => {
     let df = 0;
-    for (const c of cands) if (termIn(t, c.stems) || termIn(t, c.context)) df++;
-    return Math.log(1 + (n - df + 0.5) / (df + 0.5));
+    for (const c of cands) if (holds(t, c) || termIn(t, c.context)) df++;
+    // Missing from these candidates but common in the collection: retrieval simply did not
+    // bring its passages, so weigh it as a term found in half the candidates (idf = ln 2).
+    if (df === 0 && common.has(t.label)) return Math.LN2;
+    const idf = Math.log(1 + (n - df + 0.5) / (df + 0.5));
+    // When every candidate is on the question's topic, local idf would call the topic words
+    // worthless; a floor of ln 2 (the idf of a term in half the candidates) keeps them counting.
+    return isLightTerm(t) ? LIGHT_SHARE * Math.min(idf, Math.LN2) : Math.max(idf, Math.LN2);
   });
 }
+
+// Framing words ("make", "bring", "first") keep a little weight: enough to break ties, too
+// little for their absence to sink an otherwise covered question.
+const LIGHT_SHARE = 0.5;
 
 function termCoverage(terms: QuestionTerm[], weights: number[], c: Candidate, contextCredit: number): number {
   let total = 0;
@@ -174,10 +212,31 @@ function termCoverage(terms: QuestionTerm[], weights: number[], c: Candidate, co
   terms.forEach((t, i) => {
     const w = weights[i] ?? 0;
     total += w;
-    if (termIn(t, c.stems)) hit += w;
+    if (holds(t, c)) hit += w;
     else if (termIn(t, c.context)) hit += contextCredit * w;
   });
   return total > 0 ? hit / total : 0;
+}
+
+/** The sentence holds the term, or, for a bare number, states a range that contains it. */
+function holds(t: QuestionTerm, c: Candidate): boolean {
+  if (termIn(t, c.stems)) return true;
+  const only = t.alts.length === 1 && t.alts[0]?.length === 1 ? t.alts[0][0] : undefined;
+  if (only === undefined || !/^\d+(?:\.\d+)?$/.test(only)) return false;
+  const x = Number(only);
+  return c.ranges.some(([lo, hi]) => x >= lo && x <= hi);
+}
+
+/** "30 to 59", "15–29", "60 minutes or more", "66 or over" as inclusive ranges. */
+export function numericRanges(text: string): [number, number][] {
+  const out: [number, number][] = [];
+  for (const m of text.matchAll(/(\d+(?:\.\d+)?)\s*(?:to|–|-)\s*(\d+(?:\.\d+)?)(?![:.]\d)/g)) {
+    const lo = Number(m[1]);
+    const hi = Number(m[2]);
+    if (lo < hi) out.push([lo, hi]);
+  }
+  for (const m of text.matchAll(/(\d+(?:\.\d+)?)\s+(?:[a-z]+\s+)?or\s+(?:more|over|above|older|longer)\b/gi)) out.push([Number(m[1]), Infinity]);
+  return out;
 }
 
 /** The heading path of the chunk holding offset `at` of the source text. */
@@ -255,4 +314,35 @@ function dot(a: Float32Array, b: Float32Array): number {
   const n = Math.min(a.length, b.length);
   for (let i = 0; i < n; i++) s += (a[i] ?? 0) * (b[i] ?? 0);
   return s;
+}
+
+/**
+ * How well the best single sentence of the context covers the question's terms, counting a
+ * term found only in its headings or table header at `contextCredit`: the evidence test.
+ */
+export function questionCoverage(
+  question: string,
+  sources: ContextSource[],
+  contextCredit = 0.5,
+  kindMissPenalty = DEFAULT_KIND_MISS_PENALTY,
+  commonTerms: ReadonlySet<string> = new Set(),
+): number {
+  const cands = candidates(sources);
+  if (cands.length === 0) return 0;
+  const terms = questionTerms(question);
+  if (terms.length === 0) return 0;
+  const weights = termWeights(terms, cands, commonTerms);
+  let best = 0;
+  const cue = answerCue(question);
+  for (const c of cands) {
+    c.coverage = termCoverage(terms, weights, c, contextCredit);
+    best = Math.max(best, evidence(c, cue, kindMissPenalty));
+  }
+  return best;
+}
+
+/** Topic terms of the question that no sentence or heading of the context holds. */
+export function absentTerms(question: string, sources: ContextSource[]): QuestionTerm[] {
+  const cands = candidates(sources);
+  return questionTerms(question).filter((t) => !isLightTerm(t) && !cands.some((c) => holds(t, c) || termIn(t, c.context)));
 }

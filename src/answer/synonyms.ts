@@ -22,20 +22,20 @@ const GROUPS: readonly (readonly string[])[] = [
   ['complaint', 'complain', 'grumble', 'grievance'],
   ['satisfied', 'unhappy', 'dissatisfied'],
   ['senior', 'gran', 'granny', 'grandmother', 'grandfather', 'grandparent', 'pensioner', 'elderly'],
-  ['call', 'ring', 'ringing', 'telephone'],
+  ['call', 'ring', 'ringing', 'telephone', 'phone call', 'phone calls'],
   ['ill', 'sick', 'sickness', 'unwell'],
   ['leave', 'days off', 'time off', 'holiday', 'vacation'],
   ['employee', 'worker', 'staff', 'colleague'],
   ['overhead line', 'live wire', 'live wires', 'wires', 'overhead wire', 'cable'],
   ['pay', 'paid', 'settle', 'settle up'],
-  ['within', 'quickly', 'promptly'],
+  ['within', 'quickly', 'promptly', 'limit', 'time limit', 'deadline'],
   ['cost', 'price', 'fee'],
   ['help', 'assistance', 'assist', 'support'],
   ['turn up', 'show up'],
   ['wheelchair', 'mobility', 'disabled', 'disability'],
   ['record', 'recording'],
   ['route', 'number'],
-  ['aged', 'age', 'old'],
+  ['aged', 'age', 'how old'],
   ['scooter', 'e-scooter', 'electric scooter'],
   ['penalty', 'fine', 'without a ticket'],
   ['away', 'stay', 'distance', 'clear of'],
@@ -44,7 +44,29 @@ const GROUPS: readonly (readonly string[])[] = [
   ['refer', 'look at', 'look into', 'escalate', 'review'],
   ['response', 'reply', 'answer'],
   ['mvt', 'company', 'operator'],
+  ['travel', 'ride', 'rides', 'journey'],
+  ['wear', 'worn', 'wore'],
 ];
+
+// Everyday verbs, adverbs and fillers that questions use to frame a topic without naming it
+// ("make a claim", "is it OK to bring", "where does it go first"). Written from memory, not
+// from a published list; they still count, but weigh little when judging coverage.
+const LIGHT = new Set(
+  (
+    'make made take took taken put get got give given gave go goes going come came need needed want like use used ' +
+    'know tell told say said see look ask asked feel bring brought turn turned happen happens try still just really ' +
+    'ok okay true false different same else anything something everything thing things way lot actually quite ' +
+    'possible able mean means right sure whole certain first even kind sort type allow allowed caught old new ' +
+    'previous current'
+  )
+    .split(' ')
+    .map((w) => stem(w)),
+);
+
+/** True for a term that frames the question rather than naming its topic. */
+export function isLightTerm(term: QuestionTerm): boolean {
+  return term.alts.length === 1 && term.alts[0]?.length === 1 && LIGHT.has(term.alts[0][0] ?? '');
+}
 
 export interface QuestionTerm {
   /** The question's own wording of the term. */

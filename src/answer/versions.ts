@@ -2,11 +2,18 @@
 // apply. When sources are versions of the same document and both carry an effective date,
 // only the newer one is kept, unless the question asks about the older one on purpose.
 
-import type { ContextSource } from './types.js';
+/** What version choice needs to know of a hit or source. */
+export interface Versioned {
+  documentId: string;
+  title: string;
+  effectiveDate: string | null;
+}
 
-export interface VersionChoice {
-  sources: ContextSource[];
-  /** Effective date of each kept source that had an older or newer version dropped, by documentId. */
+export interface VersionChoice<T extends Versioned> {
+  kept: T[];
+  /** How many items were dropped as other versions. */
+  dropped: number;
+  /** Effective date of each kept document that had another version dropped, by documentId. */
   chosen: Map<string, string>;
 }
 
@@ -27,11 +34,10 @@ export function policyKey(title: string): string {
 
 /**
  * Keeps one version per policy: the newest by effective date, or the oldest when the question
- * asks about earlier rules (or names a year only the older title carries). Sources without an
- * effective date, or without another version present, are kept as they are. Kept sources are
- * renumbered 1..n in their original order.
+ * asks about earlier rules (or names a year only the older title carries). Items without an
+ * effective date, or without another version present, are kept as they are, in order.
  */
-export function chooseVersions(question: string, sources: ContextSource[]): VersionChoice {
+export function chooseVersions<T extends Versioned>(question: string, sources: T[]): VersionChoice<T> {
   const groups = new Map<string, { documentId: string; date: string; title: string }[]>();
   for (const s of sources) {
     if (!s.effectiveDate) continue;
@@ -55,9 +61,8 @@ export function chooseVersions(question: string, sources: ContextSource[]): Vers
     for (const d of list) if (d.documentId !== keep.documentId) drop.add(d.documentId);
     chosen.set(keep.documentId, keep.date);
   }
-  if (drop.size === 0) return { sources, chosen };
-  const kept = sources.filter((s) => !drop.has(s.documentId)).map((s, i) => ({ ...s, n: i + 1 }));
-  return { sources: kept, chosen };
+  const kept = drop.size === 0 ? sources : sources.filter((s) => !drop.has(s.documentId));
+  return { kept, dropped: sources.length - kept.length, chosen };
 }
 
 /** The short note telling the reader which version an answer came from. */

@@ -10,7 +10,7 @@ const STOPWORDS = new Set(
     'between both but by can could did do does doing done down during each either else ever few for from ' +
     'further get gets got had has have having he her here hers herself him himself his how i if in into is it ' +
     'its itself just let me might more most must my myself no nor not now of off on once only or other our ours ' +
-    'ourselves out over own please same shall she should so some such than that the their theirs them themselves ' +
+    'ourselves out over please same shall she should so some such than that the their theirs them themselves ' +
     'then there these they this those through to too under until up upon us very was we were what whats when ' +
     'where whether which while who whom whose why will with would yes yet you your yours yourself yourselves ' +
     'dont doesnt cant wont isnt arent im ive id youre theyre thats'

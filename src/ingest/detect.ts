@@ -6,7 +6,10 @@ const SNIFF_BYTES = 1024;
 // which a file is treated as binary; real text files have essentially none.
 const MAX_CONTROL_SHARE = 0.1;
 
-const EXTENSIONS: Record<string, DocumentFormat> = {
+/** Formats the loaders read: the stored formats plus DOCX, which is converted to HTML blocks. */
+export type SourceFormat = DocumentFormat | 'docx';
+
+const EXTENSIONS: Record<string, SourceFormat> = {
   md: 'markdown',
   markdown: 'markdown',
   html: 'html',
@@ -15,7 +18,24 @@ const EXTENSIONS: Record<string, DocumentFormat> = {
   text: 'text',
   // A .pdf without the magic bytes still goes to the PDF loader, whose error says what is wrong.
   pdf: 'pdf',
+  docx: 'docx',
 };
+
+function startsWith(head: Uint8Array, magic: number[]): boolean {
+  return magic.every((b, i) => head[i] === b);
+}
+
+const ZIP_MAGIC = [0x50, 0x4b, 0x03, 0x04]; // "PK\3\4", a ZIP local file header (APPNOTE.TXT 4.3.7)
+const OLE_MAGIC = [0xd0, 0xcf, 0x11, 0xe0, 0xa1, 0xb1, 0x1a, 0xe1];
+const WORD_PART = new TextEncoder().encode('word/document.xml');
+
+function containsBytes(haystack: Uint8Array, needle: Uint8Array): boolean {
+  outer: for (let i = 0; i + needle.length <= haystack.length; i++) {
+    for (let j = 0; j < needle.length; j++) if (haystack[i + j] !== needle[j]) continue outer;
+    return true;
+  }
+  return false;
+}
 
 function hasPdfMagic(head: Uint8Array): boolean {
   // Readers accept the header anywhere in the first 1024 bytes (ISO 32000-1, annex H).
@@ -51,13 +71,17 @@ function looksLikeHtml(text: string): boolean {
 }
 
 /** The format of a file, judged from its content first and its extension second; null when unsupported. */
-export function detectFormat(bytes: Uint8Array, fileName: string): DocumentFormat | null {
+export function detectFormat(bytes: Uint8Array, fileName: string): SourceFormat | null {
   const head = bytes.subarray(0, SNIFF_BYTES);
+  const ext = /\.([^./\\]+)$/.exec(fileName)?.[1]?.toLowerCase();
   if (hasPdfMagic(head)) return 'pdf';
+  // A Word package is a ZIP whose part names are stored in plain bytes; other ZIPs are not documents.
+  if (startsWith(head, ZIP_MAGIC)) return ext === 'docx' || containsBytes(bytes, WORD_PART) ? 'docx' : null;
+  // An encrypted .docx is an OLE file: the DOCX loader says why it cannot be read.
+  if (startsWith(head, OLE_MAGIC)) return ext === 'docx' ? 'docx' : null;
   // UTF-16 text is full of NUL bytes, so it is judged after decoding.
   const text = hasUtf16Bom(head) ? decodeText(bytes.subarray(0, SNIFF_BYTES * 2)) : null;
   if (text === null && looksBinary(head)) return null;
   if (looksLikeHtml(text ?? decodeText(head))) return 'html';
-  const ext = /\.([^./\\]+)$/.exec(fileName)?.[1]?.toLowerCase();
   return ext === undefined ? null : (EXTENSIONS[ext] ?? null);
 }

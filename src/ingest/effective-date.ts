@@ -69,3 +69,31 @@ export function findEffectiveDate(text: string, metadata: Record<string, string>
   }
   return null;
 }
+
+const VERSION_KEYS = ['version', 'revision', 'issue'];
+// "Version 3.1", "Version: 2", "Revision 4b", "Issue 4", "Document version 2.0": only at a line
+// start or after a separator such as " - " or "|", and capitalised, because "issue 2 tickets" in
+// the middle of a sentence is not a version statement.
+const VERSION =
+  /(?:^|[|–—·•(]\s*|\s-\s+|,\s*)(?:Document\s+|DOCUMENT\s+)?(?:Version|VERSION|[Vv]ersion(?=\s*[:#])|Revision|REVISION|Rev\.|Issue|ISSUE)\s*(?:no\.?\s*|number\s*)?[:#]?\s*[vV]?(\d{1,4}(?:\.\d{1,4}){0,3}[a-z]?)(?![\w.]*\d)/gmu;
+
+/**
+ * The version or issue a document states of itself: front-matter style metadata first
+ * (`version`, `revision`, `issue`), then the first "Version 3.1" / "Issue 4" label in the text.
+ */
+export function findVersion(text: string, metadata: Record<string, string>): string | null {
+  const lowered = new Map(Object.entries(metadata).map(([k, v]) => [k.toLowerCase(), v.trim()]));
+  for (const key of VERSION_KEYS) {
+    const value = lowered.get(key);
+    if (value) return value;
+  }
+  for (const m of text.matchAll(VERSION)) return m[1]!;
+  return null;
+}
+
+/** Metadata with `version` filled in when the document states one and the metadata lacks it. */
+export function withVersion(metadata: Record<string, string>, text: string): Record<string, string> {
+  if (metadata['version']) return metadata;
+  const version = findVersion(text, metadata);
+  return version === null ? metadata : { ...metadata, version };
+}

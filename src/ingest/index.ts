@@ -7,6 +7,7 @@ export {
   type IngestSummary,
   type FileOutcome,
 } from './pipeline.js';
+export { formatProgress, formatSummary, summaryJson } from './progress.js';
 export { loadDocument } from './load.js';
 export { detectFormat } from './detect.js';
 export { buildNormalisedDocument, normaliseText } from './normalise.js';

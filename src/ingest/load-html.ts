@@ -1,6 +1,6 @@
 import { DomUtils, parseDocument } from 'htmlparser2';
 import type { Block, LoadedDocument } from '../types.js';
-import { findEffectiveDate } from './effective-date.js';
+import { findEffectiveDate, withVersion } from './effective-date.js';
 import { decodeText, titleFromFileName } from './load-text.js';
 import { cleanBlocks } from './normalise.js';
 
@@ -189,20 +189,27 @@ function readMetadata(doc: HtmlDocument): Record<string, string> {
   return metadata;
 }
 
-export function loadHtml(bytes: Uint8Array, fileName: string): LoadedDocument {
-  const doc = parseDocument(decodeText(bytes));
+/** Blocks, metadata and title of an HTML string (also the last step of the DOCX loader). */
+export function parseHtml(source: string): { blocks: Block[]; metadata: Record<string, string>; title: string } {
+  const doc = parseDocument(source);
   const { roots, inContent } = contentRoots(doc);
   const blocks = collectBlocks(roots, inContent);
   const metadata = readMetadata(doc);
   const titleEl = DomUtils.findOne((el) => el.name === 'title', doc.children);
   const title = titleEl ? DomUtils.textContent(titleEl).replace(/\s+/g, ' ').trim() : '';
+  return { blocks, metadata, title };
+}
+
+export function loadHtml(bytes: Uint8Array, fileName: string): LoadedDocument {
+  const { blocks, metadata, title } = parseHtml(decodeText(bytes));
   const h1 = blocks.find((b) => b.kind === 'heading' && b.level === 1);
+  const text = blocks.map((b) => b.text).join('\n');
   return {
     format: 'html',
     title: title || h1?.text || titleFromFileName(fileName),
     blocks,
     pageCount: null,
-    effectiveDate: findEffectiveDate(blocks.map((b) => b.text).join('\n'), metadata),
-    metadata,
+    effectiveDate: findEffectiveDate(text, metadata),
+    metadata: withVersion(metadata, text),
   };
 }

@@ -1,5 +1,5 @@
 import type { Block, LoadedDocument } from '../types.js';
-import { findEffectiveDate } from './effective-date.js';
+import { findEffectiveDate, withVersion } from './effective-date.js';
 import { decodeText, titleFromFileName } from './load-text.js';
 import { cleanBlocks } from './normalise.js';
 
@@ -140,16 +140,17 @@ export function parseMarkdownBlocks(body: string): Block[] {
 }
 
 export function loadMarkdown(bytes: Uint8Array, fileName: string): LoadedDocument {
-  const source = decodeText(bytes);
+  const source = decodeText(bytes).replace(/\r\n?/g, '\n');
   const { metadata, body } = splitFrontMatter(source);
   const blocks = parseMarkdownBlocks(body);
   const h1 = blocks.find((b) => b.kind === 'heading' && b.level === 1);
+  const text = blocks.map((b) => b.text).join('\n');
   return {
     format: 'markdown',
     title: metadata['title'] || h1?.text || titleFromFileName(fileName),
     blocks,
     pageCount: null,
-    effectiveDate: findEffectiveDate(blocks.map((b) => b.text).join('\n'), metadata),
-    metadata,
+    effectiveDate: findEffectiveDate(text, metadata),
+    metadata: withVersion(metadata, text),
   };
 }

@@ -1,9 +1,10 @@
 import type { Block, LoadedDocument } from '../types.js';
-import { findEffectiveDate } from './effective-date.js';
+import { findEffectiveDate, withVersion } from './effective-date.js';
 import { titleFromFileName } from './load-text.js';
 import { cleanBlocks } from './normalise.js';
 
 export const NO_TEXT_MESSAGE = 'no extractable text (scanned image? OCR is not supported)';
+export const ENCRYPTED_MESSAGE = 'encrypted PDF (password protected) is not supported';
 
 // How many lines at each page edge may hold running headers or footers.
 const EDGE_LINES = 3;
@@ -34,7 +35,7 @@ async function extract(bytes: Uint8Array): Promise<RawText> {
     const name = err instanceof Error ? err.name : '';
     const detail = err instanceof Error ? err.message : String(err);
     if (name === 'PasswordException') {
-      throw new Error('the PDF is encrypted (password protected) and cannot be read', { cause: err });
+      throw new Error(ENCRYPTED_MESSAGE, { cause: err });
     }
     throw new Error(`not a readable PDF (corrupt or truncated file): ${detail}`, { cause: err });
   } finally {
@@ -158,7 +159,11 @@ export function pagesToBlocks(pages: string[][]): Block[] {
     lines.forEach((line, i) => {
       const endsSentence = TERMINAL.test(line);
       const depth = afterSentence && i + 1 < lines.length ? headingShape(line) : null;
-      if (depth !== null) {
+      // An unnumbered heading must lead into prose or a numbered section; a capitalised line
+      // followed by another short fragment is more likely a table's header row.
+      const next = lines[i + 1] ?? '';
+      const leadsIn = next.length >= shortLimit || TERMINAL.test(next) || NUMBERED.test(next) || BULLET.test(next);
+      if (depth !== null && (depth > 0 || leadsIn)) {
         flush();
         out.push({ block: { kind: 'heading', text: line, page }, depth });
         afterSentence = true;
@@ -215,12 +220,15 @@ export async function loadPdf(bytes: Uint8Array, fileName: string): Promise<Load
   if (blocks.length === 0) throw new Error(NO_TEXT_MESSAGE);
   const metadata = metadataFrom(info);
   const heading = blocks.find((b) => b.kind === 'heading');
+  const text = blocks.map((b) => b.text).join('\n');
+  // A version often sits only in the running header ("Staff Handbook - Issue 4"), which is removed
+  // from the blocks, so the raw first page is searched after the body text.
   return {
     format: 'pdf',
     title: metadata['title'] ?? heading?.text ?? titleFromFileName(fileName),
     blocks,
     pageCount: pages.length,
-    effectiveDate: findEffectiveDate(blocks.map((b) => b.text).join('\n'), metadata),
-    metadata,
+    effectiveDate: findEffectiveDate(text, metadata),
+    metadata: withVersion(metadata, `${text}\n${pages[0] ?? ''}`),
   };
 }

@@ -1,5 +1,5 @@
 import type { Block, LoadedDocument } from '../types.js';
-import { findEffectiveDate } from './effective-date.js';
+import { findEffectiveDate, withVersion } from './effective-date.js';
 import { cleanBlocks } from './normalise.js';
 
 /**
@@ -144,6 +144,6 @@ export function loadText(bytes: Uint8Array, fileName: string): LoadedDocument {
     blocks,
     pageCount: null,
     effectiveDate: findEffectiveDate(text, {}),
-    metadata: {},
+    metadata: withVersion({}, text),
   };
 }

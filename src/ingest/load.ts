@@ -1,6 +1,7 @@
 import { sbError } from '../errors.js';
 import type { LoadedDocument } from '../types.js';
 import { detectFormat } from './detect.js';
+import { loadDocx } from './load-docx.js';
 import { loadHtml } from './load-html.js';
 import { loadMarkdown } from './load-markdown.js';
 import { loadPdf } from './load-pdf.js';
@@ -22,6 +23,8 @@ export async function loadDocument(bytes: Uint8Array, fileName: string): Promise
       return loadHtml(bytes, fileName);
     case 'text':
       return loadText(bytes, fileName);
+    case 'docx':
+      return loadDocx(bytes, fileName);
     case null:
       throw sbError('SB_ERR_INGEST_UNSUPPORTED_TYPE', fileName);
   }

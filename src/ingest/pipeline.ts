@@ -31,8 +31,11 @@ export interface IngestSummary {
 export interface IngestProgress {
   filesDone: number;
   filesTotal: number;
+  /** Files that failed so far (each also lands in the summary's failures). */
+  failed: number;
   pages: number;
   chunks: number;
+  /** The file being worked on, or the last one finished. */
   current: string;
 }
 
@@ -55,10 +58,14 @@ export interface Ingestor {
 
 // Extensions looked at in a folder walk; other files are skipped without complaint. A file with no
 // extension is looked at too, and its type is decided from its bytes.
-const CANDIDATE_EXTENSIONS = new Set(['.pdf', '.md', '.markdown', '.html', '.htm', '.txt', '.text', '']);
+const CANDIDATE_EXTENSIONS = new Set(['.pdf', '.docx', '.md', '.markdown', '.html', '.htm', '.txt', '.text', '']);
+
+// [CLS] and [SEP] for BERT-family models; countTokens leaves them out.
+const SPECIAL_TOKENS = 2;
 
 // Bump when the loaders or chunker change in a way that changes chunks for the same bytes.
-const PIPELINE_VERSION = 1;
+// 2: DOCX support, `version` metadata, table rows and headings recognised in PDFs.
+const PIPELINE_VERSION = 2;
 
 export function createIngestor(deps: {
   repo: Repository;
@@ -96,9 +103,22 @@ export function createIngestor(deps: {
     repo.setCollectionEmbedder(collection, embedder.id, embedder.dimensions);
   };
 
+  const trailTokens = new Map<string, number>();
+  const countTrail = (label: string): number => {
+    let n = trailTokens.get(label);
+    if (n === undefined) {
+      n = embedder.countTokens(label);
+      trailTokens.set(label, n);
+    }
+    return n;
+  };
+  // The heading trail rides along with the chunk into the embedder. A model truncates what passes
+  // its limit, which would cut the chunk's own text, so outer headings give way first.
   const embedText = (title: string, c: ChunkDraft): string => {
-    const trail = c.headingPath[0] === title ? c.headingPath : [title, ...c.headingPath];
-    return `${trail.join(' > ')}\n${c.text}`;
+    let trail = c.headingPath[0] === title ? c.headingPath : [title, ...c.headingPath];
+    const room = embedder.maxTokens - SPECIAL_TOKENS - 1 - c.tokenCount;
+    while (trail.length > 0 && countTrail(trail.join(' > ')) > room) trail = trail.slice(1);
+    return trail.length > 0 ? `${trail.join(' > ')}\n${c.text}` : c.text;
   };
 
   const processFile = async (
@@ -149,6 +169,7 @@ export function createIngestor(deps: {
     log: Logger,
   ): Promise<FileOutcome> => {
     const { collection, source, root, contentHash } = meta;
+    trailTokens.clear();
     const normalised = buildNormalisedDocument(loaded.blocks);
     if (normalised.text.trim().length === 0) return fail(summary, source, 'no text found in the document');
     const drafts = chunkDocument(normalised, {
@@ -213,12 +234,14 @@ export function createIngestor(deps: {
     const base = info.isDirectory() ? root : path.dirname(root);
     const files = info.isDirectory() ? await walk(root) : [root];
     if (info.isDirectory() && (opts.remember ?? true)) repo.addSourceRoot(opts.collection, root);
-    const progress: IngestProgress = { filesDone: 0, filesTotal: files.length, pages: 0, chunks: 0, current: '' };
+    const progress: IngestProgress = { filesDone: 0, filesTotal: files.length, failed: 0, pages: 0, chunks: 0, current: '' };
     const seen = new Set<string>();
     for (const file of files) {
       const source = path.relative(base, file).split(path.sep).join('/');
       seen.add(source);
       progress.current = source;
+      // Reported on entry too, so a long PDF shows which file is being worked on.
+      deps.onProgress?.(progress);
       try {
         await processFile(file, source, base, opts.collection, opts.force ?? false, summary, progress);
       } catch (err) {
@@ -227,6 +250,7 @@ export function createIngestor(deps: {
         logger.error({ source, err }, 'ingest of one document failed');
       }
       progress.filesDone++;
+      progress.failed = summary.documents.failed;
       deps.onProgress?.(progress);
     }
     if (opts.removeMissing && info.isDirectory()) {
@@ -250,7 +274,7 @@ export function createIngestor(deps: {
       const started = performance.now();
       const summary = emptySummary();
       bindCollection(collection, false);
-      const progress: IngestProgress = { filesDone: 0, filesTotal: 0, pages: 0, chunks: 0, current: '' };
+      const progress: IngestProgress = { filesDone: 0, filesTotal: 0, failed: 0, pages: 0, chunks: 0, current: '' };
       for (const d of docs) {
         progress.filesTotal++;
         progress.current = d.source;
@@ -265,6 +289,7 @@ export function createIngestor(deps: {
           }
         }
         progress.filesDone++;
+        progress.failed = summary.documents.failed;
         deps.onProgress?.(progress);
       }
       indexes.sync(collection);

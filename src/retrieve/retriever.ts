@@ -2,8 +2,12 @@ import type { Embedder } from '../embed/types.js';
 import { SourceboundError } from '../errors.js';
 import type { Repository, VectorIndexes, FtsWeights, ChunkView } from '../store/index.js';
 import type { SearchHit, SearchMode } from '../types.js';
-import { toMatchExpression } from './query-text.js';
+import { allowedChunkIds, isEmptyFilter, type RetrieveFilter } from './filter.js';
+import { DEFAULT_MMR, jaccard, mmrSelect, type MmrOptions } from './mmr.js';
+import { queryTerms, termCounts, toWeightedMatch, type WeightedTerm } from './query-text.js';
+import { DEFAULT_RM3, rm3Expand, type Rm3Options } from './rm3.js';
 import { reciprocalRankFusion } from './rrf.js';
+import type { SynonymSource } from './wordnet.js';
 
 export interface RetrieverOptions {
   candidates: number;
@@ -11,6 +15,19 @@ export interface RetrieverOptions {
   lexicalWeight: number;
   denseWeight: number;
   fieldWeights: FtsWeights;
+  /** Most times one query term is repeated to carry its weight into FTS5 (1 = every term counts once). */
+  termRepeat?: number;
+  /** Pseudo-relevance feedback on the lexical leg; null turns it off, undefined takes the default. */
+  rm3?: Rm3Options | null;
+  /** Weight of WordNet synonyms relative to the word they expand; null (the default) adds none. */
+  synonymWeight?: number | null;
+  /**
+   * Rocchio feedback on the dense leg in hybrid mode: the query vector plus this weight times the mean vector
+   * of the top lexical hits (as many as RM3 uses, else 10). null turns it off.
+   */
+  denseFeedback?: number | null;
+  /** Diversity step over the fused list; null (the default) keeps the fused order. */
+  mmr?: MmrOptions | null;
 }
 
 export interface RetrieveRequest {
@@ -18,33 +35,99 @@ export interface RetrieveRequest {
   collection: string;
   k: number;
   mode: SearchMode;
+  filter?: RetrieveFilter;
+  /** Overrides the retriever's MMR setting for this request (true = on with the configured or default options). */
+  diversify?: boolean;
 }
 
 export interface Retriever {
   search(req: RetrieveRequest): Promise<SearchHit[]>;
 }
 
-// Field weights for FTS5 bm25(): FTS5 sums w_col * tf_col per term before the BM25 saturation, so these
-// act like BM25F field boosts. Neutral until tuned on CISI (retrieval-quality work).
-export const DEFAULT_FIELD_WEIGHTS: FtsWeights = { title: 1, heading: 1, body: 1 };
+// Field weights for FTS5 bm25(): FTS5 sums w_col * tf_col per term before the BM25 saturation, so these act
+// like BM25F field boosts. Chosen by a sweep on CISI (docs/benchmarks.md); Cranfield never tuned on.
+export const DEFAULT_FIELD_WEIGHTS: FtsWeights = { title: 2, heading: 1, body: 1 };
+
+/** Settings the service runs with when the caller leaves them out; each chosen by measurement on CISI. */
+export const DEFAULT_TUNING = {
+  termRepeat: 3,
+  rm3: DEFAULT_RM3 as Rm3Options | null,
+  synonymWeight: null as number | null,
+  denseFeedback: 1 as number | null,
+  mmr: null as MmrOptions | null,
+};
+
+interface Scored {
+  id: number;
+  score: number;
+}
 
 export function createRetriever(deps: {
   repo: Repository;
   indexes: VectorIndexes;
   embedder: Embedder;
   options: RetrieverOptions;
+  /** Needed only when options.synonymWeight is set. */
+  synonyms?: SynonymSource;
 }): Retriever {
   const { repo, indexes, embedder, options } = deps;
+  const termRepeat = options.termRepeat ?? DEFAULT_TUNING.termRepeat;
+  const rm3 = options.rm3 === undefined ? DEFAULT_TUNING.rm3 : options.rm3;
+  const synonymWeight = options.synonymWeight === undefined ? DEFAULT_TUNING.synonymWeight : options.synonymWeight;
+  const mmr = options.mmr === undefined ? DEFAULT_TUNING.mmr : options.mmr;
+  const denseFeedback = options.denseFeedback === undefined ? DEFAULT_TUNING.denseFeedback : options.denseFeedback;
 
-  const lexical = (collection: string, query: string, limit: number): { id: number; score: number }[] => {
-    const match = toMatchExpression(query);
-    if (!match) return [];
-    return repo.searchFts(collection, match, limit, options.fieldWeights).map((r) => ({ id: r.chunkId, score: r.score }));
+  // Rocchio (1971): move the query vector toward the centroid of the top lexical hits, whose stored vectors
+  // are at hand, so the dense leg searches near what BM25 already found relevant rather than near the bare
+  // question alone.
+  const feedbackVector = (query: Float32Array, top: readonly Scored[]): Float32Array => {
+    if (!denseFeedback) return query;
+    const ids = top.slice(0, rm3?.docs ?? 10).map((r) => r.id);
+    const views = repo.chunkViews(ids);
+    const vecs = repo.getVectors(embedder.id, [...views.values()].map((v) => v.chunkHash));
+    if (vecs.size === 0) return query;
+    const out = Float32Array.from(query);
+    for (const v of vecs.values()) for (let i = 0; i < out.length; i++) out[i] = out[i]! + (denseFeedback * v[i]!) / vecs.size;
+    let norm = 0;
+    for (let i = 0; i < out.length; i++) norm += out[i]! * out[i]!;
+    norm = Math.sqrt(norm) || 1;
+    for (let i = 0; i < out.length; i++) out[i] = out[i]! / norm;
+    return out;
   };
 
-  const dense = async (collection: string, vector: Float32Array | null, limit: number): Promise<{ id: number; score: number }[]> => {
+  const queryWeights = (query: string): Map<string, number> => {
+    const counts = termCounts(query);
+    if (synonymWeight && synonymWeight > 0 && deps.synonyms) {
+      for (const [t, n] of [...counts]) {
+        for (const s of deps.synonyms.synonyms(t)) if (!counts.has(s)) counts.set(s, n * synonymWeight);
+      }
+    }
+    return counts;
+  };
+
+  const ftsSearch = (collection: string, terms: WeightedTerm[], repeat: number, limit: number, filter?: RetrieveFilter): Scored[] => {
+    const match = toWeightedMatch(terms, { maxRepeat: repeat });
+    if (!match) return [];
+    return repo.searchFts(collection, match, limit, options.fieldWeights, filter).map((r) => ({ id: r.chunkId, score: r.score }));
+  };
+
+  const lexical = (collection: string, query: string, limit: number, filter?: RetrieveFilter): Scored[] => {
+    const weights = queryWeights(query);
+    const terms = [...weights].map(([term, weight]) => ({ term, weight }));
+    const first = ftsSearch(collection, terms, termRepeat, rm3 ? Math.max(limit, rm3.docs) : limit, filter);
+    if (!rm3 || first.length === 0) return first.slice(0, limit);
+    const views = repo.chunkViews(first.slice(0, rm3.docs).map((r) => r.id));
+    const feedback = first.slice(0, rm3.docs).flatMap((r) => {
+      const v = views.get(r.id);
+      return v ? [{ text: v.text, score: r.score }] : [];
+    });
+    // The expanded query spreads weight over many terms; a finer repeat scale keeps their proportions.
+    return ftsSearch(collection, rm3Expand(weights, feedback, rm3), termRepeat * 3, limit, filter);
+  };
+
+  const dense = (collection: string, vector: Float32Array | null, limit: number, allowed?: ReadonlySet<number>): Scored[] => {
     if (!vector) return [];
-    return indexes.search(collection, vector, limit).map((h) => ({ id: h.chunkId, score: h.score }));
+    return indexes.search(collection, vector, limit, allowed).map((h) => ({ id: h.chunkId, score: h.score }));
   };
 
   return {
@@ -57,12 +140,13 @@ export function createRetriever(deps: {
       }
       // Another process (a CLI ingest) may have changed the collection since the last query.
       if (wantsDense) indexes.sync(req.collection);
+      const filter = isEmptyFilter(req.filter) ? undefined : req.filter;
+      const allowed = filter && wantsDense ? allowedChunkIds(repo.db, req.collection, filter) : undefined;
       const limit = Math.max(req.k, options.candidates);
       const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
-      const [lex, den] = await Promise.all([
-        req.mode === 'dense' ? Promise.resolve([]) : Promise.resolve(lexical(req.collection, req.query, limit)),
-        wantsDense ? dense(req.collection, queryVector, limit) : Promise.resolve([]),
-      ]);
+      const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter);
+      const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;
+      const den = wantsDense ? dense(req.collection, denseQuery, limit, allowed) : [];
       const denseScore = new Map(den.map((d) => [d.id, d.score]));
       let ranked: { id: number; score: number; ranks: { lexical?: number; dense?: number } }[];
       if (req.mode === 'lexical') ranked = lex.map((r, i) => ({ id: r.id, score: r.score, ranks: { lexical: i + 1 } }));
@@ -76,18 +160,20 @@ export function createRetriever(deps: {
           options.rrfK,
         );
       }
-      const top = ranked.slice(0, req.k);
-      const views = repo.chunkViews(top.map((t) => t.id));
+      const diversify = req.diversify ?? mmr !== null;
+      const pool = diversify ? ranked.slice(0, Math.max(req.k * 4, 50)) : ranked.slice(0, req.k);
+      const views = repo.chunkViews(pool.map((t) => t.id));
+      const vectors = queryVector || diversify ? repo.getVectors(embedder.id, [...views.values()].map((v) => v.chunkHash)) : new Map<string, Float32Array>();
       if (queryVector) {
         // Lexical-only hits get their cosine too, from the stored vectors, so that answer-time evidence
         // checks see one comparable similarity for every hit.
-        const missing = [...views.values()].filter((v) => !denseScore.has(v.chunkId));
-        const vecs = repo.getVectors(embedder.id, missing.map((v) => v.chunkHash));
-        for (const v of missing) {
-          const vec = vecs.get(v.chunkHash);
-          if (vec) denseScore.set(v.chunkId, dot(queryVector, vec));
+        for (const v of views.values()) {
+          const vec = vectors.get(v.chunkHash);
+          if (!denseScore.has(v.chunkId) && vec) denseScore.set(v.chunkId, dot(queryVector, vec));
         }
       }
+      let top = pool;
+      if (diversify) top = diversifyPool(pool, views, vectors, req.k, mmr ?? DEFAULT_MMR);
       const hits: SearchHit[] = [];
       for (const t of top) {
         const v = views.get(t.id);
@@ -97,6 +183,34 @@ export function createRetriever(deps: {
       return hits;
     },
   };
+}
+
+function diversifyPool<T extends { id: number; score: number }>(
+  pool: readonly T[],
+  views: ReadonlyMap<number, ChunkView>,
+  vectors: ReadonlyMap<string, Float32Array>,
+  k: number,
+  opts: MmrOptions,
+): T[] {
+  const words = new Map<number, Set<string>>();
+  const wordsOf = (id: number): Set<string> => {
+    let w = words.get(id);
+    if (!w) {
+      w = new Set(queryTerms(views.get(id)?.text ?? ''));
+      words.set(id, w);
+    }
+    return w;
+  };
+  const vecOf = (id: number): Float32Array | undefined => {
+    const h = views.get(id)?.chunkHash;
+    return h === undefined ? undefined : vectors.get(h);
+  };
+  const sim = (a: T, b: T): number => {
+    const va = vecOf(a.id);
+    const vb = vecOf(b.id);
+    return va && vb ? dot(va, vb) : jaccard(wordsOf(a.id), wordsOf(b.id));
+  };
+  return mmrSelect(pool.map((item) => ({ item, relevance: item.score })), sim, k, opts);
 }
 
 function toHit(v: ChunkView, score: number, ranks: { lexical?: number; dense?: number }, denseScore?: number): SearchHit {

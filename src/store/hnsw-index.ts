@@ -45,7 +45,11 @@ export interface VectorIndexLogger {
 export interface VectorIndexes {
   /** Brings the collection's index in step with the database (loading, patching or rebuilding it). */
   sync(collection: string): { added: number; removed: number; rebuilt: boolean; size: number };
-  search(collection: string, vector: Float32Array, k: number): VectorHit[];
+  /**
+   * The k nearest live vectors; with `allowed`, only among those chunk ids, and still k of them when that
+   * many exist (the filter runs inside the graph search, with an exact scan when it is very selective).
+   */
+  search(collection: string, vector: Float32Array, k: number, allowed?: ReadonlySet<number>): VectorHit[];
   size(collection: string): number;
   /** Forgets in-memory state, e.g. before closing. */
   close(): void;
@@ -189,17 +193,31 @@ export function createVectorIndexes(deps: {
 
   return {
     sync,
-    search(c, vector, k) {
+    search(c, vector, k, allowed) {
       const state = loaded.get(c);
       if (!state || state.live.size === 0) return [];
-      const n = Math.min(k, state.live.size);
-      if (state.index.getEf() < n) state.index.setEf(n);
-      const res = state.index.searchKnn(Array.from(vector), n);
-      const hits: VectorHit[] = [];
-      for (let i = 0; i < res.neighbors.length; i++) {
-        hits.push({ chunkId: res.neighbors[i]!, score: 1 - res.distances[i]! });
+      const query = Array.from(vector);
+      if (allowed) {
+        const ids = [...allowed].filter((id) => state.live.has(id));
+        const n = Math.min(k, ids.length);
+        if (n === 0) return [];
+        // Below a few thousand allowed vectors an exact scan costs about what a filtered graph walk does,
+        // and a graph walk through a sparse filter can strand itself in regions with no allowed node.
+        if (ids.length <= EXACT_SCAN_LIMIT) return exactSearch(state.index, query, ids, n);
+        let ef = Math.max(params.efSearch, n);
+        for (;;) {
+          state.index.setEf(ef);
+          const res = state.index.searchKnn(query, n, (label) => allowed.has(label));
+          if (res.neighbors.length >= n || ef >= ids.length) {
+            state.index.setEf(params.efSearch);
+            return toHits(res);
+          }
+          ef *= 4;
+        }
       }
-      return hits;
+      const n = Math.min(k, state.live.size);
+      state.index.setEf(Math.max(params.efSearch, n));
+      return toHits(state.index.searchKnn(query, n));
     },
     size(c) {
       return loaded.get(c)?.live.size ?? 0;
@@ -208,6 +226,24 @@ export function createVectorIndexes(deps: {
       loaded.clear();
     },
   };
+}
+
+const EXACT_SCAN_LIMIT = 2000;
+
+function toHits(res: { neighbors: number[]; distances: number[] }): VectorHit[] {
+  const hits: VectorHit[] = [];
+  for (let i = 0; i < res.neighbors.length; i++) hits.push({ chunkId: res.neighbors[i]!, score: 1 - res.distances[i]! });
+  return hits;
+}
+
+function exactSearch(index: Hnsw, query: number[], ids: readonly number[], n: number): VectorHit[] {
+  const scored = ids.map((id) => {
+    const v = index.getPoint(id);
+    let s = 0;
+    for (let i = 0; i < query.length; i++) s += query[i]! * v[i]!;
+    return { chunkId: id, score: s };
+  });
+  return scored.sort((a, b) => b.score - a.score || a.chunkId - b.chunkId).slice(0, n);
 }
 
 function deletedOf(state: Loaded): Set<number> {

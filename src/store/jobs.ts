@@ -23,6 +23,8 @@ export interface Jobs {
   succeed(id: string, result: unknown): void;
   fail(id: string, error: string, result?: unknown): void;
   get(id: string): JobRecord | null;
+  /** Number of jobs in each state. */
+  counts(): { state: JobState; count: number }[];
   /** Jobs left `running` by a process that died are marked failed so they can be retried. */
   failAbandoned(reason: string): number;
 }
@@ -71,6 +73,9 @@ export function createJobs(db: Db, clock: () => Date = () => new Date()): Jobs {
     get(id) {
       const r = db.prepare('SELECT * FROM jobs WHERE id = ?').get(id) as Record<string, unknown> | undefined;
       return r ? toJob(r) : null;
+    },
+    counts() {
+      return db.prepare('SELECT state, count(*) AS count FROM jobs GROUP BY state').all() as { state: JobState; count: number }[];
     },
     failAbandoned(reason) {
       return db

@@ -88,4 +88,22 @@ export const MIGRATIONS: readonly string[] = [
   );
   CREATE INDEX jobs_by_state ON jobs(state, created_at);
   `,
+  // 2: re-fill the FTS columns without repeating the title (see ftsColumns in repository.ts). SQL cannot run
+  // that function, so this covers the shape every loader produces: the path's first heading dropped when it
+  // is the title, and the chunk's own heading line (the path's last entry) cut from the start of the body.
+  // Chunks written from now on go through ftsColumns itself.
+  `
+  INSERT INTO chunks_fts(chunks_fts) VALUES ('delete-all');
+  INSERT INTO chunks_fts (rowid, title, heading, body)
+  SELECT k.id, trim(d.title),
+    coalesce((SELECT group_concat(trim(j.value), ' > ') FROM json_each(k.heading_path) j
+              WHERE trim(j.value) <> '' AND trim(j.value) <> trim(d.title)), ''),
+    CASE
+      WHEN json_array_length(k.heading_path) > 0
+        AND substr(k.text, 1, length(json_extract(k.heading_path, '$[#-1]')) + 1) = json_extract(k.heading_path, '$[#-1]') || char(10)
+      THEN ltrim(substr(k.text, length(json_extract(k.heading_path, '$[#-1]')) + 1), char(10))
+      ELSE k.text
+    END
+  FROM chunks k JOIN documents d ON d.id = k.document_id;
+  `,
 ];

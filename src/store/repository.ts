@@ -80,6 +80,12 @@ export interface FtsRow {
   score: number;
 }
 
+/** Narrows a search to some documents: by id, and/or by exact values of document metadata keys. */
+export interface SearchFilter {
+  documentIds?: readonly string[];
+  metadata?: Readonly<Record<string, string>>;
+}
+
 export interface Repository {
   readonly db: Db;
   ensureCollection(name: string): void;
@@ -103,7 +109,7 @@ export interface Repository {
   chunksOfCollection(collection: string): { id: number; chunkHash: string }[];
   chunkViews(ids: readonly number[]): Map<number, ChunkView>;
   getVectors(modelId: string, hashes: readonly string[]): Map<string, Float32Array>;
-  searchFts(collection: string, match: string, limit: number, weights: FtsWeights): FtsRow[];
+  searchFts(collection: string, match: string, limit: number, weights: FtsWeights, filter?: SearchFilter): FtsRow[];
   transaction<T>(fn: () => T): T;
 }
 
@@ -114,6 +120,30 @@ export interface FtsWeights {
 }
 
 const now = (): string => new Date().toISOString();
+
+/**
+ * What one chunk puts in each FTS column. A chunk's text starts with the heading lines above it and its
+ * heading path usually starts with the document title, so indexing them as they are counts the title up to
+ * three times (title, heading and body columns) and outweighs the body. Each column keeps only what no other
+ * column already holds; the column weights then decide how much a title or heading match is worth.
+ */
+export function ftsColumns(title: string, headingPath: readonly string[], text: string): { title: string; heading: string; body: string } {
+  const t = title.trim();
+  const headings = headingPath.map((h) => h.trim()).filter((h) => h !== '' && h !== t);
+  const known = new Set([t, ...headings]);
+  let body = text;
+  for (;;) {
+    const nl = body.indexOf('\n');
+    const first = (nl < 0 ? body : body.slice(0, nl)).trim();
+    if (first === '' && nl >= 0) {
+      body = body.slice(nl + 1);
+      continue;
+    }
+    if (!known.has(first)) break;
+    body = nl < 0 ? '' : body.slice(nl + 1);
+  }
+  return { title: t, heading: headings.join(' > '), body };
+}
 
 export function vectorToBlob(v: Float32Array): Buffer {
   return Buffer.from(v.buffer, v.byteOffset, v.byteLength);
@@ -254,7 +284,6 @@ export function createRepository(db: Db): Repository {
           const removedChunkIds = removeChunksOf(doc.id);
           st.upsertDoc.run({ ...doc, metadata: JSON.stringify(doc.metadata), now: now() });
           const chunkIds: number[] = [];
-          const heading = (c: ChunkInput): string => c.headingPath.join(' > ');
           for (const c of chunks) {
             const info = st.insertChunk.run(
               doc.id,
@@ -270,7 +299,8 @@ export function createRepository(db: Db): Repository {
             );
             const id = Number(info.lastInsertRowid);
             chunkIds.push(id);
-            st.insertFts.run(id, doc.title, heading(c), c.text);
+            const cols = ftsColumns(doc.title, c.headingPath, c.text);
+            st.insertFts.run(id, cols.title, cols.heading, cols.body);
             const v = vectors.get(c.chunkHash);
             if (v) st.insertVector.run(modelId, c.chunkHash, v.length, vectorToBlob(v));
           }
@@ -335,16 +365,28 @@ export function createRepository(db: Db): Repository {
       }
       return out;
     },
-    searchFts(collection, match, limit, w) {
+    searchFts(collection, match, limit, w, filter) {
       // FTS5's bm25() returns "more negative is better"; we negate it so larger is better everywhere else.
+      // The filter sits in the same statement, so LIMIT counts only rows that pass it.
+      const where: string[] = [];
+      const params: unknown[] = [];
+      if (filter?.documentIds) {
+        if (filter.documentIds.length === 0) return [];
+        where.push(`d.id IN (SELECT value FROM json_each(?))`);
+        params.push(JSON.stringify(filter.documentIds));
+      }
+      for (const [key, value] of Object.entries(filter?.metadata ?? {})) {
+        where.push(`json_extract(d.metadata, ?) = ?`);
+        params.push(`$.${JSON.stringify(key)}`, value);
+      }
       const rows = db
         .prepare(
           `SELECT f.rowid AS chunkId, -bm25(chunks_fts, ?, ?, ?) AS score
            FROM chunks_fts f JOIN chunks k ON k.id = f.rowid JOIN documents d ON d.id = k.document_id
-           WHERE chunks_fts MATCH ? AND d.collection = ?
+           WHERE chunks_fts MATCH ? AND d.collection = ?${where.map((x) => ` AND ${x}`).join('')}
            ORDER BY bm25(chunks_fts, ?, ?, ?) LIMIT ?`,
         )
-        .all(w.title, w.heading, w.body, match, collection, w.title, w.heading, w.body, limit) as FtsRow[];
+        .all(w.title, w.heading, w.body, match, collection, ...params, w.title, w.heading, w.body, limit) as FtsRow[];
       return rows;
     },
     transaction(fn) {

@@ -159,6 +159,16 @@ describe('chunkDocument structure', () => {
     expect(chunks[1]!.text.startsWith('stop10 ')).toBe(true);
   });
 
+  it('cuts a 100,000-character run without spaces quickly, keeping accents on their letters', () => {
+    // Regression: splitting such a run with Intl.Segmenter's grapheme iterator took minutes.
+    const run = 'e\u0301'.repeat(50_000);
+    const doc = buildNormalisedDocument([{ kind: 'paragraph', text: run }]);
+    const perFour: TokenCounter = (t) => Math.ceil(t.length / 4) + 2;
+    const chunks = chunkDocument(doc, { targetTokens: 200, maxTokens: 256, overlapTokens: 16, countTokens: perFour });
+    expect(chunks.map((c) => c.text).join('')).toBe(doc.text);
+    expect(chunks.every((c) => c.tokenCount <= 256 && !/^\p{M}/u.test(c.text))).toBe(true);
+  });
+
   it('gives unpaged documents null pages', () => {
     const doc = buildNormalisedDocument([{ kind: 'paragraph', text: 'Bikes ride free off-peak.' }]);
     const [c] = chunkDocument(doc, { targetTokens: 50, maxTokens: 60, overlapTokens: 5, countTokens: words });

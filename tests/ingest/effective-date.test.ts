@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { findEffectiveDate, parseDateAt } from '../../src/ingest/effective-date.js';
+import { findEffectiveDate, findVersion, parseDateAt, withVersion } from '../../src/ingest/effective-date.js';
 
 describe('findEffectiveDate', () => {
   it('prefers front matter keys effective, effective_date, then date', () => {
@@ -30,5 +30,31 @@ describe('findEffectiveDate', () => {
   it('knows leap years (Gregorian rule: 2028 is one, 2100 is not)', () => {
     expect(parseDateAt('29 Feb 2028')).toBe('2028-02-29');
     expect(parseDateAt('29/02/2100')).toBeNull();
+  });
+});
+
+describe('findVersion', () => {
+  it('prefers front matter keys version, revision, then issue', () => {
+    expect(findVersion('Version 1.0', { Version: '2026.2', issue: '7' })).toBe('2026.2');
+    expect(findVersion('', { issue: '7' })).toBe('7');
+  });
+
+  it('reads a version or issue label at a line start or after a separator', () => {
+    expect(findVersion('Fares and Tickets\nVersion 3.1\nThese fares apply.', {})).toBe('3.1');
+    expect(findVersion('Staff Handbook - Issue 4', {})).toBe('4');
+    expect(findVersion('Document version: 2.0b', {})).toBe('2.0b');
+    expect(findVersion('Lost property | Revision 12', {})).toBe('12');
+    expect(findVersion('Policy v. text\nVersion v5', {})).toBe('5');
+  });
+
+  it('ignores the words inside ordinary sentences', () => {
+    expect(findVersion('Drivers issue 2 tickets per child. The version 3 form is gone.', {})).toBeNull();
+    expect(findVersion('Refunds are paid within 14 days.', {})).toBeNull();
+  });
+
+  it('adds the version to metadata only when the metadata lacks one', () => {
+    expect(withVersion({ title: 'Fares' }, 'Version 3')).toEqual({ title: 'Fares', version: '3' });
+    expect(withVersion({ version: '9' }, 'Version 3')).toEqual({ version: '9' });
+    expect(withVersion({}, 'no label here')).toEqual({});
   });
 });

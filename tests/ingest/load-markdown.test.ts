@@ -71,6 +71,11 @@ describe('Markdown details', () => {
     ]);
   });
 
+  it('reads front matter from a file with Windows line endings', () => {
+    const doc = loadMarkdown(new TextEncoder().encode('---\r\ntitle: Night Buses\r\neffective_date: 2026-05-01\r\n---\r\nBody.\r\n'), 'n.md');
+    expect([doc.title, doc.effectiveDate, doc.blocks.length]).toEqual(['Night Buses', '2026-05-01', 1]);
+  });
+
   it('leaves arithmetic and inner underscores alone', () => {
     expect(stripInline('3 * 4 = 12, file_name and *stress* or __strong__')).toBe('3 * 4 = 12, file_name and stress or strong');
   });

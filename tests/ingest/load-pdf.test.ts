@@ -1,6 +1,14 @@
 import { describe, expect, it } from 'vitest';
-import { headingShape, loadPdf, NO_TEXT_MESSAGE, pagesToBlocks, rejoinHyphenated, removeRunningLines } from '../../src/ingest/load-pdf.js';
-import { buildPdf } from './pdf-fixture.js';
+import {
+  ENCRYPTED_MESSAGE,
+  headingShape,
+  loadPdf,
+  NO_TEXT_MESSAGE,
+  pagesToBlocks,
+  rejoinHyphenated,
+  removeRunningLines,
+} from '../../src/ingest/load-pdf.js';
+import { buildEncryptedPdf, buildPdf } from './pdf-fixture.js';
 
 const HEADER = 'Marrowgate Valley Transit - Staff Handbook - Issue 4';
 const PAGE_3_SENTENCE = 'Report every faulty ticket machine to the depot controller before noon.';
@@ -98,6 +106,18 @@ describe('loadPdf', async () => {
     expect(NO_TEXT_MESSAGE).toBe('no extractable text (scanned image? OCR is not supported)');
   });
 
+  it('says that an encrypted PDF is not supported, from pdf.js\'s PasswordException', async () => {
+    // The trailer's /Encrypt entry makes pdf.js ask for a password (ISO 32000-1 §7.6.3).
+    await expect(loadPdf(buildEncryptedPdf(), 'locked.pdf')).rejects.toThrow(ENCRYPTED_MESSAGE);
+    expect(ENCRYPTED_MESSAGE).toBe('encrypted PDF (password protected) is not supported');
+  });
+
+  it('takes the version from the running header that clean-up removes', () => {
+    // The handbook's header reads "... - Issue 4" on every page; the body states no version.
+    expect(doc.metadata['version']).toBe('4');
+    expect(all).not.toContain('Issue 4');
+  });
+
   it('falls back to the first heading, then the file name, for the title', async () => {
     const untitled = await loadPdf(await buildPdf([{ lines: ['Night Services', 'Trams run until midnight.'] }]), 'night.pdf');
     expect(untitled.title).toBe('Night Services');
@@ -136,6 +156,43 @@ describe('PDF text clean-up', () => {
     expect(headingShape('LOST PROPERTY')).toBe(0);
     expect(headingShape('Refunds are paid within 14 days.')).toBeNull();
     expect(headingShape('the service runs hourly')).toBeNull();
+  });
+
+  it('keeps runs of short unpunctuated lines as table rows and numbered steps as a list', () => {
+    const long = 'Personal protective equipment must be worn in every work area of the depot';
+    const blocks = pagesToBlocks([
+      [
+        long,
+        'as shown in the grid below.',
+        'Area Hi-vis Boots Helmet',
+        'Depot yard Yes Yes No',
+        'Track work Yes Yes Yes',
+        'Isolation follows these steps, in this order, before any work starts on the line:',
+        '1. Request the isolation from Tram Control and agree the section to be',
+        'isolated.',
+        '2. Lock off the section switch.',
+        'Work must not start until the permit has been signed by both people here.',
+        'Short end.',
+      ],
+    ]);
+    expect(blocks.map((b) => [b.kind, b.text])).toEqual([
+      ['paragraph', `${long} as shown in the grid below.`],
+      ['table', 'Area Hi-vis Boots Helmet\nDepot yard Yes Yes No\nTrack work Yes Yes Yes'],
+      ['paragraph', 'Isolation follows these steps, in this order, before any work starts on the line:'],
+      ['list', '1. Request the isolation from Tram Control and agree the section to be isolated.\n2. Lock off the section switch.'],
+      ['paragraph', 'Work must not start until the permit has been signed by both people here. Short end.'],
+    ]);
+  });
+
+  it('finds a numbered heading after a full-width line that ends a sentence', () => {
+    const blocks = pagesToBlocks([
+      [
+        'The Customer Contact Centre is staffed every day, so rosters include weekends.',
+        '3. Annual leave',
+        'Full-time employees receive 30 days of annual leave each year, including holidays.',
+      ],
+    ]);
+    expect(blocks.map((b) => b.kind)).toEqual(['paragraph', 'heading', 'paragraph']);
   });
 
   it('never lets a paragraph run across a page break', () => {

