@@ -1,6 +1,5 @@
 import rateLimit from '@fastify/rate-limit';
 import Fastify, { type FastifyBaseLogger, type FastifyError, type FastifyInstance, type FastifyRequest } from 'fastify';
-import type { z } from 'zod';
 import type { Config } from '../config/index.js';
 import { SourceboundError, type ErrorCode } from '../errors.js';
 import type { Logger } from '../logger.js';
@@ -15,7 +14,9 @@ import {
   type Scope,
 } from './auth.js';
 import type { Metrics } from './metrics.js';
-import { answerBody, searchBody } from './schemas.js';
+import { registerAnswerRoute } from './answer-route.js';
+import { searchBody } from './schemas.js';
+import { parse, withDeadline } from './util.js';
 
 export interface AnswerRequest {
   question: string;
@@ -56,7 +57,6 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
   });
   const limits = config.limits;
   const searchSchema = searchBody(limits);
-  const answerSchema = answerBody(limits);
   const auth = createAuthenticator(config.auth, config.server.host);
   const metrics = deps.metrics;
 
@@ -170,58 +170,10 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
       };
     });
 
-    r.post('/v1/answer', async (req) => {
-      const body = parse(answerSchema, req.body);
-      const collection = body.collection ?? config.seed.collection;
-      guard(req, 'query', 'ask questions', collection);
-      const retrievalMode = body.retrieval ?? (isSearchMode(body.mode) ? body.mode : 'hybrid');
-      const deadline = AbortSignal.timeout(config.server.requestTimeoutMs);
-      const request: AnswerRequest = {
-        question: body.question,
-        collection,
-        k: body.k ?? config.retrieval.k,
-        mode: retrievalMode,
-        style: body.mode === 'extractive' ? 'extractive' : 'auto',
-        signal: deadline,
-      };
-      if (body.history) request.history = body.history;
-      const result = await withDeadline(deps.answer(request), config.server.requestTimeoutMs);
-      metrics?.answers.inc({ mode: result.mode, abstained: String(result.abstained) });
-      if (result.fallbackReason) metrics?.answerFallbacks.inc({ reason: result.fallbackReason });
-      return result;
-    });
+    registerAnswerRoute(r, { config, deps, guard });
   });
 
   return app;
-}
-
-function isSearchMode(m: string | undefined): m is SearchMode {
-  return m === 'hybrid' || m === 'lexical' || m === 'dense';
-}
-
-async function withDeadline<T>(work: Promise<T>, ms: number): Promise<T> {
-  let timer: NodeJS.Timeout | undefined;
-  const deadline = new Promise<never>((_, reject) => {
-    timer = setTimeout(() => reject(new SourceboundError('SB_ERR_DEADLINE', [ms])), ms);
-  });
-  try {
-    return await Promise.race([work, deadline]);
-  } finally {
-    clearTimeout(timer);
-  }
-}
-
-function parse<T>(schema: z.ZodType<T>, body: unknown): T {
-  if (body === undefined || body === null || typeof body !== 'object' || Array.isArray(body)) {
-    throw new SourceboundError('SB_ERR_VALIDATION', ['the body must be a JSON object'], { issues: [] });
-  }
-  const r = schema.safeParse(body);
-  if (!r.success) {
-    const issues = r.error.issues.map((i) => ({ path: i.path.map(String), code: i.code, message: i.message }));
-    const summary = issues.map((i) => (i.path.length ? `${i.path.join('.')}: ${i.message}` : i.message)).join('; ');
-    throw new SourceboundError('SB_ERR_VALIDATION', [summary], { issues });
-  }
-  return r.data;
 }
 
 function mapError(

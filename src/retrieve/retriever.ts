@@ -50,7 +50,7 @@ export const DEFAULT_FIELD_WEIGHTS: FtsWeights = { title: 2, heading: 1, body: 1
 
 /** Settings the service runs with when the caller leaves them out; each chosen by measurement on CISI. */
 export const DEFAULT_TUNING = {
-  termRepeat: 3,
+  termRepeat: 6,
   rm3: DEFAULT_RM3 as Rm3Options | null,
   synonymWeight: null as number | null,
   denseFeedback: 1 as number | null,
