@@ -77,6 +77,11 @@ const VERSION_KEYS = ['version', 'revision', 'issue'];
 const VERSION =
   /(?:^|[|–—·•(]\s*|\s-\s+|,\s*)(?:Document\s+|DOCUMENT\s+)?(?:Version|VERSION|[Vv]ersion(?=\s*[:#])|Revision|REVISION|Rev\.|Issue|ISSUE)\s*(?:no\.?\s*|number\s*)?[:#]?\s*[vV]?(\d{1,4}(?:\.\d{1,4}){0,3}[a-z]?)(?![\w.]*\d)/gmu;
 
+// "Document code MVT-HR-014, issue 3.": lower case is accepted only as a clause of its own, after
+// a comma or semicolon (or at a line start) and ending at punctuation, so "issue 2 tickets" is not one.
+const CLAUSE_VERSION =
+  /(?:^|[,;]\s*)(?:document\s+)?(?:version|revision|issue)\s+(?:no\.?\s*)?v?(\d{1,4}(?:\.\d{1,4}){0,3}[a-z]?)(?=\s*(?:[.,;)]|$))/gmu;
+
 /**
  * The version or issue a document states of itself: front-matter style metadata first
  * (`version`, `revision`, `issue`), then the first "Version 3.1" / "Issue 4" label in the text.
@@ -87,8 +92,14 @@ export function findVersion(text: string, metadata: Record<string, string>): str
     const value = lowered.get(key);
     if (value) return value;
   }
-  for (const m of text.matchAll(VERSION)) return m[1]!;
-  return null;
+  // The earliest statement wins, whichever of the two forms it takes.
+  const found = [VERSION, CLAUSE_VERSION]
+    .map((re) => re.exec(text) ?? null)
+    .filter((m): m is RegExpExecArray => m !== null)
+    .sort((a, b) => a.index - b.index);
+  VERSION.lastIndex = 0;
+  CLAUSE_VERSION.lastIndex = 0;
+  return found[0]?.[1] ?? null;
 }
 
 /** Metadata with `version` filled in when the document states one and the metadata lacks it. */

@@ -47,8 +47,15 @@ describe('findVersion', () => {
     expect(findVersion('Policy v. text\nVersion v5', {})).toBe('5');
   });
 
+  it('reads a lower-case issue clause such as the demo PDFs carry, and takes the earliest statement', () => {
+    expect(findVersion('Effective from 1 January 2026.\nDocument code MVT-HR-014, issue 3. Owner: People Team.', {})).toBe('3');
+    expect(findVersion('Staff Handbook, issue 3.\nVersion 9', {})).toBe('3');
+    expect(findVersion('Version 9\nStaff Handbook, issue 3.', {})).toBe('9');
+  });
+
   it('ignores the words inside ordinary sentences', () => {
     expect(findVersion('Drivers issue 2 tickets per child. The version 3 form is gone.', {})).toBeNull();
+    expect(findVersion('On busy days, issue 2 tickets at most; revision 4 forms are gone.', {})).toBeNull();
     expect(findVersion('Refunds are paid within 14 days.', {})).toBeNull();
   });
 
