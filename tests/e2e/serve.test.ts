@@ -129,4 +129,37 @@ describe('the CLI', () => {
       rmSync(dir, { recursive: true, force: true });
     }
   });
+
+  it('makes an API key whose printed entry matches the key by SHA-256', async () => {
+    const r = spawnSync(process.execPath, [CLI, 'key', 'new', '--id', 'desk', '--scopes', 'query,ingest', '--collections', 'default'], { cwd: ROOT, encoding: 'utf8' });
+    expect(r.status).toBe(0);
+    const key = /\n  (sb_\S+)\n/.exec(r.stdout)![1]!;
+    const entry = JSON.parse(r.stdout.slice(r.stdout.indexOf('{')));
+    const { createHash } = await import('node:crypto');
+    expect(entry).toEqual({ id: 'desk', sha256: createHash('sha256').update(key).digest('hex'), scopes: ['query', 'ingest'], collections: ['default'] });
+  });
+
+  it('refuses to serve on a non-loopback address without keys', () => {
+    const r = spawnSync(process.execPath, [CLI, 'serve'], { cwd: ROOT, env: { ...process.env, HOST: '0.0.0.0', PORT: '0' }, encoding: 'utf8', timeout: 20_000 });
+    expect(r.status).not.toBe(0);
+    expect(r.stderr).toMatch(/no API keys/);
+  });
+
+  it('backs up the database to a file that opens and holds the documents', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-backup-'));
+    try {
+      const env = { ...process.env, SOURCEBOUND_DATA_DIR: dir, SOURCEBOUND_EMBEDDER: 'hashing' };
+      expect(spawnSync(process.execPath, [CLI, 'ingest', path.join(ROOT, 'seed-docs', 'lost-property.md'), '--json'], { cwd: ROOT, env, encoding: 'utf8' }).status).toBe(0);
+      const dest = path.join(dir, 'copy.db');
+      const r = spawnSync(process.execPath, [CLI, 'backup', dest], { cwd: ROOT, env, encoding: 'utf8' });
+      expect(r.status, r.stderr).toBe(0);
+      const Database = (await import('better-sqlite3')).default;
+      const db = new Database(dest, { readonly: true });
+      expect((db.prepare('SELECT count(*) AS n FROM documents').get() as { n: number }).n).toBe(1);
+      expect(db.pragma('integrity_check', { simple: true })).toBe('ok');
+      db.close();
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
 });
