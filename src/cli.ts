@@ -7,6 +7,7 @@ import { existsSync, realpathSync } from 'node:fs';
 import path from 'node:path';
 import { authEnforced, checkAuthConfig, sha256Hex } from './api/auth.js';
 import { openDatabase, storePaths } from './store/index.js';
+import { createDocumentService, createJobQueue, requeueAbandoned, withReindexLock } from './jobs/index.js';
 import { parseArgs } from 'node:util';
 import { buildApp } from './api/app.js';
 import { configReference, loadConfig, redactConfig, type Config } from './config/index.js';
@@ -92,7 +93,9 @@ async function serve(env: Record<string, string | undefined>): Promise<number> {
     `embedder: ${rt.embedderReason}`,
   );
   let ready = false;
-  const app = buildApp(cfg, appDeps(rt, () => ready));
+  requeueAbandoned(rt);
+  const queue = createJobQueue({ rt, config: cfg, logger, mode: 'thread' });
+  const app = buildApp(cfg, appDeps(rt, () => ready, createDocumentService(rt, queue)));
   let closing = false;
   const shutdown = async (signal: string): Promise<void> => {
     if (closing) return;
@@ -100,6 +103,7 @@ async function serve(env: Record<string, string | undefined>): Promise<number> {
     logger.info({ signal }, 'shutting down: finishing in-flight requests');
     try {
       await app.close();
+      await queue.close();
     } finally {
       rt.close();
       logger.info('stopped');
@@ -192,7 +196,9 @@ async function reindex(args: string[], env: Record<string, string | undefined>):
   return withRuntime(cfg, flags.json ?? false, async (rt, progress) => {
     const opts: { collection?: string; full?: boolean } = { full: flags.full ?? false };
     if (flags.collection) opts.collection = flags.collection;
-    const s = await ingestAsJob(rt, 'reindex', flags.collection ?? null, opts, () => rt.ingestor.reindex(opts));
+    const s = await ingestAsJob(rt, 'reindex', flags.collection ?? null, opts, () =>
+      withReindexLock(cfg.dataDir, () => rt.ingestor.reindex(opts)),
+    );
     progress.done();
     report(s, flags.json ?? false);
     return s.documents.failed > 0 ? 1 : 0;

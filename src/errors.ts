@@ -26,6 +26,11 @@ export const ERRORS = {
   SB_ERR_RATE_LIMITED: { status: 429, message: 'Too many requests for this key; retry in %s seconds' },
   SB_ERR_DEADLINE: { status: 503, message: 'The request did not finish within %s ms' },
   SB_ERR_AUTH_CONFIG: { status: 500, message: '%s' },
+  SB_ERR_REINDEX_RUNNING: { status: 409, message: 'A re-index is already running (process %s, since %s); try again when it has finished' },
+  SB_ERR_UNKNOWN_DOCUMENT: { status: 404, message: 'No document "%s" in this collection' },
+  SB_ERR_UNKNOWN_JOB: { status: 404, message: 'No job "%s"' },
+  SB_ERR_BAD_FILE_NAME: { status: 400, message: 'Unusable file name: %s' },
+  SB_ERR_UPLOAD_TOO_LARGE: { status: 413, message: 'The upload is larger than the limit of %s bytes' },
 } as const;
 
 export type ErrorCode = keyof typeof ERRORS;

@@ -10,6 +10,7 @@ import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary 
 import type { Logger } from './logger.js';
 import { createMetrics, type Metrics } from './api/metrics.js';
 import { createLimiter } from './limiter.js';
+import type { DocumentService } from './jobs/index.js';
 import type { CompletionClient } from './answer/index.js';
 import { createRetriever, DEFAULT_FIELD_WEIGHTS, type Retriever } from './retrieve/index.js';
 import {
@@ -233,8 +234,9 @@ export async function ingestAsJob(
 }
 
 /** The HTTP layer's view of a runtime. */
-export function appDeps(rt: Runtime, isReady: () => boolean): AppDeps {
+export function appDeps(rt: Runtime, isReady: () => boolean, documents?: DocumentService): AppDeps {
   return {
+    ...(documents ? { documents } : {}),
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,

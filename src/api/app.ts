@@ -15,6 +15,8 @@ import {
 } from './auth.js';
 import type { Metrics } from './metrics.js';
 import { registerAnswerRoute } from './answer-route.js';
+import { registerDocumentRoutes } from './documents-route.js';
+import type { DocumentService } from '../jobs/index.js';
 import { searchBody } from './schemas.js';
 import { parse, withDeadline } from './util.js';
 
@@ -38,6 +40,8 @@ export interface AppDeps {
   health(): Record<string, unknown>;
   collections(): { name: string; documents: number; chunks: number; embedderId: string | null }[];
   metrics?: Metrics;
+  /** The document API; absent in read-only deployments and some tests. */
+  documents?: DocumentService;
 }
 
 declare module 'fastify' {
@@ -100,7 +104,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
   }
 
   app.setErrorHandler((err: FastifyError | SourceboundError, req, reply) => {
-    const { status, code, message, details } = mapError(err, config.server.bodyLimitBytes);
+    const { status, code, message, details } = mapError(err, config.server.bodyLimitBytes, config.limits.documentMaxBytes);
     if (status >= 500 && code !== 'SB_ERR_BUSY' && code !== 'SB_ERR_NOT_READY' && code !== 'SB_ERR_DEADLINE') {
       req.log.error({ err }, 'request failed');
     } else {
@@ -171,6 +175,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     });
 
     registerAnswerRoute(r, { config, deps, guard });
+    if (deps.documents) await registerDocumentRoutes(r, { config, documents: deps.documents, guard });
   });
 
   return app;
@@ -179,6 +184,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
 function mapError(
   err: FastifyError | SourceboundError | Error,
   bodyLimit: number,
+  uploadLimit: number,
 ): { status: number; code: ErrorCode; message: string; details: unknown } {
   if (err instanceof SourceboundError) {
     return { status: err.status, code: err.code, message: err.message, details: err.details ?? null };
@@ -188,6 +194,7 @@ function mapError(
     const e = new SourceboundError(code, args);
     return { status: e.status, code, message: e.message, details: null };
   };
+  if (fe.code === 'FST_REQ_FILE_TOO_LARGE') return make('SB_ERR_UPLOAD_TOO_LARGE', uploadLimit);
   if (fe.statusCode === 413 || fe.code === 'FST_ERR_CTP_BODY_TOO_LARGE') return make('SB_ERR_BODY_TOO_LARGE', bodyLimit);
   if (fe.statusCode === 415 || fe.code === 'FST_ERR_CTP_INVALID_MEDIA_TYPE') return make('SB_ERR_UNSUPPORTED_MEDIA_TYPE');
   if (fe.code === 'FST_ERR_CTP_EMPTY_JSON_BODY') return make('SB_ERR_VALIDATION', 'the body is empty; send a JSON object');

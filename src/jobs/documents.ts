@@ -1,0 +1,149 @@
+import { createHash, randomUUID } from 'node:crypto';
+import { createWriteStream, mkdirSync, renameSync, rmSync, unlinkSync } from 'node:fs';
+import path from 'node:path';
+import { pipeline } from 'node:stream/promises';
+import type { Readable } from 'node:stream';
+import { SourceboundError } from '../errors.js';
+import type { Runtime } from '../runtime.js';
+import type { DocumentRecord, JobRecord } from '../store/index.js';
+import type { JobQueue } from './queue.js';
+
+export type UploadOutcome =
+  | { status: 'queued'; job: JobRecord; source: string }
+  | { status: 'unchanged'; documentId: string; source: string };
+
+export interface DocumentSummary {
+  id: string;
+  source: string;
+  title: string;
+  format: string;
+  byteSize: number;
+  pageCount: number | null;
+  effectiveDate: string | null;
+  contentHash: string;
+  chunks: number;
+  metadata: Record<string, string>;
+  updatedAt: string;
+}
+
+export interface DocumentService {
+  /** Streams an upload to disk (bounded), then queues its ingestion; identical content is a no-op. */
+  upload(collection: string, name: string, body: Readable | Uint8Array): Promise<UploadOutcome>;
+  list(collection: string): DocumentSummary[];
+  get(collection: string, id: string): DocumentSummary;
+  remove(collection: string, id: string): { chunksRemoved: number };
+  job(id: string): JobRecord;
+  reindex(opts: { collection?: string; full?: boolean }): JobRecord;
+}
+
+const ALLOWED_EXTENSIONS = new Set(['.pdf', '.md', '.markdown', '.html', '.htm', '.txt', '.text']);
+
+/** Rejects anything but a plain file name: no folders, no traversal, no hidden or control characters. */
+export function checkFileName(name: string): string {
+  const n = name.normalize('NFC');
+  const bad = (why: string): never => {
+    throw new SourceboundError('SB_ERR_BAD_FILE_NAME', [why]);
+  };
+  if (n.length === 0 || n.length > 200) bad('a file name is 1-200 characters');
+  if (/[\u0000-\u001f\u007f/\\]/u.test(n)) bad('no slashes, backslashes or control characters');
+  if (n.startsWith('.') || n === '..') bad('a file name may not start with "."');
+  if (!/^[\p{L}\p{N}]/u.test(n)) bad('a file name starts with a letter or digit');
+  const ext = path.extname(n).toLowerCase();
+  if (!ALLOWED_EXTENSIONS.has(ext)) bad(`the extension must be one of ${[...ALLOWED_EXTENSIONS].join(', ')}`);
+  return n;
+}
+
+export function createDocumentService(rt: Runtime, queue: JobQueue): DocumentService {
+  const uploadsRoot = path.join(rt.config.dataDir, 'uploads');
+  const maxBytes = rt.config.limits.documentMaxBytes;
+
+  const summary = (d: DocumentRecord): DocumentSummary => ({
+    id: d.id,
+    source: d.source,
+    title: d.title,
+    format: d.format,
+    byteSize: d.byteSize,
+    pageCount: d.pageCount,
+    effectiveDate: d.effectiveDate,
+    contentHash: d.contentHash,
+    chunks: (rt.db.prepare('SELECT count(*) AS n FROM chunks WHERE document_id = ?').get(d.id) as { n: number }).n,
+    metadata: d.metadata,
+    updatedAt: d.updatedAt,
+  });
+
+  const find = (collection: string, id: string): DocumentRecord => {
+    const d = rt.repo.getDocument(id);
+    if (!d || d.collection !== collection) throw new SourceboundError('SB_ERR_UNKNOWN_DOCUMENT', [id]);
+    return d;
+  };
+
+  return {
+    async upload(collection, rawName, body) {
+      const name = checkFileName(rawName);
+      const folder = path.join(uploadsRoot, collection);
+      mkdirSync(folder, { recursive: true });
+      // Dot-prefixed, so a concurrent folder walk never picks up a half-written upload.
+      const tmp = path.join(folder, `.incoming-${randomUUID()}`);
+      const hash = createHash('sha256');
+      let size = 0;
+      try {
+        const source = body instanceof Uint8Array ? (async function* () { yield body; })() : body;
+        await pipeline(
+          source,
+          async function* (chunks: AsyncIterable<Buffer | Uint8Array>) {
+            for await (const c of chunks) {
+              size += c.length;
+              if (size > maxBytes) throw new SourceboundError('SB_ERR_UPLOAD_TOO_LARGE', [maxBytes]);
+              hash.update(c);
+              yield c;
+            }
+          },
+          createWriteStream(tmp),
+        );
+        if ((body as Readable & { truncated?: boolean }).truncated) throw new SourceboundError('SB_ERR_UPLOAD_TOO_LARGE', [maxBytes]);
+      } catch (err) {
+        rmSync(tmp, { force: true });
+        throw err;
+      }
+      const contentHash = hash.digest('hex');
+      const same = rt.db
+        .prepare('SELECT id, source FROM documents WHERE collection = ? AND content_hash = ? LIMIT 1')
+        .get(collection, contentHash) as { id: string; source: string } | undefined;
+      if (same) {
+        unlinkSync(tmp);
+        return { status: 'unchanged', documentId: same.id, source: same.source };
+      }
+      renameSync(tmp, path.join(folder, name));
+      rt.repo.ensureCollection(collection);
+      rt.repo.addSourceRoot(collection, folder);
+      const job = queue.enqueue({ kind: 'upload', via: 'api', collection, root: folder, source: name });
+      return { status: 'queued', job, source: name };
+    },
+    list(collection) {
+      if (!rt.repo.getCollection(collection)) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [collection]);
+      return rt.repo.listDocuments(collection).map(summary);
+    },
+    get(collection, id) {
+      return summary(find(collection, id));
+    },
+    remove(collection, id) {
+      const d = find(collection, id);
+      const removed = rt.repo.deleteDocument(d.id);
+      // An uploaded file goes too, or the next re-index of the upload folder would bring it back.
+      if (d.root && d.root === path.join(uploadsRoot, collection)) rmSync(path.join(d.root, d.source), { force: true });
+      rt.indexes.sync(collection);
+      return { chunksRemoved: removed.length };
+    },
+    job(id) {
+      const j = rt.jobs.get(id);
+      if (!j) throw new SourceboundError('SB_ERR_UNKNOWN_JOB', [id]);
+      return j;
+    },
+    reindex(opts) {
+      if (opts.collection && !rt.repo.getCollection(opts.collection)) {
+        throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [opts.collection]);
+      }
+      return queue.enqueue({ kind: 'reindex', via: 'api', ...opts });
+    },
+  };
+}

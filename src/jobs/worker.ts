@@ -1,0 +1,54 @@
+// The job worker thread: its own database connection, embedder and indexes, so ingestion never blocks
+// the event loop that serves queries. It claims queued jobs one at a time until told to stop.
+import { parentPort, workerData } from 'node:worker_threads';
+import type { Config } from '../config/index.js';
+import { createLogger } from '../logger.js';
+import { createRuntime } from '../runtime.js';
+import { claimNext, runOne } from './queue.js';
+
+const config = (workerData as { config: Config }).config;
+const logger = createLogger(config.logLevel).child({ thread: 'jobs' });
+const rt = await createRuntime(config, logger, { processMetrics: false });
+let stopping = false;
+let running = false;
+let wakeAgain = false;
+
+async function drain(): Promise<void> {
+  if (running) {
+    wakeAgain = true;
+    return;
+  }
+  running = true;
+  try {
+    do {
+      wakeAgain = false;
+      for (let job = claimNext(rt); job && !stopping; job = claimNext(rt)) {
+        await runOne(rt, job, logger);
+        parentPort?.postMessage({ done: job.id });
+      }
+    } while (wakeAgain && !stopping);
+  } finally {
+    running = false;
+    if (stopping) {
+      rt.close();
+      process.exit(0);
+    }
+  }
+}
+
+parentPort?.on('message', (m: { wake?: boolean; stop?: boolean }) => {
+  if (m.stop) {
+    stopping = true;
+    if (!running) {
+      rt.close();
+      process.exit(0);
+    }
+    return;
+  }
+  if (m.wake) void drain();
+});
+
+// Jobs queued while no server ran (or requeued after a crash) start straight away; a slow poll picks up
+// jobs that other processes queue.
+void drain();
+setInterval(() => void drain(), 5_000).unref();

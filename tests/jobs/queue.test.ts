@@ -1,0 +1,66 @@
+import { spawn } from 'node:child_process';
+import { writeFileSync } from 'node:fs';
+import path from 'node:path';
+import { afterEach, describe, expect, it } from 'vitest';
+import { createDocumentService, createJobQueue, requeueAbandoned, withReindexLock } from '../../src/jobs/index.js';
+import { silentLogger } from '../../src/logger.js';
+import { tempRuntime } from '../fixtures/runtime.js';
+
+const cleanups: (() => void | Promise<void>)[] = [];
+afterEach(async () => {
+  for (const c of cleanups.splice(0).reverse()) await c();
+});
+
+describe('the job queue', () => {
+  it('runs an upload in a worker thread, and the main thread then finds the document', async () => {
+    const { rt, config, cleanup } = await tempRuntime();
+    cleanups.push(cleanup);
+    const queue = createJobQueue({ rt, config, logger: silentLogger(), mode: 'thread' });
+    cleanups.push(() => queue.close());
+    const docs = createDocumentService(rt, queue);
+    const out = await docs.upload('c', 'tram-wifi.md', new TextEncoder().encode('# Wifi\n\nFree wifi is available on every tram in the Brackenfold fleet.'));
+    expect(out.status).toBe('queued');
+    await queue.idle();
+    const job = rt.jobs.get(out.status === 'queued' ? out.job.id : '')!;
+    expect(job.state).toBe('succeeded');
+    const hits = await rt.retriever.search({ query: 'wifi Brackenfold', collection: 'c', k: 3, mode: 'hybrid' });
+    expect(hits[0]!.source).toBe('tram-wifi.md');
+  });
+
+  it('puts jobs left running by a dead process back in the queue, and gives up after 3 attempts', async () => {
+    const { rt, cleanup } = await tempRuntime();
+    cleanups.push(cleanup);
+    const a = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
+    const b = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
+    const cli = rt.jobs.create('ingest', 'c', { path: '/x' }); // a CLI run: not the queue's to resume
+    for (const j of [a, b, cli]) rt.jobs.start(j.id);
+    rt.db.prepare('UPDATE jobs SET attempts = 3 WHERE id = ?').run(b.id);
+    expect(requeueAbandoned(rt)).toBe(1);
+    expect(rt.jobs.get(a.id)!.state).toBe('queued');
+    expect(rt.jobs.get(b.id)!.state).toBe('failed');
+    expect(rt.jobs.get(cli.id)!.state).toBe('running');
+  });
+});
+
+describe('the re-index lock', () => {
+  it('makes a second concurrent re-index fail with a clear message', async () => {
+    const { dataDir, cleanup } = await tempRuntime();
+    cleanups.push(cleanup);
+    let release!: () => void;
+    const first = withReindexLock(dataDir, () => new Promise<void>((r) => (release = r)));
+    await expect(withReindexLock(dataDir, async () => 1)).rejects.toMatchObject({ code: 'SB_ERR_REINDEX_RUNNING' });
+    release();
+    await first;
+    expect(await withReindexLock(dataDir, async () => 2)).toBe(2);
+  });
+
+  it('takes over a stale lock left by a process that died', async () => {
+    const { dataDir, cleanup } = await tempRuntime();
+    cleanups.push(cleanup);
+    const dead = spawn(process.execPath, ['-e', '0']);
+    await new Promise((r) => dead.on('exit', r));
+    const { hostname } = await import('node:os');
+    writeFileSync(path.join(dataDir, 'reindex.lock'), JSON.stringify({ pid: dead.pid, host: hostname(), since: '2026-01-01T00:00:00Z' }));
+    expect(await withReindexLock(dataDir, async () => 'ran')).toBe('ran');
+  });
+});
