@@ -29,6 +29,11 @@ describe('the error table', () => {
       SB_ERR_RATE_LIMITED: 429,
       SB_ERR_DEADLINE: 503,
       SB_ERR_AUTH_CONFIG: 500,
+      SB_ERR_REINDEX_RUNNING: 409,
+      SB_ERR_UNKNOWN_DOCUMENT: 404,
+      SB_ERR_UNKNOWN_JOB: 404,
+      SB_ERR_BAD_FILE_NAME: 400,
+      SB_ERR_UPLOAD_TOO_LARGE: 413,
     });
   });
 
