@@ -63,7 +63,8 @@ export function abstainReason(e: Evidence, t: AbstainThresholds): AbstainReason 
  * raises it, but one signal alone tops out at 0.85, since full word overlap can still be a
  * sentence that merely mentions the topic. The result is scaled by the share of answer
  * sentences that passed the grounding check (1 for extractive answers, which are verbatim).
- * Not calibrated: it orders answers, it is not yet a probability.
+ * This is the raw evidence score (`evidence` in the reply); calibration.ts maps it to the
+ * probability reported as `confidence`.
  */
 export function confidence(input: { coverage: number; denseScore: number | null; supportedShare: number }): number {
   const c = SINGLE_SIGNAL_CEILING * clamp01(input.coverage);

@@ -1,27 +1,25 @@
 // The answer flow: standalone question → retrieve → context → generate or extract → check → reply.
 
 import type { Embedder } from '../embed/types.js';
-import type { AnswerMode, AnswerResult, Citation, SearchHit, SearchMode } from '../types.js';
-import {
-  ABSTAIN_TEXT,
-  abstainReason,
-  confidence,
-  headingSet,
-  isAbstentionReply,
-  type AbstainReason,
-} from './abstain.js';
+import type { AnswerMode, Citation, SearchHit, SearchMode } from '../types.js';
+import { ABSTAIN_TEXT, abstainReason, confidence, isAbstentionReply, type AbstainReason } from './abstain.js';
+import { DEMO_CALIBRATION, calibrate, type IsotonicMap } from './calibration.js';
 import { CAUTION } from './caution.js';
-import { citationFor } from './cite.js';
+import { createClaimStream } from './claim-stream.js';
 import { CompletionError } from './completion.js';
-import { buildContext } from './context.js';
-import { absentTerms, extractAnswer, questionCoverage } from './extractive.js';
-import { checkGrounding, renumberMarkers, type GroundedClaim } from './grounding.js';
+import { fitContext } from './context.js';
+import { absentTerms, display, extractAnswer, questionCoverage } from './extractive.js';
+import type { GroundedClaim } from './grounding.js';
 import { buildMessages } from './prompt.js';
-import { isJunkSentence, splitSentences } from './sentences.js';
+import { rewriteQuestion, type HistoryTurn } from './rewrite.js';
 import { expansionWords, termIn } from './synonyms.js';
-import type { AnswerLogger, CompletionClient, ContextSource } from './types.js';
+import { borrowedTokenizer, type ContextTokenizer } from './tokens.js';
+import type { AnswerEvent, AnswerLogger, AnswerReply, CompletionClient, ContextSource, SourceSummary } from './types.js';
 import { chooseVersions, versionNote } from './versions.js';
-import { contentStems, contentTokens, stem } from './words.js';
+import { contentStems } from './words.js';
+
+export { standaloneQuestion } from './rewrite.js';
+export type { HistoryTurn } from './rewrite.js';
 
 export interface AnswererOptions {
   k: number;
@@ -37,6 +35,10 @@ export interface AnswererOptions {
   kindMissPenalty?: number;
   /** When the question names a topic term found nowhere in the collection, the best sentence must cover at least this much (default 0.8). */
   minCoverageWithUnknownTerm?: number;
+  /** Maps the raw evidence score to a probability (default: fitted on the demo question set). */
+  calibration?: IsotonicMap;
+  /** Rewrite follow-ups with the completion endpoint when there is one (default true). */
+  rewriteWithCompletion?: boolean;
 }
 
 export interface RetrieveRequest {
@@ -50,15 +52,13 @@ export interface AnswererDeps {
   retrieve: (q: RetrieveRequest) => Promise<SearchHit[]>;
   embedder: Embedder;
   completion?: CompletionClient;
+  /** Counts context tokens in the completion model's tokenizer (see tokens.ts). */
+  tokenizer?: ContextTokenizer;
+  /** Older form of `tokenizer`: a bare counter, reported as an estimate. */
   countTokens?: (s: string) => number;
   logger?: AnswerLogger;
   now?: () => number;
   options: AnswererOptions;
-}
-
-export interface HistoryTurn {
-  role: 'user' | 'assistant';
-  content: string;
 }
 
 export interface AnswerRequest {
@@ -69,28 +69,36 @@ export interface AnswerRequest {
   mode?: SearchMode;
   /** Cancels the completion call when the client goes away. */
   signal?: AbortSignal;
+  /** Receives the numbered sources and the answer text as it is produced. */
+  onEvent?: (e: AnswerEvent) => void;
 }
 
 export interface Answerer {
-  answer(req: AnswerRequest): Promise<AnswerResult>;
+  answer(req: AnswerRequest): Promise<AnswerReply>;
 }
 
 const noop = (): void => undefined;
 const silent: AnswerLogger = { info: noop, warn: noop, debug: noop };
-// Enough words to carry the topic of the previous question without drowning the follow-up.
-const MAX_CARRIED_WORDS = 8;
 
 export function createAnswerer(deps: AnswererDeps): Answerer {
   const log = deps.logger ?? silent;
   const now = deps.now ?? (() => performance.now());
-  const countTokens = deps.countTokens ?? ((s: string) => deps.embedder.countTokens(s));
+  const tokenizer =
+    deps.tokenizer ??
+    (deps.countTokens
+      ? borrowedTokenizer('custom', deps.countTokens)
+      : borrowedTokenizer(`embedder:${deps.embedder.id}`, (s) => deps.embedder.countTokens(s)));
   const opts = deps.options;
   const thresholds = { minLexicalCoverage: opts.minLexicalCoverage, minDenseScore: opts.minDenseScore };
+  const calibration = opts.calibration ?? DEMO_CALIBRATION;
+  const rewriter = opts.rewriteWithCompletion === false ? undefined : deps.completion;
 
   return {
-    async answer(req: AnswerRequest): Promise<AnswerResult> {
+    async answer(req: AnswerRequest): Promise<AnswerReply> {
       const t0 = now();
-      const question = standaloneQuestion(req.question, req.history);
+      const emit = req.onEvent ?? noop;
+      const rewrite = await rewriteQuestion(req.question, req.history, rewriter, req.signal);
+      const question = rewrite.question;
       // The policy's own wording for terms the question phrased its own way, so lexical search
       // can reach the passage; the reply still shows the question as asked.
       const extra = expansionWords(question);
@@ -106,34 +114,62 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
       if (versions.dropped > 0) versions = chooseVersions(question, await deps.retrieve({ ...request, k: k + versions.dropped }));
       const hits = versions.kept;
       const t1 = now();
-      const timings = (): Record<string, number> => {
-        const t2 = now();
-        return { retrieveMs: ms(t1 - t0), answerMs: ms(t2 - t1), totalMs: ms(t2 - t0) };
+
+      const { sources, tokens } = fitContext(hits, {
+        budgetTokens: opts.contextBudgetTokens,
+        countTokens: (s) => tokenizer.count(s),
+        ...(opts.maxSources !== undefined ? { maxSources: opts.maxSources } : {}),
+      });
+      emit({ type: 'sources', sources: sources.map(summarise) });
+      const context = {
+        sources: sources.length,
+        tokens,
+        budgetTokens: opts.contextBudgetTokens,
+        tokenizer: tokenizer.name,
+        estimated: !tokenizer.exact,
       };
-      const abstain = (reason: AbstainReason, mode: AnswerMode, fallbackReason?: string): AnswerResult => {
-        log.info({ reason, hits: hits.length, mode }, 'answer abstained');
-        const r: AnswerResult = {
-          answer: ABSTAIN_TEXT,
-          abstained: true,
-          mode,
-          citations: [],
-          confidence: 0,
+      // Set once checked model text has reached the caller; a later extractive answer must replace it.
+      let shown = false;
+      const finish = (
+        r: Omit<AnswerReply, 'question' | 'timings' | 'caution' | 'context'>,
+        pieces: string[] | null,
+        append = false,
+      ): AnswerReply => {
+        // Text already shown belongs to an attempt that was abandoned unless we are appending to it.
+        const reset = shown && !append;
+        (pieces ?? []).forEach((text, i) => {
+          emit(i === 0 && reset ? { type: 'delta', text: text.trimStart(), reset: true } : { type: 'delta', text });
+        });
+        const t2 = now();
+        const out: AnswerReply = {
+          ...r,
           caution: CAUTION,
           question,
-          timings: timings(),
+          context,
+          timings: { retrieveMs: ms(t1 - t0), answerMs: ms(t2 - t1), totalMs: ms(t2 - t0) },
+        };
+        if (rewrite.method) out.rewrittenBy = rewrite.method;
+        return out;
+      };
+      const abstain = (reason: AbstainReason, mode: AnswerMode, fallbackReason?: string, claims: GroundedClaim[] = []): AnswerReply => {
+        log.info({ reason, hits: hits.length, mode }, 'answer abstained');
+        const r: Omit<AnswerReply, 'question' | 'timings' | 'caution' | 'context'> = {
+          answer: ABSTAIN_TEXT,
+          abstained: true,
+          abstainReason: reason,
+          mode,
+          citations: [],
+          claims,
+          confidence: 0,
+          evidence: 0,
         };
         if (fallbackReason) r.fallbackReason = fallbackReason;
-        return r;
+        return finish(r, [ABSTAIN_TEXT]);
       };
 
       // A hashing vector's cosine re-measures word overlap, so only a learned model's
       // similarity counts as separate evidence.
       const denseBest = deps.embedder.semantic ? bestDense(hits) : null;
-      const sources = buildContext(hits, {
-        budgetTokens: opts.contextBudgetTokens,
-        countTokens,
-        ...(opts.maxSources !== undefined ? { maxSources: opts.maxSources } : {}),
-      });
       const credit = opts.headingCredit ?? 0.5;
       const penalty = opts.kindMissPenalty ?? 0.25;
       const { common, unknown } = await lookUpAbsent(question, sources, req.collection, deps.retrieve);
@@ -149,28 +185,45 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
 
       let fallbackReason: string | undefined;
       if (deps.completion) {
+        // Checked sentences go to the caller as soon as they are complete; an unchecked word never does.
+        const claimsIn = createClaimStream(sources, opts.minSupport, (p) => {
+          shown = true;
+          emit({ type: 'delta', text: p.text, ...(p.citations.length ? { citations: p.citations } : {}) });
+        });
         try {
-          const reply = await deps.completion.complete(buildMessages(question, sources), req.signal);
-          if (isAbstentionReply(reply)) return abstain('model_abstained', 'generative');
-          const g = checkGrounding(reply, sources, { minSupport: opts.minSupport });
-          if (g.removed.length > 0) log.warn({ removed: g.removed }, 'removed citations to missing sources');
-          const supported = g.claims.filter((c) => c.supported).length;
+          const messages = buildMessages(question, sources);
+          if (deps.completion.stream) await deps.completion.stream(messages, (t) => claimsIn.push(t), req.signal);
+          else claimsIn.push(await deps.completion.complete(messages, req.signal));
+          claimsIn.end();
+          const removed = claimsIn.removed();
+          if (removed.length > 0) log.warn({ removed }, 'removed citations to missing sources');
+          const claims = claimsIn.claims();
+          const supported = claims.filter((c) => c.supported);
+          if (supported.length === 0 && isAbstentionReply(claimsIn.raw())) return abstain('model_abstained', 'generative');
           const late = abstainReason(
-            { hitCount: sources.length, coverage, denseScore: denseBest, supportedClaims: supported },
+            { hitCount: sources.length, coverage, denseScore: denseBest, supportedClaims: supported.length },
             thresholdsNow,
           );
-          if (late) return abstain(late, 'generative');
-          const { answer, citations } = generativeCitations(g.answer, g.cited, g.claims, sources);
-          return {
-            answer: withVersionNote(answer, citations, versions.chosen),
-            abstained: false,
-            mode: 'generative',
-            citations,
-            confidence: confidence({ coverage, denseScore: denseBest, supportedShare: supported / g.claims.length }),
-            caution: CAUTION,
-            question,
-            timings: timings(),
-          };
+          if (late) {
+            log.warn({ reason: late, unsupported: claims.length - supported.length }, 'generated answer not grounded');
+            return abstain(late, 'generative', undefined, claims);
+          }
+          const citations = claimsIn.citations();
+          const note = versionNoteFor(citations, versions.chosen);
+          const raw = confidence({ coverage, denseScore: denseBest, supportedShare: supported.length / claims.length });
+          return finish(
+            {
+              answer: note ? `${claimsIn.answer()} ${note}` : claimsIn.answer(),
+              abstained: false,
+              mode: 'generative',
+              citations,
+              claims,
+              confidence: calibrate(raw, calibration),
+              evidence: raw,
+            },
+            note ? [` ${note}`] : null,
+            true,
+          );
         } catch (err) {
           if (req.signal?.aborted) throw err;
           fallbackReason = err instanceof CompletionError ? `completion_${err.reason}` : 'completion_failed';
@@ -183,51 +236,39 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
       log.debug({ coverage, support: ex.support, dense, uncovered: ex.uncovered, absent: ex.absent, unknown: [...unknown] }, 'extractive evidence');
       const reason = ex.answer ? abstainReason({ hitCount: sources.length, coverage: ex.support, denseScore: dense }, thresholdsNow) : 'weak_evidence';
       if (reason) return abstain(reason, 'extractive', fallbackReason);
-      const result: AnswerResult = {
-        answer: withVersionNote(ex.answer, ex.citations, versions.chosen),
+      // Each quoted sentence is its own claim, verbatim from the source it cites.
+      const claims: GroundedClaim[] = ex.citations.map((c) => ({ text: display(c.quote), sources: [c.n], supported: true, support: 1 }));
+      const pieces = claims.map((c, i) => `${i > 0 ? ' ' : ''}${c.text} [${c.sources[0]}]`);
+      const note = versionNoteFor(ex.citations, versions.chosen);
+      if (note) pieces.push(` ${note}`);
+      const raw = confidence({ coverage: ex.support, denseScore: dense, supportedShare: 1 });
+      const result: Omit<AnswerReply, 'question' | 'timings' | 'caution' | 'context'> = {
+        answer: pieces.join(''),
         abstained: false,
         mode: 'extractive',
         citations: ex.citations,
-        confidence: confidence({ coverage: ex.support, denseScore: dense, supportedShare: 1 }),
-        caution: CAUTION,
-        question,
-        timings: timings(),
+        claims,
+        confidence: calibrate(raw, calibration),
+        evidence: raw,
       };
       if (fallbackReason) result.fallbackReason = fallbackReason;
-      return result;
+      return finish(result, pieces);
     },
   };
 }
 
-/**
- * Offline condensation of a follow-up: the content words of the last user turn that the
- * follow-up does not already contain are put in front of it, so "and for trams?" after a
- * question about delay refunds retrieves delay-refund passages. A carried word of the same
- * kind as one the follow-up names ("trams" when it asks "and on buses?") is the thing being
- * swapped, so it is left behind; and a follow-up without its own question opener keeps the
- * previous one ("how long ..."), since it asks for the same kind of fact.
- */
-export function standaloneQuestion(question: string, history?: HistoryTurn[]): string {
-  const q = question.trim();
-  const lastUser = [...(history ?? [])].reverse().find((t) => t.role === 'user');
-  if (!lastUser) return q;
-  const have = contentStems(q);
-  const swapped = new Set<number>();
-  CONTRASTS.forEach((row, i) => {
-    if (row.some((w) => have.has(w))) swapped.add(i);
-  });
-  const carried: string[] = [];
-  const seen = new Set<string>();
-  for (const t of contentTokens(lastUser.content)) {
-    if (have.has(t.stem) || seen.has(t.stem)) continue;
-    seen.add(t.stem);
-    if (CONTRASTS.some((row, i) => swapped.has(i) && row.includes(t.stem))) continue;
-    carried.push(lastUser.content.slice(t.start, t.end));
-    if (carried.length >= MAX_CARRIED_WORDS) break;
-  }
-  if (carried.length === 0) return q;
-  const opener = OPENER.test(q) ? null : (OPENER.exec(lastUser.content.trim())?.[0] ?? null);
-  return `${opener ? `${opener.toLowerCase()} ` : ''}${carried.join(' ')} ${q}`;
+function summarise(s: ContextSource): SourceSummary {
+  return {
+    n: s.n,
+    documentId: s.documentId,
+    source: s.source,
+    title: s.title,
+    page: s.page,
+    pageEnd: s.pageEnd,
+    section: s.section,
+    effectiveDate: s.effectiveDate,
+    text: s.text,
+  };
 }
 
 // A term held by at least this many chunks of the collection is common there.
@@ -258,66 +299,13 @@ async function lookUpAbsent(
   return { common, unknown };
 }
 
-// Words that name alternatives of one kind: a follow-up naming one replaces the other.
-const CONTRASTS: readonly string[][] = [
-  ['tram', 'bus', 'train', 'coach', 'ferry'],
-  ['adult', 'child', 'senior', 'student', 'infant'],
-  ['weekday', 'weekend', 'saturday', 'sunday'],
-  ['single', 'return', 'season'],
-].map((row) => row.map((w) => stem(w)));
-
-// Openers that fix the kind of fact asked for.
-const OPENER = /^\W*(?:how (?:long|soon|quickly|much|many|far|old|often)|when|where|what time)\b/i;
-
-/** Names the version used when an answer cites a policy that had another version in the context. */
-function withVersionNote(answer: string, citations: Citation[], chosen: ReadonlyMap<string, string>): string {
+/** The note naming the version used, when an answer cites a policy that had another version in the context. */
+function versionNoteFor(citations: Citation[], chosen: ReadonlyMap<string, string>): string | null {
   for (const c of citations) {
     const date = chosen.get(c.documentId);
-    if (date) return `${answer} ${versionNote(date)}`;
+    if (date) return versionNote(date);
   }
-  return answer;
-}
-
-/**
- * Citations for a generated answer: cited sources renumbered 1..m by first use, each quoting
- * the sentence of its source that shares most content words with the claims citing it.
- */
-function generativeCitations(
-  answer: string,
-  cited: number[],
-  claims: GroundedClaim[],
-  sources: ContextSource[],
-): { answer: string; citations: Citation[] } {
-  const mapping = new Map<number, number>();
-  cited.forEach((n, i) => mapping.set(n, i + 1));
-  const citations: Citation[] = [];
-  for (const [oldN, newN] of mapping) {
-    const source = sources.find((s) => s.n === oldN);
-    if (!source) continue;
-    const want = new Set<string>();
-    for (const c of claims) if (c.sources.includes(oldN)) for (const w of contentStems(c.text)) want.add(w);
-    const span = bestSpan(source, want);
-    citations.push(citationFor(source, span.start, span.end, newN));
-  }
-  return { answer: renumberMarkers(answer, mapping), citations };
-}
-
-function bestSpan(source: ContextSource, want: ReadonlySet<string>): { start: number; end: number } {
-  const headings = headingSet(source);
-  let best: { start: number; end: number } | null = null;
-  let bestHits = -1;
-  for (const s of splitSentences(source.text)) {
-    if (isJunkSentence(s.text, headings)) continue;
-    let hits = 0;
-    for (const w of contentStems(s.text)) if (want.has(w)) hits++;
-    if (hits > bestHits) {
-      bestHits = hits;
-      best = { start: s.start, end: s.end };
-    }
-  }
-  if (best) return best;
-  const lead = source.text.length - source.text.trimStart().length;
-  return { start: lead, end: source.text.trimEnd().length };
+  return null;
 }
 
 function bestDense(hits: SearchHit[]): number | null {

@@ -25,6 +25,11 @@ type Unnumbered = Omit<ContextSource, 'n'>;
  * so that a non-empty hit list never yields an empty context.
  */
 export function buildContext(hits: SearchHit[], opts: BuildContextOptions): ContextSource[] {
+  return fitContext(hits, opts).sources;
+}
+
+/** The context window and the tokens its rendered blocks use, counted with `opts.countTokens`. */
+export function fitContext(hits: SearchHit[], opts: BuildContextOptions): { sources: ContextSource[]; tokens: number } {
   const maxSources = opts.maxSources ?? DEFAULT_MAX_SOURCES;
   const merged = mergeHits(hits);
   merged.sort((a, b) => b.score - a.score || a.documentId.localeCompare(b.documentId) || a.start - b.start);
@@ -42,11 +47,14 @@ export function buildContext(hits: SearchHit[], opts: BuildContextOptions): Cont
     }
     if (out.length === 0) {
       const cut = fitPrefix(candidate, opts.budgetTokens, opts.countTokens);
-      if (cut) out.push(cut);
+      if (cut) {
+        out.push(cut);
+        used = opts.countTokens(renderSource(cut));
+      }
     }
     break;
   }
-  return out;
+  return { sources: out, tokens: used };
 }
 
 /** Groups hits by document and merges overlapping/adjacent spans. Output order is arbitrary. */

@@ -151,7 +151,7 @@ export async function extractAnswer(
 }
 
 /** The answer shows table rows and list items as plain text; the citation keeps the exact quote. */
-function display(quote: string): string {
+export function display(quote: string): string {
   return quote
     .split('\n')
     .map((line) => {

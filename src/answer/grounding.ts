@@ -1,9 +1,10 @@
 // Checks a generated answer against its sources: citation markers must point at a source,
 // and each sentence's content words should be found in the sources it cites.
 
+import { isPlantedInstruction } from './planted.js';
 import { splitSentences } from './sentences.js';
 import type { ContextSource } from './types.js';
-import { contentStems } from './words.js';
+import { contentStems, tokenize } from './words.js';
 
 export interface GroundingOptions {
   /** A claim is supported when at least this share of its content words is in its cited sources (default 0.5). */
@@ -57,30 +58,11 @@ export function checkGrounding(answer: string, sources: ContextSource[], opts: G
     .replace(/[^\S\n]+([.,;:!?])/g, '$1')
     .trim();
 
-  const sourceStems = new Map<number, Set<string>>();
-  const stemsOf = (n: number): Set<string> => {
-    let s = sourceStems.get(n);
-    if (!s) {
-      s = contentStems(byN.get(n)?.text ?? '');
-      sourceStems.set(n, s);
-    }
-    return s;
-  };
-
+  const support = createSupportScorer(sources, minSupport);
   const claims: GroundedClaim[] = [];
   for (const { text, markers } of claimSpans(cleaned)) {
-    const words = contentStems(text);
-    if (words.size === 0) continue;
-    const refs = [...new Set(markers)].filter((n) => byN.has(n));
-    let support = 0;
-    if (refs.length > 0) {
-      const pool = new Set<string>();
-      for (const n of refs) for (const w of stemsOf(n)) pool.add(w);
-      let found = 0;
-      for (const w of words) if (pool.has(w)) found++;
-      support = found / words.size;
-    }
-    claims.push({ text, sources: refs, supported: support >= minSupport, support: round3(support) });
+    const claim = support(text, markers);
+    if (claim) claims.push(claim);
   }
   return { answer: cleaned, cited, removed, claims };
 }
@@ -100,11 +82,79 @@ export function renumberMarkers(answer: string, mapping: ReadonlyMap<number, num
 }
 
 /**
+ * Scores one claim against the sources it cites. Support is the share of the claim's content
+ * words found in the best window of one or two adjacent sentences of each cited source (the
+ * windows' words pooled across sources), so a claim cannot be assembled from scattered words
+ * of a long passage. Sentences that try to instruct an automated reader support nothing:
+ * a reply repeating a planted instruction must not count as grounded by it. A number in the
+ * claim that its windows lack makes it unsupported, whatever the word overlap: a wrong
+ * amount or deadline is the costliest mistake a support answer can make.
+ */
+export function createSupportScorer(
+  sources: ContextSource[],
+  minSupport: number,
+): (text: string, markers: number[]) => GroundedClaim | null {
+  const byN = new Map(sources.map((s) => [s.n, s]));
+  const windowsOf = new Map<number, Set<string>[]>();
+  const windows = (n: number): Set<string>[] => {
+    let w = windowsOf.get(n);
+    if (!w) {
+      w = sentenceWindows(byN.get(n)?.text ?? '');
+      windowsOf.set(n, w);
+    }
+    return w;
+  };
+  return (text, markers) => {
+    const words = contentStems(text);
+    if (words.size === 0) return null;
+    const refs = [...new Set(markers)].filter((n) => byN.has(n));
+    const pool = new Set<string>();
+    for (const n of refs) {
+      let best: Set<string> | null = null;
+      let bestHits = -1;
+      for (const win of windows(n)) {
+        let hits = 0;
+        for (const w of words) if (win.has(w)) hits++;
+        if (hits > bestHits) {
+          bestHits = hits;
+          best = win;
+        }
+      }
+      if (best) for (const w of best) pool.add(w);
+    }
+    let found = 0;
+    for (const w of words) if (pool.has(w)) found++;
+    const share = refs.length > 0 ? found / words.size : 0;
+    const numbersHeld = numbersIn(text).every((x) => pool.has(x));
+    return { text, sources: refs, supported: refs.length > 0 && share >= minSupport && numbersHeld, support: round3(share) };
+  };
+}
+
+function sentenceWindows(text: string): Set<string>[] {
+  const sentences = splitSentences(text)
+    .filter((s) => !isPlantedInstruction(s.text))
+    .map((s) => contentStems(s.text));
+  const out: Set<string>[] = [];
+  sentences.forEach((cur, i) => {
+    out.push(cur);
+    const next = sentences[i + 1];
+    if (next) out.push(new Set([...cur, ...next]));
+  });
+  return out;
+}
+
+function numbersIn(text: string): string[] {
+  return tokenize(text)
+    .filter((t) => /\d/.test(t.word))
+    .map((t) => t.stem);
+}
+
+/**
  * Answer sentences with the markers that belong to them. Sentence segmentation (UAX #29)
  * puts a marker written after the full stop ("... 28 days. [1]") at the start of the next
  * segment, so leading markers are handed back to the sentence before.
  */
-function claimSpans(answer: string): { text: string; markers: number[] }[] {
+export function claimSpans(answer: string): { text: string; markers: number[] }[] {
   const out: { text: string; markers: number[] }[] = [];
   for (const span of splitSentences(answer)) {
     let body = span.text;
@@ -116,7 +166,8 @@ function claimSpans(answer: string): { text: string; markers: number[] }[] {
     }
     const markers = markersIn(body);
     const text = body.replace(MARKER, '').replace(/[^\S\n]+([.,;:!?])/g, '$1').replace(/\s+/g, ' ').trim();
-    if (text.length === 0 && out.length === 0 && markers.length > 0) continue;
+    // Nothing but markers: they were handed back above, or cite nothing said.
+    if (text.length === 0) continue;
     out.push({ text, markers });
   }
   return out;

@@ -1,11 +1,17 @@
 export { ABSTAIN_TEXT, DEFAULT_THRESHOLDS, abstainReason, confidence, isAbstentionReply } from './abstain.js';
 export type { AbstainReason, AbstainThresholds, Evidence } from './abstain.js';
 export { createAnswerer, standaloneQuestion } from './answerer.js';
-export type { Answerer, AnswererDeps, AnswererOptions, AnswerRequest, HistoryTurn, RetrieveRequest } from './answerer.js';
+export type { Answerer, AnswererDeps, AnswererOptions, AnswerRequest, RetrieveRequest } from './answerer.js';
+export { createCircuitBreaker } from './breaker.js';
+export type { BreakerState, CircuitBreaker, CircuitBreakerOptions } from './breaker.js';
+export { DEMO_CALIBRATION, calibrate, fitIsotonic, fitPlatt, reliabilityTable } from './calibration.js';
+export type { IsotonicMap, PlattScaling } from './calibration.js';
 export { CAUTION } from './caution.js';
+export { createClaimStream } from './claim-stream.js';
+export type { ClaimStream, ReleasedPiece } from './claim-stream.js';
 export { CompletionError, createCompletionClient } from './completion.js';
 export type { CompletionClientOptions, CompletionFailure } from './completion.js';
-export { buildContext } from './context.js';
+export { buildContext, fitContext } from './context.js';
 export type { BuildContextOptions } from './context.js';
 export { extractAnswer } from './extractive.js';
 export type { ExtractOptions, ExtractResult } from './extractive.js';
@@ -13,4 +19,20 @@ export { checkGrounding } from './grounding.js';
 export type { GroundedClaim, GroundingOptions, GroundingResult } from './grounding.js';
 export { SYSTEM_PROMPT, buildMessages } from './prompt.js';
 export type { PromptMessage } from './prompt.js';
-export type { AnswerLogger, ChatMessage, CompletionClient, ContextSource, SourcePart } from './types.js';
+export { REWRITE_PROMPT, rewriteQuestion } from './rewrite.js';
+export type { HistoryTurn, Rewrite, RewriteMethod } from './rewrite.js';
+export { readEventStream, sseFrame } from './sse.js';
+export { TOKENIZER_NAMES, borrowedTokenizer, estimateTokenizer, loadTokenizer } from './tokens.js';
+export type { ContextTokenizer, TokenizerName } from './tokens.js';
+export type {
+  AnswerClaim,
+  AnswerEvent,
+  AnswerLogger,
+  AnswerReply,
+  ChatMessage,
+  CompletionClient,
+  ContextReport,
+  ContextSource,
+  SourcePart,
+  SourceSummary,
+} from './types.js';

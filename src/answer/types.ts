@@ -1,5 +1,7 @@
 // Shapes used inside the answer stage and by its callers.
 
+import type { AnswerResult, Citation } from '../types.js';
+
 /** One original retrieval chunk inside a (possibly merged) context source. */
 export interface SourcePart {
   start: number;
@@ -38,6 +40,11 @@ export interface ChatMessage {
 
 export interface CompletionClient {
   complete(messages: ChatMessage[], signal?: AbortSignal): Promise<string>;
+  /**
+   * The same call with server-sent events: `onDelta` gets each text piece as it arrives and
+   * the promise resolves with the whole reply once the stream ends properly.
+   */
+  stream?(messages: ChatMessage[], onDelta: (text: string) => void, signal?: AbortSignal): Promise<string>;
 }
 
 /** The subset of a pino logger the answer stage uses. */
@@ -46,3 +53,59 @@ export interface AnswerLogger {
   warn(obj: object, msg?: string): void;
   debug(obj: object, msg?: string): void;
 }
+
+/** One answer sentence and how well the sources it cites support it. */
+export interface AnswerClaim {
+  /** The sentence without its citation markers. */
+  text: string;
+  /** Citation numbers (as in `citations[].n`) the sentence cites. */
+  sources: number[];
+  supported: boolean;
+  /** Share of the sentence's content words found in its cited passages, 0..1. */
+  support: number;
+}
+
+/** How the context window was filled. */
+export interface ContextReport {
+  sources: number;
+  /** Tokens of the rendered source blocks. */
+  tokens: number;
+  budgetTokens: number;
+  /** Encoding the tokens were counted in. */
+  tokenizer: string;
+  /** True when `tokenizer` only approximates the completion model's own tokenizer. */
+  estimated: boolean;
+}
+
+/** The reply of the answer stage: the shared AnswerResult plus the grounding detail. */
+export interface AnswerReply extends AnswerResult {
+  claims: AnswerClaim[];
+  /** The raw evidence score that `confidence` calibrates, 0..1. */
+  evidence: number;
+  abstainReason?: string;
+  context: ContextReport;
+  /** Present when `question` is a rewrite of a follow-up. */
+  rewrittenBy?: 'completion' | 'key_terms';
+}
+
+/** A context source as shown to clients while the answer is produced. */
+export interface SourceSummary {
+  n: number;
+  documentId: string;
+  source: string;
+  title: string;
+  page: number | null;
+  pageEnd: number | null;
+  section: string;
+  effectiveDate: string | null;
+  text: string;
+}
+
+/**
+ * Progress of one answer. `delta` pieces joined make the final answer; a delta with
+ * `reset: true` replaces everything sent before it (an abandoned generation), and
+ * `citations` carries the citations a piece uses for the first time.
+ */
+export type AnswerEvent =
+  | { type: 'sources'; sources: SourceSummary[] }
+  | { type: 'delta'; text: string; reset?: true; citations?: Citation[] };

@@ -38,6 +38,8 @@ export function answerBody(limits: { questionMaxChars: number; kMax: number; his
       // Either a retrieval mode, or the answer style: "extractive" skips the completion endpoint.
       mode: z.enum(['hybrid', 'lexical', 'dense', 'auto', 'generative', 'extractive']).optional(),
       retrieval: searchMode.optional(),
+      // Server-sent events (sources, delta, done) instead of one JSON reply.
+      stream: z.boolean().optional(),
     })
     .strict();
 }

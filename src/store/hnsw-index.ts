@@ -210,7 +210,7 @@ export function createVectorIndexes(deps: {
           const res = state.index.searchKnn(query, n, (label) => allowed.has(label));
           if (res.neighbors.length >= n || ef >= ids.length) {
             state.index.setEf(params.efSearch);
-            return toHits(res);
+            return res.neighbors.length >= n ? toHits(res) : exactSearch(state.index, query, ids, n);
           }
           ef *= 4;
         }

@@ -122,7 +122,7 @@ describe('createAnswerer with a completion endpoint', () => {
     expectQuotesVerbatim(r);
   });
 
-  it('removes a citation marker that points at no source and renumbers the rest by first use', async () => {
+  it('removes a citation marker that points at no source, drops the sentence it left uncited and flags it as a claim', async () => {
     const completion = await stubClient([
       okReply('Umbrellas are kept for 7 days [2]. Claims for delay refunds must be made within 28 days of the journey [7].'),
     ]);
@@ -131,7 +131,12 @@ describe('createAnswerer with a completion endpoint', () => {
     expect(r.abstained).toBe(false);
     expect(r.mode).toBe('generative');
     expect(r.answer).not.toContain('[7]');
-    expect(r.answer).toBe('Umbrellas are kept for 7 days [1]. Claims for delay refunds must be made within 28 days of the journey.');
+    // An uncited sentence is not shown as part of the answer, but the reply says it was there.
+    expect(r.answer).toBe('Umbrellas are kept for 7 days [1].');
+    expect(r.claims).toEqual([
+      { text: 'Umbrellas are kept for 7 days.', sources: [1], supported: true, support: 1 },
+      { text: 'Claims for delay refunds must be made within 28 days of the journey.', sources: [], supported: false, support: 0 },
+    ]);
     expect(r.citations).toHaveLength(1);
     expect(r.citations[0]).toMatchObject({ n: 1, documentId: 'doc-access', quote: 'Umbrellas are kept for 7 days only.' });
     expectQuotesVerbatim(r);
@@ -266,5 +271,57 @@ describe('follow-up condensation', () => {
     expect(standaloneQuestion('And if I ask for a review?', [{ role: 'user', content: 'How long does MVT take to reply to a complaint?' }])).toBe(
       'how long MVT take reply complaint And if I ask for a review?',
     );
+  });
+});
+
+describe('createAnswerer reporting', () => {
+  it('says which tokenizer counted the context and whether the count is an estimate', async () => {
+    const { loadTokenizer } = await import('../../src/answer/tokens.js');
+    const exact = createAnswerer({ retrieve: async () => hitsFixture(), embedder, tokenizer: await loadTokenizer('cl100k_base'), options });
+    const r = await exact.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(r.context).toMatchObject({ tokenizer: 'cl100k_base', estimated: false, budgetTokens: 2000, sources: 2 });
+    expect(r.context.tokens).toBeGreaterThan(0);
+    expect(r.context.tokens).toBeLessThanOrEqual(2000);
+    const borrowed = createAnswerer({ retrieve: async () => hitsFixture(), embedder, options });
+    const b = await borrowed.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(b.context).toMatchObject({ tokenizer: 'embedder:test-concepts', estimated: true });
+  });
+
+  it('returns a calibrated confidence in [0, 1] with the raw evidence beside it, and 0 when it abstains', async () => {
+    const { answerer } = build();
+    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(r.evidence).toBeGreaterThan(0);
+    expect(r.confidence).toBeGreaterThan(0);
+    expect(r.confidence).toBeLessThanOrEqual(1);
+    const none = await build({}, []).answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(none).toMatchObject({ abstained: true, confidence: 0, abstainReason: 'no_hits' });
+  });
+
+  it('rewrites a follow-up with the completion endpoint, retrieves with the rewrite and returns it', async () => {
+    const calls: string[] = [];
+    const completion: CompletionClient = {
+      complete: async (messages) => {
+        const user = messages[1]?.content ?? '';
+        calls.push(user);
+        return user.startsWith('Conversation:') ? 'How long are umbrellas kept by lost property?' : 'Umbrellas are kept for 7 days [2].';
+      },
+    };
+    const { answerer, queries } = build({ completion });
+    const r = await answerer.answer({
+      question: 'And umbrellas?',
+      collection: 'default',
+      history: [{ role: 'user', content: 'How long are found items kept?' }],
+    });
+    expect(r.question).toBe('How long are umbrellas kept by lost property?');
+    expect(r.rewrittenBy).toBe('completion');
+    expect(queries[0]?.query.startsWith('How long are umbrellas kept by lost property?')).toBe(true);
+    expect(r.answer).toBe('Umbrellas are kept for 7 days [1].');
+  });
+
+  it('marks an offline rewrite as carried key terms', async () => {
+    const { answerer } = build();
+    const r = await answerer.answer({ question: 'And for trams?', collection: 'default', history: [{ role: 'user', content: 'How long do I have to claim a delay refund?' }] });
+    expect(r.rewrittenBy).toBe('key_terms');
+    expect(r.question).toContain('refund');
   });
 });

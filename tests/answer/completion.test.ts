@@ -1,7 +1,7 @@
 import { afterEach, describe, expect, it } from 'vitest';
 import { CompletionError, createCompletionClient, parseRetryAfter, type CompletionClientOptions } from '../../src/answer/completion.js';
 import type { ChatMessage } from '../../src/answer/types.js';
-import { okReply, startStub, type StubReply, type StubServer } from './stub-server.js';
+import { okReply, startStub, streamReply, type StubReply, type StubServer } from './stub-server.js';
 
 const messages: ChatMessage[] = [
   { role: 'system', content: 'Answer from the sources.' },
@@ -158,5 +158,77 @@ describe('parseRetryAfter', () => {
     expect(parseRetryAfter(' 0 ')).toBe(0);
     expect(parseRetryAfter('Wed, 21 Oct 2026 07:28:00 GMT')).toBeUndefined();
     expect(parseRetryAfter(null)).toBeUndefined();
+  });
+});
+
+describe('createCompletionClient streaming', () => {
+  it('asks for a stream, passes each delta on as it arrives and returns the whole text', async () => {
+    const { client, stub } = await setup([streamReply(['Claims take ', '28 days', ' [1].'])]);
+    const pieces: string[] = [];
+    await expect(client.stream?.(messages, (t) => pieces.push(t))).resolves.toBe('Claims take 28 days [1].');
+    expect(pieces).toEqual(['Claims take ', '28 days', ' [1].']);
+    expect((stub.seen[0]?.body as { stream: boolean }).stream).toBe(true);
+    expect(stub.seen[0]?.headers.accept).toBe('text/event-stream');
+  });
+
+  it('treats a stream that ends without [DONE] or a finish reason as cut, and does not retry it', async () => {
+    const cut = streamReply(['Claims take ', '28 days', ' [1].']);
+    const { client, stub } = await setup([{ ...cut, cutAfter: 2 }, streamReply(['never'])]);
+    const pieces: string[] = [];
+    const err = await failure(client.stream?.(messages, (t) => pieces.push(t)) ?? Promise.resolve());
+    expect(err.reason).toBe('stream_cut');
+    expect(pieces).toEqual(['Claims take ', '28 days']);
+    // Text already reached the caller: a retry would repeat it.
+    expect(stub.seen).toHaveLength(1);
+  });
+
+  it('retries a 429 before the stream starts, honouring Retry-After', async () => {
+    const { client, delays } = await setup([{ status: 429, headers: { 'retry-after': '1' } }, streamReply(['ok'])]);
+    await expect(client.stream?.(messages, () => undefined)).resolves.toBe('ok');
+    expect(delays).toEqual([1000]);
+  });
+
+  it('reports a stream event that is not JSON as malformed', async () => {
+    const { client } = await setup([{ events: ['{"choices":[{"delta":{"content":"Cla"}}]}', '{not json', '[DONE]'] }]);
+    expect((await failure(client.stream?.(messages, () => undefined) ?? Promise.resolve())).reason).toBe('malformed');
+  });
+
+  it('accepts a server that ignores stream: true and answers in one JSON piece', async () => {
+    const { client } = await setup([okReply('Whole reply [1].')]);
+    const pieces: string[] = [];
+    await expect(client.stream?.(messages, (t) => pieces.push(t))).resolves.toBe('Whole reply [1].');
+    expect(pieces).toEqual(['Whole reply [1].']);
+  });
+
+  it('cuts a stream that stalls longer than the timeout between events', async () => {
+    const { client } = await setup([streamReply(['a', 'b', 'c'], { eventGapMs: 400 })], { timeoutMs: 150, retries: 0 });
+    expect((await failure(client.stream?.(messages, () => undefined) ?? Promise.resolve())).reason).toBe('stream_cut');
+  });
+});
+
+describe('createCompletionClient circuit breaker', () => {
+  it('skips the endpoint after repeated failures, then lets one trial call through after the cool-down', async () => {
+    let clock = 0;
+    const { client, stub } = await setup([{ status: 500 }, { status: 500 }, okReply('back')], {
+      retries: 0,
+      breaker: { failureThreshold: 2, coolDownMs: 10_000, now: () => clock },
+    });
+    expect((await failure(client.complete(messages))).reason).toBe('http_500');
+    expect((await failure(client.complete(messages))).reason).toBe('http_500');
+    const open = await failure(client.complete(messages));
+    expect(open.reason).toBe('circuit_open');
+    expect(stub.seen).toHaveLength(2);
+    clock = 10_000;
+    await expect(client.complete(messages)).resolves.toBe('back');
+    expect(stub.seen).toHaveLength(3);
+  });
+
+  it('does not count a caller cancelling as an endpoint failure', async () => {
+    const { client } = await setup([{ delayMs: 1000, ...okReply('late') }], { retries: 0, breaker: { failureThreshold: 1, coolDownMs: 10_000 } });
+    const ctl = new AbortController();
+    setTimeout(() => ctl.abort(), 30);
+    expect((await failure(client.complete(messages, ctl.signal))).reason).toBe('aborted');
+    // The circuit is still closed: the next call reaches the server.
+    expect((await failure(client.complete(messages, AbortSignal.timeout(30)))).reason).toBe('aborted');
   });
 });

@@ -127,4 +127,17 @@ describe('ingesting the demo corpus', () => {
     expect(logs.length).toBeGreaterThan(0); // the capture works: debug lines per document arrive
     expect(logs.filter((l) => l.level >= WARN)).toEqual([]);
   });
+
+  it('keeps the version each policy states, from front matter or an "issue N" clause', async () => {
+    await rt.ingestor.ingestPath(SEED_DIR, { collection: 'default' });
+    const versions = Object.fromEntries(rt.repo.listDocuments('default').map((d) => [d.source, d.metadata['version'] ?? null]));
+    expect(versions).toMatchObject({
+      'delay-refunds-2025.md': '1',
+      'delay-refunds-2026.md': '2',
+      'staff-handbook.pdf': '3',
+      'tram-depot-safety-procedures.pdf': '5',
+      'conditions-of-carriage.txt': '4',
+      'lost-property.md': null,
+    });
+  });
 });

@@ -1,7 +1,7 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { createRepository, openDatabase } from '../../src/store/index.js';
-import { contentTerms, toMatchExpression } from '../../src/retrieve/query-text.js';
+import { contentTerms, termCounts, toMatchExpression, toWeightedMatch } from '../../src/retrieve/query-text.js';
 
 describe('query text to FTS5', () => {
   it('drops stop words and keeps the content words', () => {
@@ -28,6 +28,33 @@ describe('query text to FTS5', () => {
       }),
       { numRuns: 2000 },
     );
+    db.close();
+  });
+});
+
+describe('weighted FTS5 expressions', () => {
+  it('repeats heavier terms in proportion, the heaviest maxRepeat times', () => {
+    expect(toWeightedMatch([{ term: 'refund', weight: 1 }, { term: 'tram', weight: 0.5 }], { maxRepeat: 2 })).toBe('"refund" OR "refund" OR "tram"');
+  });
+
+  it('counts a repeated question word as its query term frequency', () => {
+    expect([...termCounts('tram fares and tram passes')]).toEqual([['tram', 2], ['fares', 1], ['passes', 1]]);
+  });
+
+  it('repeating a phrase doubles its BM25 contribution in FTS5, which is what carries the weight', () => {
+    const db = openDatabase(':memory:');
+    const repo = createRepository(db);
+    repo.ensureCollection('c');
+    const text = 'tram fare';
+    repo.replaceDocument(
+      { id: 'd', collection: 'c', source: 'd', root: null, title: '', format: 'text', contentHash: 'd', byteSize: 1, pageCount: null, effectiveDate: null, metadata: {}, text, settingsKey: 's' },
+      [{ ordinal: 0, text, start: 0, end: 9, headingPath: [], pageStart: null, pageEnd: null, tokenCount: 2, chunkHash: 'h' }],
+      new Map(),
+      'm',
+    );
+    const w = { title: 1, heading: 1, body: 1 };
+    const once = repo.searchFts('c', '"tram"', 1, w)[0]!.score;
+    expect(repo.searchFts('c', '"tram" OR "tram"', 1, w)[0]!.score).toBeCloseTo(2 * once, 9);
     db.close();
   });
 });

@@ -1,5 +1,6 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { createRepository, openDatabase, type Db, type Repository } from '../../src/store/index.js';
+import { ftsColumns } from '../../src/store/repository.js';
 
 // BM25 as published by Robertson and Zaragoza, "The Probabilistic Relevance Framework: BM25 and
 // Beyond" (Foundations and Trends in IR, 2009), eq. 3.15 with the Robertson/Sparck Jones idf without
@@ -109,5 +110,44 @@ describe('FTS5 BM25 against the published formula', () => {
 
   it('searches only the named collection', () => {
     expect(repo.searchFts('other', '"tram"', 10, { title: 1, heading: 1, body: 1 })).toEqual([]);
+  });
+});
+
+describe('FTS columns of a chunk', () => {
+  it('indexes the title once: not again as a heading, nor as the heading line that opens the body', () => {
+    const cols = ftsColumns('Delay refunds', ['Delay refunds', 'How to claim'], 'How to claim\n\nFill in the form within 28 days.');
+    expect(cols).toEqual({ title: 'Delay refunds', heading: 'How to claim', body: 'Fill in the form within 28 days.' });
+  });
+
+  it('keeps a first line that is not a heading', () => {
+    expect(ftsColumns('T', ['T'], 'Fares rise in May.\nMore text').body).toBe('Fares rise in May.\nMore text');
+  });
+
+  it('leaves an empty body for a chunk that is only its heading', () => {
+    expect(ftsColumns('Lost property', ['Lost property'], 'Lost property').body).toBe('');
+  });
+
+  it('weights a title match by the title column weight (FTS5 multiplies tf by the column weight)', () => {
+    const db = openDatabase(':memory:');
+    const repo = createRepository(db);
+    repo.ensureCollection('c');
+    const add = (id: string, title: string, text: string): void => {
+      repo.replaceDocument(
+        { id, collection: 'c', source: id, root: null, title, format: 'text', contentHash: id, byteSize: 1, pageCount: null, effectiveDate: null, metadata: { kind: id === 'a' ? 'policy' : 'notice' }, text, settingsKey: 's' },
+        [{ ordinal: 0, text, start: 0, end: text.length, headingPath: [title], pageStart: null, pageEnd: null, tokenCount: 1, chunkHash: id }],
+        new Map(),
+        'm',
+      );
+    };
+    add('a', 'tram', 'depot shift');
+    add('b', 'depot', 'tram shift');
+    add('c', 'bus', 'stop shelter');
+    const order = (title: number): number[] => repo.searchFts('c', '"tram"', 10, { title, heading: 1, body: 1 }).map((r) => r.chunkId);
+    // Same tf and length for both: equal weights tie; a heavier title puts the title match first.
+    expect(order(3)[0]).toBe(1);
+    expect(order(0.2)[0]).toBe(2);
+    expect(repo.searchFts('c', '"tram"', 10, { title: 1, heading: 1, body: 1 }, { metadata: { kind: 'notice' } }).map((r) => r.chunkId)).toEqual([2]);
+    expect(repo.searchFts('c', '"tram"', 10, { title: 1, heading: 1, body: 1 }, { documentIds: [] })).toEqual([]);
+    db.close();
   });
 });

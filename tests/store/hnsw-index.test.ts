@@ -60,6 +60,41 @@ describe('vector index files', () => {
     expect(hits[0]!.score).toBeCloseTo(1, 5);
   });
 
+  // Reference: exact nearest neighbours by brute-force inner product over the stored vectors.
+  const exactTop = (q: Float32Array, ids: readonly number[], k: number): number[] => {
+    const views = repo.chunkViews(ids);
+    const vecs = repo.getVectors('emb', [...views.values()].map((v) => v.chunkHash));
+    return ids
+      .map((id) => ({ id, s: [...vecs.get(views.get(id)!.chunkHash)!].reduce((a, x, i) => a + x * q[i]!, 0) }))
+      .sort((a, b) => b.s - a.s || a.id - b.id)
+      .slice(0, k)
+      .map((x) => x.id);
+  };
+
+  it('returns k hits from inside a selective filter, the same as an exact scan of the allowed chunks', () => {
+    addDoc(repo, 'a', 300, 1);
+    const idx = make();
+    idx.sync('c');
+    const all = repo.chunksOfCollection('c').map((r) => r.id);
+    const allowed = new Set(all.filter((_, i) => i % 60 === 0)); // 5 of 300
+    const hits = idx.search('c', unit(7), 10, allowed);
+    expect(hits).toHaveLength(5);
+    expect(hits.map((h) => h.chunkId)).toEqual(exactTop(unit(7), [...allowed], 5));
+  });
+
+  it('fills k from the graph search when the filter allows more than an exact scan would take', () => {
+    addDoc(repo, 'a', 2600, 3);
+    const idx = make();
+    idx.sync('c');
+    const all = repo.chunksOfCollection('c').map((r) => r.id);
+    const allowed = new Set(all.filter((_, i) => i % 13 !== 0)); // 2400 of 2600, above the exact-scan limit
+    const hits = idx.search('c', unit(11), 10, allowed);
+    expect(hits).toHaveLength(10);
+    for (const h of hits) expect(allowed.has(h.chunkId)).toBe(true);
+    const truth = new Set(exactTop(unit(11), [...allowed], 10));
+    expect(hits.filter((h) => truth.has(h.chunkId)).length).toBeGreaterThanOrEqual(9);
+  });
+
   it('patches the index when documents change: removed chunks never come back', () => {
     addDoc(repo, 'a', 10, 1);
     addDoc(repo, 'b', 10, 2);

@@ -1,0 +1,114 @@
+#!/usr/bin/env node
+// Load benchmark for issue "safe to expose": the demo corpus grown to about 10k chunks (copies of the
+// seed documents under new names), a real `sourcebound serve` process, and autocannon (a well-kept HTTP
+// load generator from the registry) against POST /v1/search (hybrid) and extractive POST /v1/answer.
+// Usage: npm run build && node tests/bench/load.mjs [--seconds 20] [--connections 8] [--json]
+import { spawn } from 'node:child_process';
+import { cpSync, mkdirSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { parseArgs } from 'node:util';
+import { pathToFileURL } from 'node:url';
+import autocannon from 'autocannon';
+
+const ROOT = path.resolve(import.meta.dirname, '..', '..');
+const dist = (p) => import(pathToFileURL(path.join(ROOT, 'dist', p)).href);
+const { loadConfig } = await dist('config/index.js');
+const { createRuntime } = await dist('runtime.js');
+const { silentLogger } = await dist('logger.js');
+
+const { values: args } = parseArgs({
+  options: {
+    seconds: { type: 'string', default: '20' },
+    connections: { type: 'string', default: '8' },
+    chunks: { type: 'string', default: '10000' },
+    json: { type: 'boolean', default: false },
+  },
+});
+const SEED = path.join(ROOT, 'seed-docs');
+const work = mkdtempSync(path.join(os.tmpdir(), 'sb-load-'));
+const docs = path.join(work, 'docs');
+const dataDir = path.join(work, 'data');
+mkdirSync(docs);
+
+// Grow the corpus: copy the seed documents into numbered sub-folders until the chunk target is met.
+const env = { SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_LOG_LEVEL: 'warn' };
+const cfg = loadConfig({ env, overrides: { seed: { ingestOnEmpty: false } } });
+const rt = await createRuntime(cfg, silentLogger(), { processMetrics: false });
+const seedFiles = readdirSync(SEED).filter((f) => /\.(md|html|txt|pdf)$/.test(f));
+let copy = 0;
+let chunks = 0;
+const started = performance.now();
+while (chunks < Number(args.chunks)) {
+  const dir = path.join(docs, `branch-${String(copy).padStart(3, '0')}`);
+  mkdirSync(dir);
+  for (const f of seedFiles) cpSync(path.join(SEED, f), path.join(dir, f));
+  await rt.ingestor.ingestPath(dir, { collection: 'default' });
+  chunks = rt.repo.getCollection('default').chunks;
+  copy++;
+}
+const ingestSeconds = (performance.now() - started) / 1000;
+rt.close();
+
+const configFile = path.join(work, 'config.json');
+writeFileSync(configFile, JSON.stringify({ limits: { rateLimitPerMinute: 10_000_000 }, seed: { ingestOnEmpty: false } }));
+const server = spawn(process.execPath, [path.join(ROOT, 'dist', 'cli.js'), 'serve'], {
+  env: { ...process.env, ...env, PORT: '0', SOURCEBOUND_CONFIG: configFile },
+  stdio: ['ignore', 'pipe', 'inherit'],
+});
+const base = await new Promise((resolve, reject) => {
+  let out = '';
+  server.stdout.on('data', (d) => {
+    out += d;
+    const m = /"msg":"ready on (http:\/\/[^"]+)"/.exec(out);
+    if (m) resolve(m[1]);
+  });
+  server.on('exit', (c) => reject(new Error(`server exited ${c}`)));
+});
+
+const questions = [
+  'How long do I have to make a claim for a delay refund?',
+  'Can I take a folding bike on the tram at peak times?',
+  'What is the adult fare for a Day Rider?',
+  'How long are found items kept?',
+  'Can I bring an assistance dog?',
+  'What protective equipment is needed in the depot yard?',
+  'How do I complain about a driver?',
+  'Who can get a concession pass?',
+];
+async function run(name, url, bodies) {
+  const result = await autocannon({
+    url: `${base}${url}`,
+    connections: Number(args.connections),
+    duration: Number(args.seconds),
+    requests: bodies.map((b) => ({ method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify(b) })),
+  });
+  return {
+    name,
+    requestsPerSecond: Math.round(result.requests.average * 10) / 10,
+    p50ms: result.latency.p50,
+    p99ms: result.latency.p99,
+    requests: result.requests.total,
+    errors: result.errors + result.timeouts + result.non2xx,
+  };
+}
+// A short warm-up so JIT and page cache do not count against the first scenario.
+await run('warm-up', '/v1/search', [{ query: 'refund' }]).catch(() => null);
+const rows = [
+  await run('POST /v1/search (hybrid, k=8)', '/v1/search', questions.map((q) => ({ query: q, mode: 'hybrid' }))),
+  await run('POST /v1/answer (extractive)', '/v1/answer', questions.map((q) => ({ question: q, mode: 'extractive' }))),
+];
+server.kill('SIGTERM');
+await new Promise((r) => server.on('exit', r));
+rmSync(work, { recursive: true, force: true });
+
+const machine = `${os.cpus().length} × ${os.cpus()[0]?.model ?? 'cpu'}, ${Math.round(os.totalmem() / 2 ** 30)} GiB, Node ${process.version}`;
+if (args.json) {
+  console.log(JSON.stringify({ machine, chunks, copies: copy, ingestSeconds, connections: Number(args.connections), seconds: Number(args.seconds), rows }));
+} else {
+  console.log(`Load: ${chunks} chunks (${copy} copies of the demo corpus, hashing embedder), ${args.connections} connections, ${args.seconds} s per scenario`);
+  console.log(`machine: ${machine}`);
+  console.log('| scenario | requests/s | p50 ms | p99 ms | requests | errors |');
+  console.log('|---|---:|---:|---:|---:|---:|');
+  for (const r of rows) console.log(`| ${r.name} | ${r.requestsPerSecond} | ${r.p50ms} | ${r.p99ms} | ${r.requests} | ${r.errors} |`);
+}

@@ -1,0 +1,43 @@
+// npm run bench: retrieval latency at 10k and 100k chunks, HNSW recall against exact search at 100k x 384.
+// Prints Markdown tables for docs/benchmarks.md and writes the recall/latency chart next to it.
+import { writeFileSync } from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { runHnswBench } from './hnsw-recall.mjs';
+import { runLatencyBench } from './retrieval-latency.mjs';
+import { recallChart } from './chart.mjs';
+
+const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..', '..');
+const log = (m) => process.stderr.write(`${m}\n`);
+const f = (x, d = 2) => x.toFixed(d);
+const only = process.argv[2];
+
+const out = [];
+out.push(`Machine: ${os.cpus()[0]?.model ?? 'unknown'} x ${os.cpus().length}, ${f(os.totalmem() / 2 ** 30, 0)} GiB, Node ${process.version}, ${os.platform()}`);
+
+if (!only || only === 'latency') {
+  for (const [chunks, label, tuning] of [[10_000, 'defaults (RM3 on)', {}], [10_000, 'RM3 off', { rm3: null }], [100_000, 'defaults (RM3 on)', {}], [100_000, 'RM3 off', { rm3: null }]]) {
+    log(`latency at ${chunks} chunks, ${label}`);
+    const r = await runLatencyBench({ chunks, log, tuning, queries: chunks > 50_000 ? 200 : 500 });
+    out.push(`\n### ${chunks.toLocaleString('en')} chunks, ${label} (store ${f(r.storeSeconds, 1)} s, HNSW build ${f(r.indexSeconds, 1)} s, ${r.queries} queries)\n`);
+    out.push('| mode | p50 ms | p95 ms | p99 ms | queries/s |');
+    out.push('|---|---:|---:|---:|---:|');
+    for (const [mode, s] of Object.entries(r.results)) out.push(`| ${mode} | ${f(s.p50)} | ${f(s.p95)} | ${f(s.p99)} | ${f(s.qps, 0)} |${s.short !== undefined ? ` (${s.short} short of k)` : ''}`);
+  }
+}
+if (!only || only === 'hnsw') {
+  const h = await runHnswBench({ log });
+  out.push(`\n### HNSW, ${h.count.toLocaleString('en')} x ${h.dims}, M=${h.build.m}, efConstruction=${h.build.efConstruction}\n`);
+  out.push(`Build ${f(h.build.seconds, 1)} s (one thread), index file ${f(h.build.fileBytes / 2 ** 20, 0)} MiB, resident memory growth ${f(h.build.rssGrowth / 2 ** 20, 0)} MiB.\n`);
+  out.push('| efSearch | recall@10 | p50 ms | p95 ms | p99 ms | queries/s |');
+  out.push('|---:|---:|---:|---:|---:|---:|');
+  for (const r of h.byEf) out.push(`| ${r.ef} | ${f(r.recall, 4)} | ${f(r.p50, 3)} | ${f(r.p95, 3)} | ${f(r.p99, 3)} | ${f(r.qps, 0)} |`);
+  out.push('\nSweep at 20,000 vectors:\n');
+  out.push('| M | efConstruction | build s | efSearch | recall@10 | p95 ms |');
+  out.push('|---:|---:|---:|---:|---:|---:|');
+  for (const r of h.sweep) out.push(`| ${r.m} | ${r.efConstruction} | ${f(r.buildSeconds, 1)} | ${r.ef} | ${f(r.recall, 4)} | ${f(r.p95, 3)} |`);
+  writeFileSync(path.join(root, 'docs', 'benchmarks-hnsw-recall.svg'), recallChart(h.byEf));
+  out.push('\nChart written to docs/benchmarks-hnsw-recall.svg');
+}
+process.stdout.write(`${out.join('\n')}\n`);
