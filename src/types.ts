@@ -2,7 +2,7 @@
 // stage's internals; they agree on these shapes instead.
 
 /** Formats the loaders understand. */
-export type DocumentFormat = 'pdf' | 'markdown' | 'html' | 'text';
+export type DocumentFormat = 'pdf' | 'docx' | 'markdown' | 'html' | 'text';
 
 /** One structural unit of a loaded document, in reading order. */
 export interface Block {
@@ -13,6 +13,8 @@ export interface Block {
   level?: number;
   /** 1-based page number, for paged formats (PDF). */
   page?: number;
+  /** Last page, when a paragraph runs on over a page break. */
+  pageEnd?: number;
 }
 
 /** What a loader returns for one file. */

@@ -160,7 +160,7 @@ export function chunkDocument(doc: NormalisedDocument, opts: ChunkOptions): Chun
     }
     const firstBody = cur.pieces.find((p) => !p.heading);
     const pathBlock = firstBody ? blocks[firstBody.block]! : blocks[cur.pieces[cur.pieces.length - 1]!.block]!;
-    const pages = covered.map((b) => b.page).filter((p): p is number => typeof p === 'number');
+    const pages = covered.flatMap((b) => [b.page, b.pageEnd]).filter((p): p is number => typeof p === 'number');
     drafts.push({
       ordinal: drafts.length,
       text: chunkText,

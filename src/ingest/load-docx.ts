@@ -42,10 +42,9 @@ export async function loadDocx(bytes: Uint8Array, fileName: string): Promise<Loa
   const { blocks } = parseHtml(`<!doctype html><html><body>${html}</body></html>`);
   const text = blocks.map((b) => b.text).join('\n');
   const h1 = blocks.find((b) => b.kind === 'heading' && b.level === 1);
-  // DocumentFormat has no 'docx' member yet; the blocks come from HTML, and the metadata keeps
-  // the true source format for display.
+  // The blocks come from the converter's HTML; the document keeps its own format.
   return {
-    format: 'html',
+    format: 'docx',
     title: h1?.text ?? titleFromFileName(fileName),
     blocks,
     pageCount: null,

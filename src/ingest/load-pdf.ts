@@ -188,7 +188,35 @@ export function pagesToBlocks(pages: string[][]): Block[] {
     });
     flush();
   });
-  return cleanBlocks(assignHeadingLevels(out));
+  return cleanBlocks(assignHeadingLevels(joinRunOns(out)));
+}
+
+/**
+ * A paragraph cut by a page break: the last paragraph of a page ends mid-sentence and the first of the next
+ * page starts in lower case. Kept apart, the second half reads as a sentence of its own ("or near the
+ * overhead line."), so the two become one paragraph that records both pages.
+ */
+function joinRunOns(items: (Block | PendingHeading)[]): (Block | PendingHeading)[] {
+  const out: (Block | PendingHeading)[] = [];
+  for (const item of items) {
+    const prev = out[out.length - 1];
+    if (
+      prev !== undefined &&
+      !('depth' in prev) &&
+      !('depth' in item) &&
+      prev.kind === 'paragraph' &&
+      item.kind === 'paragraph' &&
+      prev.page !== undefined &&
+      item.page === (prev.pageEnd ?? prev.page) + 1 &&
+      !TERMINAL.test(prev.text) &&
+      /^\p{Ll}/u.test(item.text)
+    ) {
+      out[out.length - 1] = { ...prev, text: `${prev.text} ${item.text}`, pageEnd: item.page };
+      continue;
+    }
+    out.push(item);
+  }
+  return out;
 }
 
 // Without font sizes, levels come from shape: an unnumbered first heading on page 1 is the

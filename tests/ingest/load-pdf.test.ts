@@ -195,8 +195,15 @@ describe('PDF text clean-up', () => {
     expect(blocks.map((b) => b.kind)).toEqual(['paragraph', 'heading', 'paragraph']);
   });
 
-  it('never lets a paragraph run across a page break', () => {
+  it('joins a sentence cut by a page break into one paragraph that records both pages', () => {
     const blocks = pagesToBlocks([['This sentence runs on and on past the end of'], ['the page and ends here.']]);
-    expect(blocks.map((b) => b.page)).toEqual([1, 2]);
+    expect(blocks).toEqual([{ kind: 'paragraph', text: 'This sentence runs on and on past the end of the page and ends here.', page: 1, pageEnd: 2 }]);
+  });
+
+  it('keeps paragraphs apart at a page break when the first ends a sentence or the next starts a new one', () => {
+    const ended = pagesToBlocks([['The first page ends with a whole sentence.'], ['the next page starts in lower case.']]);
+    expect(ended.map((b) => [b.page, b.pageEnd])).toEqual([[1, undefined], [2, undefined]]);
+    const fresh = pagesToBlocks([['A heading-free page that stops mid-way through'], ['Another paragraph starts here.']]);
+    expect(fresh.map((b) => b.page)).toEqual([1, 2]);
   });
 });
