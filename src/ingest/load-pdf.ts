@@ -22,16 +22,44 @@ interface RawText {
   info: Record<string, unknown>;
 }
 
-async function extract(bytes: Uint8Array): Promise<RawText> {
+/** Bounds on one PDF: a hostile or runaway file must not hold the ingest worker for long. */
+export interface PdfLimits {
+  /** Most pages read; a longer PDF is refused before any page is parsed. */
+  maxPages: number;
+  /** Wall-clock budget for reading the text; checked between batches of pages. */
+  maxSeconds: number;
+}
+
+export const DEFAULT_PDF_LIMITS: PdfLimits = { maxPages: 2000, maxSeconds: 120 };
+
+// Pages parsed per call, so the time budget is checked often without paying a call per page.
+const PAGE_BATCH = 16;
+
+async function extract(bytes: Uint8Array, limits: PdfLimits, now: () => number): Promise<RawText> {
   const { PDFParse } = await import('pdf-parse');
   // pdf.js transfers (detaches) the buffer it is given; the caller's bytes must survive.
   const parser = new PDFParse({ data: bytes.slice(), verbosity: 0 });
+  const started = now();
   try {
-    const text = await parser.getText();
     const info = await parser.getInfo();
-    const pages = [...text.pages].sort((a, b) => a.num - b.num).map((p) => p.text);
+    const total = info.total;
+    if (total > limits.maxPages) {
+      throw new PdfLimitError(`PDF has ${total} pages, over the limit of ${limits.maxPages} (limits.pdfMaxPages)`);
+    }
+    const pages: string[] = [];
+    for (let first = 1; first <= total; first += PAGE_BATCH) {
+      if ((now() - started) / 1000 > limits.maxSeconds) {
+        throw new PdfLimitError(
+          `reading the PDF took longer than ${limits.maxSeconds} s (limits.pdfMaxSeconds); ${pages.length} of ${total} pages read`,
+        );
+      }
+      const last = Math.min(total, first + PAGE_BATCH - 1);
+      const text = await parser.getText({ first, last });
+      pages.push(...[...text.pages].sort((a, b) => a.num - b.num).map((p) => p.text));
+    }
     return { pages, info: (info.info ?? {}) as Record<string, unknown> };
   } catch (err) {
+    if (err instanceof PdfLimitError) throw err;
     const name = err instanceof Error ? err.name : '';
     const detail = err instanceof Error ? err.message : String(err);
     if (name === 'PasswordException') {
@@ -41,6 +69,11 @@ async function extract(bytes: Uint8Array): Promise<RawText> {
   } finally {
     await parser.destroy().catch(() => undefined);
   }
+}
+
+/** A PDF refused for its size or the time it takes; the message names the limit. */
+export class PdfLimitError extends Error {
+  override name = 'PdfLimitError';
 }
 
 function edgeKey(line: string): string {
@@ -241,8 +274,13 @@ function metadataFrom(info: Record<string, unknown>): Record<string, string> {
   return metadata;
 }
 
-export async function loadPdf(bytes: Uint8Array, fileName: string): Promise<LoadedDocument> {
-  const { pages, info } = await extract(bytes);
+export async function loadPdf(
+  bytes: Uint8Array,
+  fileName: string,
+  limits: PdfLimits = DEFAULT_PDF_LIMITS,
+  now: () => number = () => performance.now(),
+): Promise<LoadedDocument> {
+  const { pages, info } = await extract(bytes, limits, now);
   if (pages.every((p) => p.trim() === '')) throw new Error(NO_TEXT_MESSAGE);
   const blocks = pagesToBlocks(removeRunningLines(pages.map((p) => p.split('\n'))));
   if (blocks.length === 0) throw new Error(NO_TEXT_MESSAGE);

@@ -4,7 +4,7 @@ import { detectFormat } from './detect.js';
 import { loadDocx } from './load-docx.js';
 import { loadHtml } from './load-html.js';
 import { loadMarkdown } from './load-markdown.js';
-import { loadPdf } from './load-pdf.js';
+import { DEFAULT_PDF_LIMITS, loadPdf, type PdfLimits } from './load-pdf.js';
 import { loadText } from './load-text.js';
 
 /**
@@ -12,11 +12,15 @@ import { loadText } from './load-text.js';
  * of a supported format that cannot be read (corrupt or encrypted PDF, PDF without text) throws
  * a plain Error whose message says why, for the caller to report against the file.
  */
-export async function loadDocument(bytes: Uint8Array, fileName: string): Promise<LoadedDocument> {
+export async function loadDocument(
+  bytes: Uint8Array,
+  fileName: string,
+  opts: { pdf?: PdfLimits } = {},
+): Promise<LoadedDocument> {
   const format = detectFormat(bytes, fileName);
   switch (format) {
     case 'pdf':
-      return loadPdf(bytes, fileName);
+      return loadPdf(bytes, fileName, opts.pdf ?? DEFAULT_PDF_LIMITS);
     case 'markdown':
       return loadMarkdown(bytes, fileName);
     case 'html':

@@ -207,3 +207,34 @@ describe('PDF text clean-up', () => {
     expect(fresh.map((b) => b.page)).toEqual([1, 2]);
   });
 });
+
+describe('PDF page and time limits', () => {
+  // Each page holds its own sentence, told apart by letters (digits alone would make every line look like
+  // a running header), so page order and completeness can be checked.
+  const tag = (i: number) => String.fromCharCode(97 + (i % 26)).repeat(1 + Math.floor(i / 26));
+  const numbered = (n: number) =>
+    buildPdf(Array.from({ length: n }, (_, i) => ({ lines: [`Timetable note ${tag(i)} is printed on this page.`] })));
+
+  it('reads every page of a PDF longer than one parsing batch, in order', async () => {
+    const doc = await loadPdf(await numbered(35), 'notes.pdf');
+    expect(doc.pageCount).toBe(35);
+    const pages = doc.blocks.map((b) => b.page);
+    expect(pages).toEqual(Array.from({ length: 35 }, (_, i) => i + 1));
+    expect(doc.blocks[34]!.text).toBe(`Timetable note ${tag(34)} is printed on this page.`);
+  });
+
+  it('refuses a PDF with more pages than the limit, naming the limit', async () => {
+    await expect(loadPdf(await numbered(5), 'long.pdf', { maxPages: 4, maxSeconds: 60 })).rejects.toThrow(
+      'PDF has 5 pages, over the limit of 4 (limits.pdfMaxPages)',
+    );
+  });
+
+  it('stops reading when the time budget runs out, naming the limit', async () => {
+    let t = 0;
+    // A clock that moves 3 s per look: the budget of 5 s is spent after the first batch.
+    const clock = () => (t += 3000);
+    await expect(loadPdf(await numbered(40), 'slow.pdf', { maxPages: 100, maxSeconds: 5 }, clock)).rejects.toThrow(
+      /took longer than 5 s \(limits\.pdfMaxSeconds\); 16 of 40 pages read/,
+    );
+  });
+});
