@@ -17,6 +17,7 @@ import { formatProgress, formatSummary, summaryJson, type IngestProgress, type I
 import { createLogger, type Logger } from './logger.js';
 import { appDeps, createRuntime, ingestAsJob, type Runtime } from './runtime.js';
 import { runEvalCommand } from './eval/command.js';
+import { runFeedbackCommand } from './feedback/index.js';
 
 const USAGE = `sourcebound: answers questions from your documents, with citations
 
@@ -32,6 +33,9 @@ Usage:
   sourcebound model status                       say which embedder the service would use
   sourcebound key new [--id ID] [--scopes query,ingest,admin] [--collections C1,C2|*]
                                                  make an API key and print its config entry
+  sourcebound feedback export [--out F] [--collection C]
+                                                 write the desk's answer ratings as a question set
+                                                 for \`eval answers --questions F\`
   sourcebound backup <file>                      write a consistent copy of the database (safe while serving)
   sourcebound config [--check] [--reference]     print the effective configuration (secrets redacted),
                                                  validate it, or list every option
@@ -63,6 +67,8 @@ export async function main(argv: string[], env: Record<string, string | undefine
       return keyCommand(rest);
     case 'backup':
       return backup(rest, env);
+    case 'feedback':
+      return runFeedbackCommand(rest, env);
     default:
       process.stderr.write(`sourcebound: unknown command "${command}"\n\n${USAGE}\n`);
       return 2;
@@ -215,7 +221,8 @@ async function withRuntime(
   const started = performance.now();
   const onProgress = (p: IngestProgress): void => {
     if (!tty) return;
-    const line = formatProgress(p, (performance.now() - started) / 1000, process.stderr.columns ?? 100);
+    // A pseudo-terminal with no size set reports 0 columns: treat it as unknown.
+    const line = formatProgress(p, (performance.now() - started) / 1000, process.stderr.columns || 100);
     process.stderr.write(`\r\x1b[2K${line}`);
   };
   const rt = await createRuntime(cfg, logger, { onProgress });
@@ -229,7 +236,7 @@ async function withRuntime(
 
 function emptySummary(): IngestSummary {
   return {
-    documents: { added: 0, updated: 0, unchanged: 0, removed: 0, failed: 0 },
+    documents: { added: 0, updated: 0, renamed: 0, removed: 0, unchanged: 0, failed: 0 },
     chunks: { embedded: 0, reused: 0, removed: 0 },
     failures: [],
     skipped: [],

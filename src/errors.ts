@@ -31,6 +31,12 @@ export const ERRORS = {
   SB_ERR_UNKNOWN_JOB: { status: 404, message: 'No job "%s"' },
   SB_ERR_BAD_FILE_NAME: { status: 400, message: 'Unusable file name: %s' },
   SB_ERR_UPLOAD_TOO_LARGE: { status: 413, message: 'The upload is larger than the limit of %s bytes' },
+  SB_ERR_ORIGINAL_UNAVAILABLE: { status: 404, message: 'The original file of document "%s" is not available: %s' },
+  SB_ERR_ORIGINAL_CHANGED: {
+    status: 409,
+    message: 'The original file of document "%s" has changed since it was indexed; re-index the collection to read it',
+  },
+  SB_ERR_LINK_INVALID: { status: 403, message: 'This file link is invalid or has expired; open the file again from the desk' },
 } as const;
 
 export type ErrorCode = keyof typeof ERRORS;

@@ -1,7 +1,7 @@
 // Wires the stages together from a config: store → embedder → indexes → retriever → answerer → ingestor.
 // The CLI's commands and the server share it; tests build it on a temporary data folder.
 
-import { createAnswerer, createCompletionClient, type Answerer } from './answer/index.js';
+import { createAnswerer, createCompletionClient, loadTokenizer, type Answerer } from './answer/index.js';
 import type { AnswerRequest as HttpAnswerRequest, AppDeps } from './api/app.js';
 import type { Config } from './config/index.js';
 import { resolveEmbedder } from './embed/index.js';
@@ -9,10 +9,11 @@ import type { Embedder } from './embed/types.js';
 import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
 import type { Logger } from './logger.js';
 import { createMetrics, type Metrics } from './api/metrics.js';
+import { createDeskService } from './api/desk-service.js';
 import { createLimiter } from './limiter.js';
 import type { DocumentService } from './jobs/index.js';
 import type { CompletionClient } from './answer/index.js';
-import { createRetriever, DEFAULT_FIELD_WEIGHTS, type Retriever } from './retrieve/index.js';
+import { createLexicalMemory, createRetriever, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
 import {
   createJobs,
   createRepository,
@@ -102,17 +103,23 @@ export async function createRuntime(
         }
       }),
   };
+  // The in-memory BM25 index builds on a second connection between queries, which FTS5 answers meanwhile.
+  const lexLog = logger.child({ stage: 'lexical-index' });
+  const lexicalIndex =
+    config.retrieval.lexicalEngine === 'memory'
+      ? createLexicalMemory(db, {
+          background: true,
+          onBuilt: (i) => lexLog.info(i, 'in-memory lexical index built'),
+          onError: (err) => lexLog.warn({ err }, 'in-memory lexical index build failed; FTS5 answers meanwhile'),
+        })
+      : undefined;
   const baseRetriever = createRetriever({
     repo,
     indexes,
     embedder: queryEmbedder,
-    options: {
-      candidates: config.retrieval.candidates,
-      rrfK: config.retrieval.rrfK,
-      lexicalWeight: config.retrieval.lexicalWeight,
-      denseWeight: config.retrieval.denseWeight,
-      fieldWeights: DEFAULT_FIELD_WEIGHTS,
-    },
+    options: retrieverOptions(config.retrieval),
+    ...(lexicalIndex ? { lexicalIndex } : {}),
+    ...(config.retrieval.synonymWeight > 0 ? { synonyms: createWordNet(packagedWordNetDir()) } : {}),
   });
   const answerOptions = {
     k: config.retrieval.k,
@@ -123,7 +130,10 @@ export async function createRuntime(
     headingCredit: config.answer.headingCredit,
     kindMissPenalty: config.answer.kindMissPenalty,
     minCoverageWithUnknownTerm: config.answer.minCoverageWithUnknownTerm,
+    rewriteWithCompletion: config.answer.rewriteWithCompletion,
   };
+  // Loaded once: the encodings' tables take a moment to build.
+  const tokenizer = await loadTokenizer(config.answer.tokenizer);
   const answerLog = logger.child({ stage: 'answer' });
   const retrieve = async (q: Parameters<Retriever['search']>[0]) => {
     const end = metrics.retrievalDuration.startTimer({ mode: q.mode });
@@ -143,6 +153,7 @@ export async function createRuntime(
         maxTokens: config.completion.maxTokens,
         timeoutMs: config.completion.timeoutMs,
         retries: config.completion.retries,
+        breaker: { failureThreshold: config.completion.breakerFailures, coolDownMs: config.completion.breakerCoolDownMs },
       })
     : undefined;
   const completionLimiter = createLimiter(
@@ -150,33 +161,44 @@ export async function createRuntime(
     config.limits.maxQueuedCompletions,
     'completion calls',
   );
+  // Every completion call, one-shot or streamed, takes a slot and is counted by outcome.
+  const counted = (call: () => Promise<string>): Promise<string> =>
+    completionLimiter
+      .run(async () => {
+        try {
+          const out = await call();
+          metrics.completionCalls.inc({ outcome: 'ok' });
+          return out;
+        } catch (err) {
+          metrics.completionCalls.inc({ outcome: 'error' });
+          throw err;
+        }
+      })
+      .catch((err: unknown) => {
+        if ((err as { code?: string }).code === 'SB_ERR_BUSY') metrics.completionCalls.inc({ outcome: 'busy' });
+        throw err;
+      });
   const completion: CompletionClient | undefined = completionClient
     ? {
-        complete: (messages, signal) =>
-          completionLimiter.run(async () => {
-            try {
-              const out = await completionClient.complete(messages, signal);
-              metrics.completionCalls.inc({ outcome: 'ok' });
-              return out;
-            } catch (err) {
-              metrics.completionCalls.inc({ outcome: 'error' });
-              throw err;
+        complete: (messages, signal) => counted(() => completionClient.complete(messages, signal)),
+        ...(completionClient.stream
+          ? {
+              stream: (messages: Parameters<NonNullable<CompletionClient['stream']>>[0], onDelta: (t: string) => void, signal?: AbortSignal) =>
+                counted(() => completionClient.stream!(messages, onDelta, signal)),
             }
-          }).catch((err: unknown) => {
-            if ((err as { code?: string }).code === 'SB_ERR_BUSY') metrics.completionCalls.inc({ outcome: 'busy' });
-            throw err;
-          }),
+          : {}),
       }
     : undefined;
   const answerer = createAnswerer({
     retrieve,
     embedder: queryEmbedder,
     ...(completion ? { completion } : {}),
+    tokenizer,
     logger: answerLog,
     options: answerOptions,
   });
   const extractiveAnswerer = completion
-    ? createAnswerer({ retrieve, embedder: queryEmbedder, logger: answerLog, options: answerOptions })
+    ? createAnswerer({ retrieve, embedder: queryEmbedder, tokenizer, logger: answerLog, options: answerOptions })
     : answerer;
   const ingestor = createIngestor({
     repo,
@@ -187,6 +209,7 @@ export async function createRuntime(
       maxTokens: config.chunking.maxTokens,
       overlapTokens: config.chunking.overlapTokens,
       documentMaxBytes: config.limits.documentMaxBytes,
+      pdf: { maxPages: config.limits.pdfMaxPages, maxSeconds: config.limits.pdfMaxSeconds },
     },
     logger: logger.child({ stage: 'ingest' }),
     batchSize: config.embedding.batchSize,
@@ -207,6 +230,7 @@ export async function createRuntime(
     ingestor,
     metrics,
     close() {
+      lexicalIndex?.close();
       indexes.close();
       if (db.open) db.close();
     },
@@ -240,6 +264,7 @@ export function appDeps(rt: Runtime, isReady: () => boolean, documents?: Documen
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,
+    desk: createDeskService({ repo: rt.repo }),
     search: (req) => rt.retriever.search(req),
     answer: (req: HttpAnswerRequest) => {
       const answerer = req.style === 'extractive' ? rt.extractiveAnswerer : rt.answerer;

@@ -77,6 +77,8 @@ export interface SearchHit {
   start: number;
   end: number;
   effectiveDate: string | null;
+  /** The document's stated version or issue, when it states one. */
+  version?: string | null;
   score: number;
   /** Per-leg ranks (1-based) where the chunk appeared, for explanation and calibration. */
   ranks: { lexical?: number; dense?: number };
@@ -98,6 +100,8 @@ export interface Citation {
   start: number;
   end: number;
   effectiveDate: string | null;
+  /** The document's stated version or issue, when it states one. */
+  version?: string | null;
 }
 
 export type AnswerMode = 'generative' | 'extractive';

@@ -34,6 +34,9 @@ describe('the error table', () => {
       SB_ERR_UNKNOWN_JOB: 404,
       SB_ERR_BAD_FILE_NAME: 400,
       SB_ERR_UPLOAD_TOO_LARGE: 413,
+      SB_ERR_ORIGINAL_UNAVAILABLE: 404,
+      SB_ERR_ORIGINAL_CHANGED: 409,
+      SB_ERR_LINK_INVALID: 403,
     });
   });
 

@@ -267,6 +267,7 @@ function summarise(s: ContextSource): SourceSummary {
     pageEnd: s.pageEnd,
     section: s.section,
     effectiveDate: s.effectiveDate,
+    version: s.version ?? null,
     text: s.text,
   };
 }

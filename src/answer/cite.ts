@@ -23,6 +23,7 @@ export function citationFor(source: ContextSource, localStart: number, localEnd:
     start,
     end,
     effectiveDate: source.effectiveDate,
+    version: source.version ?? null,
   };
 }
 

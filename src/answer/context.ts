@@ -95,6 +95,7 @@ function fromHit(h: SearchHit): Unnumbered {
     start: h.start,
     end: h.end,
     effectiveDate: h.effectiveDate,
+    version: h.version ?? null,
     score: h.score,
     parts: [part],
   };

@@ -25,6 +25,7 @@ export interface ContextSource {
   start: number;
   end: number;
   effectiveDate: string | null;
+  version?: string | null;
   /** Best fused retrieval score among the merged chunks. */
   score: number;
   denseScore?: number;
@@ -98,6 +99,7 @@ export interface SourceSummary {
   pageEnd: number | null;
   section: string;
   effectiveDate: string | null;
+  version?: string | null;
   text: string;
 }
 

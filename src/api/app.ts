@@ -4,6 +4,7 @@ import type { Config } from '../config/index.js';
 import { SourceboundError, type ErrorCode } from '../errors.js';
 import type { Logger } from '../logger.js';
 import type { AnswerResult, SearchHit, SearchMode } from '../types.js';
+import type { AnswerEvent } from '../answer/index.js';
 import {
   ANONYMOUS,
   createAuthenticator,
@@ -16,6 +17,9 @@ import {
 import type { Metrics } from './metrics.js';
 import { registerAnswerRoute } from './answer-route.js';
 import { registerDocumentRoutes } from './documents-route.js';
+import { registerDeskAssets } from './desk-static.js';
+import { registerDeskRoutes } from './desk-routes.js';
+import type { DeskService } from './desk-service.js';
 import type { DocumentService } from '../jobs/index.js';
 import { searchBody } from './schemas.js';
 import { parse, withDeadline } from './util.js';
@@ -29,6 +33,8 @@ export interface AnswerRequest {
   /** "extractive" never calls the completion endpoint. */
   style?: 'auto' | 'extractive';
   signal?: AbortSignal;
+  /** Progress events for a streamed answer (sources, text deltas, done). */
+  onEvent?: (e: AnswerEvent) => void;
 }
 
 /** What the HTTP layer needs from the rest of the service. Tests pass their own. */
@@ -42,6 +48,10 @@ export interface AppDeps {
   metrics?: Metrics;
   /** The document API; absent in read-only deployments and some tests. */
   documents?: DocumentService;
+  /** Passages, original files and ratings for the reference desk; absent in some tests. */
+  desk?: DeskService;
+  /** Folder of the built desk page (dist/web); the default is found next to the compiled code. */
+  deskAssetsDir?: string;
 }
 
 declare module 'fastify' {
@@ -91,8 +101,15 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     },
   });
 
+  // While shutting down, replies to requests still in flight end their connection: a kept-alive socket
+  // would otherwise hold the close (and the process) until its keep-alive timeout.
+  let closing = false;
+  app.addHook('preClose', async () => {
+    closing = true;
+  });
   app.addHook('onSend', async (req, reply) => {
     reply.header('x-request-id', req.id);
+    if (closing) reply.header('connection', 'close');
   });
 
   if (metrics) {
@@ -168,6 +185,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
           pageEnd: h.pageEnd,
           section: h.section,
           effectiveDate: h.effectiveDate,
+          version: h.version ?? null,
           text: h.text,
           score: h.score,
         })),
@@ -176,6 +194,8 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
 
     registerAnswerRoute(r, { config, deps, guard });
     if (deps.documents) await registerDocumentRoutes(r, { config, documents: deps.documents, guard });
+    if (deps.desk) registerDeskRoutes(r, { config, desk: deps.desk, guard });
+    registerDeskAssets(r, deps.deskAssetsDir !== undefined ? { dir: deps.deskAssetsDir } : {});
   });
 
   return app;

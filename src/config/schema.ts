@@ -61,7 +61,39 @@ const retrieval = z
     candidates: z.number().int().min(1).max(1000).default(50).describe('Candidates taken from each leg before fusion'),
     rrfK: z.number().min(0).default(60).describe('Reciprocal rank fusion constant (Cormack, Clarke and Buettcher 2009)'),
     lexicalWeight: z.number().min(0).default(1).describe('Weight of the BM25 leg in fusion'),
-    denseWeight: z.number().min(0).default(1).describe('Weight of the dense leg in fusion'),
+    denseWeight: z.number().min(0).default(0.5).describe('Weight of the dense leg in fusion'),
+    termRepeat: z.number().int().min(1).max(32).default(6).describe('Most times a query term is repeated to carry its weight into BM25 (1 = each term once)'),
+    rm3: z
+      .object({
+        enabled: z.boolean().default(true).describe('Expand the BM25 query with terms of its top hits (RM3 pseudo-relevance feedback)'),
+        docs: z.number().int().min(1).max(100).default(10).describe('Top hits the expansion terms are taken from'),
+        terms: z.number().int().min(1).max(100).default(15).describe('Expansion terms added'),
+        originalWeight: z.number().min(0).max(1).default(0.5).describe('Share of the weight kept by the original query'),
+      })
+      .strict()
+      .prefault({}),
+    synonymWeight: z.number().min(0).max(10).default(0).describe('Weight of WordNet synonyms relative to the word they expand (0 = off)'),
+    denseFeedback: z.number().min(0).max(10).default(1).describe('Weight of the top BM25 hits\' mean vector added to the query vector in hybrid mode (0 = off)'),
+    mmr: z
+      .object({
+        enabled: z.boolean().default(false).describe('Reorder results for diversity (MMR) unless a request says otherwise'),
+        lambda: z.number().min(0).max(1).default(0.7).describe('MMR trade-off: 1 = relevance only'),
+        duplicateAt: z.number().min(0).max(1).default(0.95).describe('Similarity at which a result counts as a near-duplicate and is dropped'),
+      })
+      .strict()
+      .prefault({}),
+    fieldWeights: z
+      .object({
+        title: z.number().min(0).default(2).describe('BM25 weight of the document title'),
+        heading: z.number().min(0).default(1).describe('BM25 weight of the heading path'),
+        body: z.number().min(0).default(1).describe('BM25 weight of the chunk text'),
+      })
+      .strict()
+      .prefault({}),
+    lexicalEngine: z
+      .enum(['fts5', 'memory'])
+      .default('memory')
+      .describe('Scores the BM25 leg: "memory" = an in-memory index read from FTS5 (same ranking, faster; falls back to FTS5 while it builds), "fts5" = FTS5\'s bm25() per row'),
     hnsw,
   })
   .strict()
@@ -76,6 +108,8 @@ const answer = z
     headingCredit: z.number().min(0).max(1).default(0.5).describe('Credit for a question term found only in a sentence\'s headings or table header'),
     kindMissPenalty: z.number().min(0).max(1).default(0.25).describe('Share of evidence lost when a how-long/how-much question meets a sentence without that kind of fact'),
     minCoverageWithUnknownTerm: z.number().min(0).max(1).default(0.8).describe('Coverage needed when the question names a term found nowhere in the collection'),
+    tokenizer: z.enum(['cl100k_base', 'o200k_base', 'estimate']).default('cl100k_base').describe('Encoding the context budget is counted in; "estimate" counts about 4 characters per token'),
+    rewriteWithCompletion: z.boolean().default(true).describe('Rewrite follow-up questions with the completion endpoint when one is configured (otherwise by carrying key terms)'),
   })
   .strict()
   .prefault({});
@@ -89,6 +123,8 @@ const completion = z
     maxTokens: z.number().int().min(1).default(512).describe('Most tokens the endpoint may generate'),
     timeoutMs: z.number().int().min(100).default(20_000).describe('Per-attempt timeout'),
     retries: z.number().int().min(0).max(10).default(2).describe('Retries on 429, 5xx and network errors'),
+    breakerFailures: z.number().int().min(1).default(5).describe('Failed calls in a row that stop calls to the endpoint for a cool-down'),
+    breakerCoolDownMs: z.number().int().min(0).default(30_000).describe('How long calls stay stopped before one trial call'),
   })
   .strict()
   .prefault({});
@@ -121,6 +157,8 @@ const limits = z
     kMax: z.number().int().min(1).max(1000).default(50).describe('Largest k a request may ask for'),
     historyMaxTurns: z.number().int().min(0).default(20).describe('Most earlier turns accepted with a question'),
     documentMaxBytes: z.number().int().min(1).default(50 * 1024 * 1024).describe('Largest document file ingested'),
+    pdfMaxPages: z.number().int().min(1).default(2000).describe('Most pages in one PDF; a longer one is refused'),
+    pdfMaxSeconds: z.number().positive().default(120).describe('Time allowed to read one PDF\'s text; a slower one is refused'),
   })
   .strict()
   .prefault({});

@@ -6,7 +6,7 @@ import { readFileSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
 
-const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
+const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..', '..');
 const { configSchema, configReference } = await import(path.join(root, 'dist', 'config', 'index.js'));
 
 writeFileSync(path.join(root, 'config', 'default.json'), JSON.stringify(configSchema.parse({}), null, 2) + '\n');

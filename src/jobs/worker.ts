@@ -1,5 +1,6 @@
 // The job worker thread: its own database connection, embedder and indexes, so ingestion never blocks
 // the event loop that serves queries. It claims queued jobs one at a time until told to stop.
+import { platform, setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
 import type { Config } from '../config/index.js';
 import { createLogger } from '../logger.js';
@@ -7,6 +8,16 @@ import { createRuntime } from '../runtime.js';
 import { claimNext, runOne } from './queue.js';
 
 const config = (workerData as { config: Config }).config;
+// On Linux a nice value belongs to one thread, so this lowers only the job thread: when ingest and queries
+// want the same core, queries go first (docs/benchmarks.md, "Re-index"). Elsewhere it would lower the whole
+// process, queries included, so it is left alone.
+if (platform() === 'linux') {
+  try {
+    setPriority(0, 10);
+  } catch {
+    /* not permitted: jobs run at normal priority */
+  }
+}
 const logger = createLogger(config.logLevel).child({ thread: 'jobs' });
 const rt = await createRuntime(config, logger, { processMetrics: false });
 let stopping = false;

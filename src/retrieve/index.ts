@@ -1,7 +1,18 @@
-export { createRetriever, DEFAULT_FIELD_WEIGHTS, DEFAULT_TUNING, type Retriever, type RetrieveRequest, type RetrieverOptions } from './retriever.js';
+export {
+  createRetriever,
+  retrieverOptions,
+  DEFAULT_FIELD_WEIGHTS,
+  DEFAULT_TUNING,
+  type Retriever,
+  type RetrieveRequest,
+  type RetrieverOptions,
+  type RetrievalSettings,
+  type LexicalEngine,
+} from './retriever.js';
+export { createLexicalMemory, phraseCounts, type LexicalMemory, type LexicalMemoryStats, type PhraseCount } from './lexical-memory.js';
 export { reciprocalRankFusion, type RankedList, type FusedItem } from './rrf.js';
 export { toMatchExpression, toWeightedMatch, contentTerms, termCounts, queryTerms, STOP_WORDS, type WeightedTerm } from './query-text.js';
 export { rm3Expand, DEFAULT_RM3, type Rm3Options } from './rm3.js';
 export { mmrSelect, jaccard, DEFAULT_MMR, type MmrOptions, type MmrItem } from './mmr.js';
-export { createWordNet, type SynonymSource } from './wordnet.js';
+export { createWordNet, packagedWordNetDir, type SynonymSource } from './wordnet.js';
 export { allowedChunkIds, type RetrieveFilter } from './filter.js';

@@ -66,16 +66,25 @@ export function toWeightedMatch(terms: readonly WeightedTerm[], opts: { maxTerms
   if (kept.length === 0) return null;
   const top = Math.max(...kept.map((t) => t.weight));
   // Scale so the heaviest term gets maxRepeat copies; lighter ones keep their share, at least one copy.
+  const counts = kept.map((t) => Math.max(1, Math.min(maxRepeat, Math.round((t.weight / top) * maxRepeat))));
+  // Dividing every count by their greatest common divisor scales all scores by one constant, so the
+  // ranking is the same with fewer phrases (each phrase costs FTS5 work on every matching row): equal
+  // weights, the usual case for a short question, become one copy each.
+  const g = counts.reduce(gcd);
   const parts: string[] = [];
-  for (const t of kept) {
-    const n = Math.max(1, Math.min(maxRepeat, Math.round((t.weight / top) * maxRepeat)));
+  kept.forEach((t, i) => {
     const quoted = `"${t.term.replace(/"/g, '""')}"`;
-    for (let i = 0; i < n; i++) parts.push(quoted);
-  }
+    for (let r = 0; r < counts[i]! / g; r++) parts.push(quoted);
+  });
   return parts.join(' OR ');
 }
 
 /** An FTS5 MATCH expression for the query (each content term once), or null when it has no searchable term. */
 export function toMatchExpression(text: string, maxTerms = 64): string | null {
   return toWeightedMatch([...termCounts(text).keys()].map((term) => ({ term, weight: 1 })), { maxTerms, maxRepeat: 1 });
+}
+
+function gcd(a: number, b: number): number {
+  while (b) [a, b] = [b, a % b];
+  return a;
 }

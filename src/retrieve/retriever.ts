@@ -3,6 +3,7 @@ import { SourceboundError } from '../errors.js';
 import type { Repository, VectorIndexes, FtsWeights, ChunkView } from '../store/index.js';
 import type { SearchHit, SearchMode } from '../types.js';
 import { allowedChunkIds, isEmptyFilter, type RetrieveFilter } from './filter.js';
+import { createLexicalMemory, phraseCounts, type LexicalMemory } from './lexical-memory.js';
 import { DEFAULT_MMR, jaccard, mmrSelect, type MmrOptions } from './mmr.js';
 import { queryTerms, termCounts, toWeightedMatch, type WeightedTerm } from './query-text.js';
 import { DEFAULT_RM3, rm3Expand, type Rm3Options } from './rm3.js';
@@ -17,6 +18,8 @@ export interface RetrieverOptions {
   fieldWeights: FtsWeights;
   /** Most times one query term is repeated to carry its weight into FTS5 (1 = every term counts once). */
   termRepeat?: number;
+  /** Most repeats of one term in the RM3 query, whose weights are spread over more terms (default termRepeat × 3). */
+  rm3Repeat?: number;
   /** Pseudo-relevance feedback on the lexical leg; null turns it off, undefined takes the default. */
   rm3?: Rm3Options | null;
   /** Weight of WordNet synonyms relative to the word they expand; null (the default) adds none. */
@@ -28,7 +31,15 @@ export interface RetrieverOptions {
   denseFeedback?: number | null;
   /** Diversity step over the fused list; null (the default) keeps the fused order. */
   mmr?: MmrOptions | null;
+  /**
+   * Who scores the lexical leg: FTS5's bm25() per matching row, or the in-memory index (lexical-memory.ts),
+   * which ranks the same and falls back to FTS5 whenever it cannot answer. Default here "fts5"; the service's
+   * config (`retrieval.lexicalEngine`) defaults to "memory".
+   */
+  lexicalEngine?: LexicalEngine;
 }
+
+export type LexicalEngine = 'fts5' | 'memory';
 
 export interface RetrieveRequest {
   query: string;
@@ -57,6 +68,38 @@ export const DEFAULT_TUNING = {
   mmr: null as MmrOptions | null,
 };
 
+/** The `retrieval` section of the config, as far as the retriever reads it. */
+export interface RetrievalSettings {
+  candidates: number;
+  rrfK: number;
+  lexicalWeight: number;
+  denseWeight: number;
+  termRepeat: number;
+  rm3: { enabled: boolean } & Rm3Options;
+  synonymWeight: number;
+  denseFeedback: number;
+  mmr: { enabled: boolean } & MmrOptions;
+  fieldWeights: FtsWeights;
+  lexicalEngine: LexicalEngine;
+}
+
+/** Retriever options from the config section (0 and enabled: false turn a step off). */
+export function retrieverOptions(c: RetrievalSettings): RetrieverOptions {
+  return {
+    candidates: c.candidates,
+    rrfK: c.rrfK,
+    lexicalWeight: c.lexicalWeight,
+    denseWeight: c.denseWeight,
+    fieldWeights: { title: c.fieldWeights.title, heading: c.fieldWeights.heading, body: c.fieldWeights.body },
+    termRepeat: c.termRepeat,
+    rm3: c.rm3.enabled ? { docs: c.rm3.docs, terms: c.rm3.terms, originalWeight: c.rm3.originalWeight } : null,
+    synonymWeight: c.synonymWeight > 0 ? c.synonymWeight : null,
+    denseFeedback: c.denseFeedback > 0 ? c.denseFeedback : null,
+    mmr: c.mmr.enabled ? { lambda: c.mmr.lambda, duplicateAt: c.mmr.duplicateAt } : null,
+    lexicalEngine: c.lexicalEngine,
+  };
+}
+
 interface Scored {
   id: number;
   score: number;
@@ -69,6 +112,11 @@ export function createRetriever(deps: {
   options: RetrieverOptions;
   /** Needed only when options.synonymWeight is set. */
   synonyms?: SynonymSource;
+  /**
+   * The in-memory lexical index, when options.lexicalEngine is "memory" (the service passes one that builds
+   * in the background); without it the retriever makes one that builds inside the first query.
+   */
+  lexicalIndex?: LexicalMemory;
 }): Retriever {
   const { repo, indexes, embedder, options } = deps;
   const termRepeat = options.termRepeat ?? DEFAULT_TUNING.termRepeat;
@@ -76,6 +124,7 @@ export function createRetriever(deps: {
   const synonymWeight = options.synonymWeight === undefined ? DEFAULT_TUNING.synonymWeight : options.synonymWeight;
   const mmr = options.mmr === undefined ? DEFAULT_TUNING.mmr : options.mmr;
   const denseFeedback = options.denseFeedback === undefined ? DEFAULT_TUNING.denseFeedback : options.denseFeedback;
+  const memory = (options.lexicalEngine ?? 'fts5') === 'memory' ? (deps.lexicalIndex ?? createLexicalMemory(repo.db)) : null;
 
   // Rocchio (1971): move the query vector toward the centroid of the top lexical hits, whose stored vectors
   // are at hand, so the dense leg searches near what BM25 already found relevant rather than near the bare
@@ -83,8 +132,7 @@ export function createRetriever(deps: {
   const feedbackVector = (query: Float32Array, top: readonly Scored[]): Float32Array => {
     if (!denseFeedback) return query;
     const ids = top.slice(0, rm3?.docs ?? 10).map((r) => r.id);
-    const views = repo.chunkViews(ids);
-    const vecs = repo.getVectors(embedder.id, [...views.values()].map((v) => v.chunkHash));
+    const vecs = repo.chunkVectors(embedder.id, ids);
     if (vecs.size === 0) return query;
     const out = Float32Array.from(query);
     for (const v of vecs.values()) for (let i = 0; i < out.length; i++) out[i] = out[i]! + (denseFeedback * v[i]!) / vecs.size;
@@ -105,24 +153,29 @@ export function createRetriever(deps: {
     return counts;
   };
 
-  const ftsSearch = (collection: string, terms: WeightedTerm[], repeat: number, limit: number, filter?: RetrieveFilter): Scored[] => {
+  const ftsSearch = (collection: string, terms: WeightedTerm[], repeat: number, limit: number, filter?: RetrieveFilter, allowed?: ReadonlySet<number>): Scored[] => {
+    if (memory) {
+      // The same repeat counts as the MATCH expression below, as multipliers; null = ask FTS5 instead.
+      const hits = memory.search(collection, phraseCounts(terms, { maxRepeat: repeat }), limit, options.fieldWeights, filter ? allowed : undefined);
+      if (hits) return hits.map((h) => ({ id: h.chunkId, score: h.score }));
+    }
     const match = toWeightedMatch(terms, { maxRepeat: repeat });
     if (!match) return [];
     return repo.searchFts(collection, match, limit, options.fieldWeights, filter).map((r) => ({ id: r.chunkId, score: r.score }));
   };
 
-  const lexical = (collection: string, query: string, limit: number, filter?: RetrieveFilter): Scored[] => {
+  const lexical = (collection: string, query: string, limit: number, filter?: RetrieveFilter, allowed?: ReadonlySet<number>): Scored[] => {
     const weights = queryWeights(query);
     const terms = [...weights].map(([term, weight]) => ({ term, weight }));
-    const first = ftsSearch(collection, terms, termRepeat, rm3 ? Math.max(limit, rm3.docs) : limit, filter);
+    const first = ftsSearch(collection, terms, termRepeat, rm3 ? Math.max(limit, rm3.docs) : limit, filter, allowed);
     if (!rm3 || first.length === 0) return first.slice(0, limit);
-    const views = repo.chunkViews(first.slice(0, rm3.docs).map((r) => r.id));
+    const texts = repo.chunkTexts(first.slice(0, rm3.docs).map((r) => r.id));
     const feedback = first.slice(0, rm3.docs).flatMap((r) => {
-      const v = views.get(r.id);
-      return v ? [{ text: v.text, score: r.score }] : [];
+      const text = texts.get(r.id);
+      return text !== undefined ? [{ text, score: r.score }] : [];
     });
     // The expanded query spreads weight over many terms; a finer repeat scale keeps their proportions.
-    return ftsSearch(collection, rm3Expand(weights, feedback, rm3), termRepeat * 3, limit, filter);
+    return ftsSearch(collection, rm3Expand(weights, feedback, rm3), options.rm3Repeat ?? termRepeat * 3, limit, filter, allowed);
   };
 
   const dense = (collection: string, vector: Float32Array | null, limit: number, allowed?: ReadonlySet<number>): Scored[] => {
@@ -132,19 +185,22 @@ export function createRetriever(deps: {
 
   return {
     async search(req) {
-      const col = repo.getCollection(req.collection);
+      // One primary-key lookup per query (no counts): it gives the generation the vector index checks too.
+      const col = repo.collectionState(req.collection);
       if (!col) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [req.collection]);
       const wantsDense = req.mode !== 'lexical';
       if (wantsDense && col.embedderId && col.embedderId !== embedder.id) {
         throw new SourceboundError('SB_ERR_EMBEDDER_MISMATCH', [req.collection, col.embedderId, embedder.id]);
       }
-      // Another process (a CLI ingest) may have changed the collection since the last query.
-      if (wantsDense) indexes.sync(req.collection);
+      // Another process (a CLI ingest) may have changed the collection since the last query. Only memory
+      // is brought up to date here: writing index files is the writer's job, not a query's.
+      if (wantsDense) indexes.sync(req.collection, { persist: false, generation: col.generation });
       const filter = isEmptyFilter(req.filter) ? undefined : req.filter;
-      const allowed = filter && wantsDense ? allowedChunkIds(repo.db, req.collection, filter) : undefined;
+      // One allowed-id set for both legs when the in-memory lexical index filters inside its search too.
+      const allowed = filter && (wantsDense || (memory && req.mode !== 'dense')) ? allowedChunkIds(repo.db, req.collection, filter) : undefined;
       const limit = Math.max(req.k, options.candidates);
       const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
-      const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter);
+      const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed);
       const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;
       const den = wantsDense ? dense(req.collection, denseQuery, limit, allowed) : [];
       const denseScore = new Map(den.map((d) => [d.id, d.score]));
@@ -227,6 +283,7 @@ function toHit(v: ChunkView, score: number, ranks: { lexical?: number; dense?: n
     start: v.start,
     end: v.end,
     effectiveDate: v.effectiveDate,
+    version: v.version ?? null,
     score,
     ranks,
   };

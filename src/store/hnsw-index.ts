@@ -1,5 +1,6 @@
 import { closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, renameSync, unlinkSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
+import { threadId } from 'node:worker_threads';
 import hnswlib from 'hnswlib-node';
 import type { Repository } from './repository.js';
 
@@ -35,6 +36,8 @@ interface Loaded {
   index: Hnsw;
   meta: IndexMeta;
   live: Set<number>;
+  /** False while memory is ahead of the file on disk (a query-path sync does not write files). */
+  saved: boolean;
 }
 
 export interface VectorIndexLogger {
@@ -43,8 +46,20 @@ export interface VectorIndexLogger {
 }
 
 export interface VectorIndexes {
-  /** Brings the collection's index in step with the database (loading, patching or rebuilding it). */
-  sync(collection: string): { added: number; removed: number; rebuilt: boolean; size: number };
+  /**
+   * Brings the collection's index in step with the database (loading, patching or rebuilding it). With
+   * `persist: false` (the query path) only memory changes: writers save, readers do not rewrite files.
+   * `generation`: the collection's generation when the caller has just read it (saves a lookup per query).
+   */
+  sync(collection: string, opts?: { persist?: boolean; generation?: number }): { added: number; removed: number; rebuilt: boolean; size: number };
+  /**
+   * Makes the index of collection `from` (a shadow built by a full re-index) the index of `to` at
+   * `generation`, holding exactly `rows`: saved under `to`'s name before the database switches, so that every
+   * reader, in this process or another, swaps by loading one file instead of rebuilding. `from`'s files go.
+   */
+  adopt(from: string, to: string, generation: number, rows: readonly { id: number; chunkHash: string }[]): void;
+  /** Drops a collection's in-memory index and its files (a shadow collection that was given up). */
+  discard(collection: string): void;
   /**
    * The k nearest live vectors; with `allowed`, only among those chunk ids, and still k of them when that
    * many exist (the filter runs inside the graph search, with an exact scan when it is very selective).
@@ -90,17 +105,19 @@ export function createVectorIndexes(deps: {
   const save = (c: string, state: Loaded, generation: number): void => {
     const file = `${fileSafe(c)}.g${generation}.hnsw`;
     const full = path.join(dir, file);
-    const tmp = `${full}.tmp-${process.pid}`;
+    // The job worker thread shares the process id with the request thread: both name their temporaries.
+    const tmp = `${full}.tmp-${process.pid}-${threadId}`;
     state.index.writeIndexSync(tmp);
     fsyncFile(tmp);
     renameSync(tmp, full);
     const old = state.meta.file;
     state.meta = { ...state.meta, generation, file, deleted: [...deletedOf(state)] };
-    const metaTmp = `${metaPath(c)}.tmp-${process.pid}`;
+    const metaTmp = `${metaPath(c)}.tmp-${process.pid}-${threadId}`;
     writeFileSync(metaTmp, JSON.stringify(state.meta));
     fsyncFile(metaTmp);
     renameSync(metaTmp, metaPath(c));
     fsyncDir(dir);
+    state.saved = true;
     if (old && old !== file) {
       try {
         unlinkSync(path.join(dir, old));
@@ -125,35 +142,23 @@ export function createVectorIndexes(deps: {
       index.setEf(params.efSearch);
       const deleted = new Set(meta.deleted);
       const live = new Set(index.getIdsList().filter((id) => !deleted.has(id)));
-      return { index, meta, live };
+      return { index, meta, live, saved: true };
     } catch (err) {
       logger?.warn({ collection: c, err: (err as Error).message }, 'vector index file unreadable; rebuilding');
       return null;
     }
   };
 
-  const sync: VectorIndexes['sync'] = (c) => {
-    const col = repo.getCollection(c);
-    const generation = col?.generation ?? 0;
-    let state = loaded.get(c) ?? null;
-    if (state && state.meta.generation === generation) return { added: 0, removed: 0, rebuilt: false, size: state.live.size };
-    if (!state) state = tryLoad(c);
-    const rows = repo.chunksOfCollection(c);
-    const wanted = new Map(rows.map((r) => [r.id, r.chunkHash] as const));
-    let rebuilt = false;
-    if (state) {
-      const stale = [...state.live].filter((id) => !wanted.has(id)).length;
-      // Many tombstones slow search and waste memory: start over past a third of the graph.
-      if (stale + deletedOf(state).size > Math.max(64, state.index.getCurrentCount() / 3)) state = null;
-    }
-    if (!state) {
-      state = {
-        index: fresh(rows.length + 16),
-        meta: { version: 1, embedderId, dimensions, generation: -1, file: '', m: params.m, efConstruction: params.efConstruction, deleted: [] },
-        live: new Set(),
-      };
-      rebuilt = true;
-    }
+  // Past a third of the graph in tombstones and missing points, patching costs about what a rebuild does.
+  const tooFar = (state: Loaded, wanted: ReadonlyMap<number, string>): boolean => {
+    let stale = 0;
+    for (const id of state.live) if (!wanted.has(id)) stale++;
+    const missing = wanted.size - (state.live.size - stale);
+    return stale + missing + deletedOf(state).size > Math.max(64, state.index.getCurrentCount() / 3);
+  };
+
+  /** Marks deleted what `rows` no longer holds and adds what is missing, from the stored vectors. */
+  const patch = (c: string, state: Loaded, rows: readonly { id: number; chunkHash: string }[], wanted: ReadonlyMap<number, string>) => {
     let removed = 0;
     for (const id of [...state.live]) {
       if (!wanted.has(id)) {
@@ -179,7 +184,23 @@ export function createVectorIndexes(deps: {
       added++;
     }
     if (withoutVector > 0) logger?.warn({ collection: c, chunks: withoutVector }, 'chunks without a stored vector for this embedder are not in the vector index');
-    if (rebuilt && rows.length > 0) logger?.info({ collection: c, vectors: added }, 'vector index rebuilt from stored vectors');
+    if (added + removed > 0) state.saved = false;
+    return { added, removed };
+  };
+
+  const emptyState = (capacity: number): Loaded => ({
+    index: fresh(capacity),
+    meta: { version: 1, embedderId, dimensions, generation: -1, file: '', m: params.m, efConstruction: params.efConstruction, deleted: [] },
+    live: new Set(),
+    saved: false,
+  });
+
+  const persistOrKeep = (c: string, state: Loaded, generation: number, persist: boolean): void => {
+    if (state.saved && state.meta.generation === generation) return;
+    if (!persist) {
+      state.meta = { ...state.meta, generation };
+      return;
+    }
     try {
       save(c, state, generation);
     } catch (err) {
@@ -187,12 +208,87 @@ export function createVectorIndexes(deps: {
       state.meta = { ...state.meta, generation };
       logger?.warn({ collection: c, err: (err as Error).message }, 'could not save vector index');
     }
+  };
+
+  const sync: VectorIndexes['sync'] = (c, opts = {}) => {
+    const persist = opts.persist ?? true;
+    const generation = opts.generation ?? repo.collectionState(c)?.generation ?? 0;
+    let state = loaded.get(c) ?? null;
+    if (state && state.meta.generation === generation && (state.saved || !persist)) {
+      return { added: 0, removed: 0, rebuilt: false, size: state.live.size };
+    }
+    const rows = repo.chunksOfCollection(c);
+    const wanted = new Map(rows.map((r) => [r.id, r.chunkHash] as const));
+    if (state && state.meta.generation !== generation && tooFar(state, wanted)) {
+      // A full re-index swapped the collection: its writer saved the new index before switching, and loading
+      // that file costs far less than rebuilding here, on the query path. What is loaded is still checked
+      // against the database below, like any index read from disk.
+      const disk = readMeta(c);
+      if (disk && disk.generation === generation && disk.file !== state.meta.file) {
+        const next = tryLoad(c);
+        if (next) {
+          state = next;
+          logger?.info({ collection: c, generation }, 'vector index switched to the one a full re-index built');
+        }
+      }
+    }
+    if (!state) state = tryLoad(c);
+    let rebuilt = false;
+    if (state && tooFar(state, wanted)) state = null;
+    if (!state) {
+      state = emptyState(rows.length + 16);
+      rebuilt = true;
+    }
+    const { added, removed } = patch(c, state, rows, wanted);
+    if (rebuilt && rows.length > 0) logger?.info({ collection: c, vectors: added }, 'vector index rebuilt from stored vectors');
+    persistOrKeep(c, state, generation, persist);
     loaded.set(c, state);
     return { added, removed, rebuilt, size: state.live.size };
   };
 
+  const removeFiles = (c: string, keep?: string): void => {
+    const meta = readMeta(c);
+    for (const f of [meta?.file ? path.join(dir, meta.file) : null, metaPath(c)]) {
+      if (!f || (keep && f === path.join(dir, keep))) continue;
+      try {
+        unlinkSync(f);
+      } catch {
+        /* already gone */
+      }
+    }
+  };
+
+  const adopt: VectorIndexes['adopt'] = (from, to, generation, rows) => {
+    const wanted = new Map(rows.map((r) => [r.id, r.chunkHash] as const));
+    let state = loaded.get(from) ?? tryLoad(from);
+    if (state && tooFar(state, wanted)) state = null;
+    if (!state) state = emptyState(rows.length + 16);
+    patch(to, state, rows, wanted);
+    const previous = readMeta(to)?.file;
+    const shadowFile = state.meta.file;
+    state.saved = false;
+    save(to, state, generation);
+    // save() removed the shadow's index file (the state's previous file); the shadow's meta and the target's
+    // old index file are left.
+    for (const f of [previous && previous !== state.meta.file ? path.join(dir, previous) : null, metaPath(from), shadowFile ? path.join(dir, shadowFile) : null]) {
+      if (!f || f === path.join(dir, state.meta.file)) continue;
+      try {
+        unlinkSync(f);
+      } catch {
+        /* already gone */
+      }
+    }
+    loaded.delete(from);
+    loaded.set(to, state);
+  };
+
   return {
     sync,
+    adopt,
+    discard(c) {
+      loaded.delete(c);
+      removeFiles(c);
+    },
     search(c, vector, k, allowed) {
       const state = loaded.get(c);
       if (!state || state.live.size === 0) return [];

@@ -2,11 +2,14 @@ export { openDatabase, migrate, schemaVersion, type Db } from './db.js';
 export { MIGRATIONS } from './migrations.js';
 export {
   createRepository,
+  shadowCollectionName,
+  SHADOW_PREFIX,
   vectorToBlob,
   blobToVector,
   type Repository,
   type CollectionRow,
   type DocumentRecord,
+  type DocumentKey,
   type ChunkInput,
   type ChunkRecord,
   type ChunkView,

@@ -106,4 +106,24 @@ export const MIGRATIONS: readonly string[] = [
     END
   FROM chunks k JOIN documents d ON d.id = k.document_id;
   `,
+  // 3: staff ratings of answers from the reference desk (src/feedback); kept when a collection goes,
+  // because they are the raw material of question sets (`sourcebound feedback export`).
+  `
+  CREATE TABLE answer_ratings (
+    id INTEGER PRIMARY KEY AUTOINCREMENT,
+    collection TEXT NOT NULL,
+    key_id TEXT,
+    question TEXT NOT NULL,
+    -- the question as the service answered it, when a follow-up was rewritten
+    answered_question TEXT,
+    history TEXT NOT NULL DEFAULT '[]',
+    answer TEXT NOT NULL,
+    abstained INTEGER NOT NULL CHECK (abstained IN (0, 1)),
+    sources TEXT NOT NULL DEFAULT '[]',
+    helpful INTEGER NOT NULL CHECK (helpful IN (0, 1)),
+    comment TEXT,
+    created_at TEXT NOT NULL
+  );
+  CREATE INDEX answer_ratings_by_collection ON answer_ratings(collection, created_at);
+  `,
 ];

@@ -56,6 +56,8 @@ export interface ChunkView {
   pageStart: number | null;
   pageEnd: number | null;
   effectiveDate: string | null;
+  /** The document's stated version or issue ("Issue 4", "v2.1"), when it states one. */
+  version?: string | null;
   chunkHash: string;
 }
 
@@ -75,6 +77,22 @@ export interface NewDocument {
   settingsKey: string;
 }
 
+export interface DocumentKey {
+  id: string;
+  source: string;
+  root: string | null;
+  contentHash: string;
+  settingsKey: string;
+  updatedAt: string;
+}
+
+/**
+ * A full re-index builds into a shadow collection of this name and swaps it in at the end. Collection names
+ * start with a letter or digit (src/api/schemas.ts), so a shadow never clashes with a real collection.
+ */
+export const SHADOW_PREFIX = '~rebuild:';
+export const shadowCollectionName = (collection: string): string => `${SHADOW_PREFIX}${collection}`;
+
 export interface FtsRow {
   chunkId: number;
   score: number;
@@ -90,6 +108,8 @@ export interface Repository {
   readonly db: Db;
   ensureCollection(name: string): void;
   getCollection(name: string): CollectionRow | null;
+  /** The collection row without its counts: one primary-key lookup, for the query path. */
+  collectionState(name: string): Omit<CollectionRow, 'documents' | 'chunks'> | null;
   listCollections(): CollectionRow[];
   setCollectionEmbedder(name: string, embedderId: string, dimensions: number): void;
   bumpGeneration(name: string): number;
@@ -106,8 +126,24 @@ export interface Repository {
     chunkIds: number[];
   };
   deleteDocument(id: string): number[];
+  /** Each document of a collection without its text: what change detection needs. */
+  documentKeys(collection: string): DocumentKey[];
+  /**
+   * Moves a document to a new id, collection and source, keeping its chunks (and so their vectors and FTS
+   * rows): a renamed file, or a document built in a shadow collection. Returns the number of chunks moved.
+   */
+  moveDocument(fromId: string, to: { id: string; collection: string; source: string; root: string | null }): number;
+  /** Sets what a full re-index switched a collection to; the generation is set, not bumped. */
+  setCollectionState(name: string, state: { embedderId: string; dimensions: number; generation: number }): void;
+  /** Removes an (empty) collection row, e.g. a shadow collection after its swap. */
+  dropCollection(name: string): void;
   chunksOfCollection(collection: string): { id: number; chunkHash: string }[];
+  chunksOfDocuments(ids: readonly string[]): { id: number; chunkHash: string }[];
   chunkViews(ids: readonly number[]): Map<number, ChunkView>;
+  /** Chunk texts alone (no document join), e.g. for query expansion. */
+  chunkTexts(ids: readonly number[]): Map<number, string>;
+  /** Stored vectors of chunks by chunk id, in one statement. */
+  chunkVectors(modelId: string, ids: readonly number[]): Map<number, Float32Array>;
   getVectors(modelId: string, hashes: readonly string[]): Map<string, Float32Array>;
   searchFts(collection: string, match: string, limit: number, weights: FtsWeights, filter?: SearchFilter): FtsRow[];
   transaction<T>(fn: () => T): T;
@@ -120,6 +156,8 @@ export interface FtsWeights {
 }
 
 const now = (): string => new Date().toISOString();
+/** A column weight as FTS5's rank function text takes it (a plain decimal, never NaN or an exponent). */
+const num = (x: number): string => (Number.isFinite(x) && x >= 0 ? x.toFixed(6) : '1.0');
 
 /**
  * What one chunk puts in each FTS column. A chunk's text starts with the heading lines above it and its
@@ -166,7 +204,25 @@ export function createRepository(db: Db): Repository {
         (SELECT count(*) FROM documents d WHERE d.collection = c.name) AS documents,
         (SELECT count(*) FROM chunks k JOIN documents d ON d.id = k.document_id WHERE d.collection = c.name) AS chunks
       FROM collections c WHERE c.name = ?`),
-    listCollections: db.prepare('SELECT name FROM collections ORDER BY name'),
+    // Shadow collections of a running full re-index are not collections anyone asked for.
+    collectionState: db.prepare(
+      'SELECT name, embedder_id AS embedderId, dimensions, generation FROM collections WHERE name = ?',
+    ),
+    chunkViews: db.prepare(`
+      SELECT k.id, k.document_id, k.text, k.start_offset, k.end_offset, k.heading_path, k.page_start, k.page_end, k.chunk_hash,
+        d.source, d.title, d.effective_date, json_extract(d.metadata, '$.version') AS version
+      FROM chunks k JOIN documents d ON d.id = k.document_id WHERE k.id IN (SELECT value FROM json_each(?))`),
+    chunkTexts: db.prepare('SELECT id, text FROM chunks WHERE id IN (SELECT value FROM json_each(?))'),
+    chunkVectors: db.prepare(`
+      SELECT k.id, v.vector FROM chunks k JOIN vectors v ON v.model_id = ? AND v.chunk_hash = k.chunk_hash
+      WHERE k.id IN (SELECT value FROM json_each(?))`),
+    // The name of the store's only collection, or null when there are none or several.
+    onlyCollection: db.prepare('SELECT CASE WHEN count(*) = 1 THEN max(name) END FROM collections').pluck(),
+    // Which collection each of some chunks belongs to (FTS5 ranks across collections; see searchFts).
+    collectionOfChunks: db.prepare(`
+      SELECT k.id, d.collection FROM chunks k JOIN documents d ON d.id = k.document_id
+      WHERE k.id IN (SELECT value FROM json_each(?))`).raw(),
+    listCollections: db.prepare("SELECT name FROM collections WHERE substr(name, 1, 9) <> '~rebuild:' ORDER BY name"),
     setEmbedder: db.prepare('UPDATE collections SET embedder_id = ?, dimensions = ? WHERE name = ?'),
     bump: db.prepare('UPDATE collections SET generation = generation + 1 WHERE name = ? RETURNING generation'),
     addSource: db.prepare(
@@ -201,6 +257,19 @@ export function createRepository(db: Db): Repository {
     insertVector: db.prepare(
       'INSERT INTO vectors (model_id, chunk_hash, dimensions, vector) VALUES (?, ?, ?, ?) ON CONFLICT DO NOTHING',
     ),
+    documentKeys: db.prepare(`
+      SELECT id, source, root, content_hash AS contentHash, settings_key AS settingsKey, updated_at AS updatedAt
+      FROM documents WHERE collection = ? ORDER BY source`),
+    copyDoc: db.prepare(`
+      INSERT INTO documents (id, collection, source, root, title, format, content_hash, byte_size, page_count,
+        effective_date, metadata, text, settings_key, created_at, updated_at)
+      SELECT @id, @collection, @source, @root, title, format, content_hash, byte_size, page_count,
+        effective_date, metadata, text, settings_key, created_at, @now
+      FROM documents WHERE id = @fromId`),
+    moveChunks: db.prepare('UPDATE chunks SET document_id = ? WHERE document_id = ?'),
+    ftsSourceOfDoc: db.prepare('SELECT id, heading_path AS headingPath, text FROM chunks WHERE document_id = ? ORDER BY id'),
+    setState: db.prepare('UPDATE collections SET embedder_id = ?, dimensions = ?, generation = ? WHERE name = ?'),
+    dropCollection: db.prepare('DELETE FROM collections WHERE name = ?'),
     chunksOfCollection: db.prepare(`
       SELECT k.id, k.chunk_hash AS chunkHash FROM chunks k JOIN documents d ON d.id = k.document_id
       WHERE d.collection = ? ORDER BY k.id`),
@@ -224,11 +293,25 @@ export function createRepository(db: Db): Repository {
     updatedAt: r.updated_at as string,
   });
 
-  const removeChunksOf = (docId: string): number[] => {
+  // Documents of a shadow collection (a full re-index in progress) get no FTS rows until they are swapped in:
+  // every query's BM25 runs over the one FTS table, and a second copy of a collection in it made queries
+  // 2-3x slower for as long as a full re-index ran (docs/benchmarks.md, "Re-index").
+  const isShadow = (collection: string): boolean => collection.startsWith(SHADOW_PREFIX);
+
+  const removeChunksOf = (docId: string, collection: string): number[] => {
     const ids = (st.chunkIdsOfDoc.all(docId) as { id: number }[]).map((r) => r.id);
-    for (const id of ids) st.deleteFts.run(id);
+    if (!isShadow(collection)) for (const id of ids) st.deleteFts.run(id);
     st.deleteChunksOfDoc.run(docId);
     return ids;
+  };
+
+  let ranked: ReturnType<Db['prepare']> | null = null;
+  const rankedStatement = () =>
+    (ranked ??= db.prepare('SELECT rowid, rank FROM chunks_fts WHERE chunks_fts MATCH ? AND rank MATCH ? ORDER BY rank LIMIT ?').raw());
+  const keepCollection = (rows: [number, number][], collection: string): [number, number][] => {
+    if (rows.length === 0) return rows;
+    const of = new Map(st.collectionOfChunks.all(JSON.stringify(rows.map((r) => r[0]))) as [number, string][]);
+    return rows.filter(([id]) => of.get(id) === collection);
   };
 
   const repo: Repository = {
@@ -238,6 +321,10 @@ export function createRepository(db: Db): Repository {
     },
     getCollection(name) {
       const r = st.getCollection.get(name) as CollectionRow | undefined;
+      return r ?? null;
+    },
+    collectionState(name) {
+      const r = st.collectionState.get(name) as Omit<CollectionRow, 'documents' | 'chunks'> | undefined;
       return r ?? null;
     },
     listCollections() {
@@ -281,7 +368,7 @@ export function createRepository(db: Db): Repository {
     replaceDocument(doc, chunks, vectors, modelId) {
       return db
         .transaction(() => {
-          const removedChunkIds = removeChunksOf(doc.id);
+          const removedChunkIds = removeChunksOf(doc.id, doc.collection);
           st.upsertDoc.run({ ...doc, metadata: JSON.stringify(doc.metadata), now: now() });
           const chunkIds: number[] = [];
           for (const c of chunks) {
@@ -300,7 +387,7 @@ export function createRepository(db: Db): Repository {
             const id = Number(info.lastInsertRowid);
             chunkIds.push(id);
             const cols = ftsColumns(doc.title, c.headingPath, c.text);
-            st.insertFts.run(id, cols.title, cols.heading, cols.body);
+            if (!isShadow(doc.collection)) st.insertFts.run(id, cols.title, cols.heading, cols.body);
             const v = vectors.get(c.chunkHash);
             if (v) st.insertVector.run(modelId, c.chunkHash, v.length, vectorToBlob(v));
           }
@@ -314,46 +401,86 @@ export function createRepository(db: Db): Repository {
         .transaction(() => {
           const d = st.docById.get(id) as { collection: string } | undefined;
           if (!d) return [];
-          const removed = removeChunksOf(id);
+          const removed = removeChunksOf(id, d.collection);
           st.deleteDoc.run(id);
           repo.bumpGeneration(d.collection);
           return removed;
         })
         .immediate();
     },
+    documentKeys(collection) {
+      return st.documentKeys.all(collection) as DocumentKey[];
+    },
+    moveDocument(fromId, to) {
+      return db
+        .transaction(() => {
+          if (fromId === to.id) throw new Error(`moveDocument: ${fromId} onto itself`);
+          // A copy under the new id first, then the chunks, then the old row: no moment where the foreign key
+          // of a chunk points nowhere, and the chunk rows (ids, hashes, FTS rows) stay as they were.
+          const from = st.docById.get(fromId) as { collection: string; title: string } | undefined;
+          if (!from) throw new Error(`moveDocument: no document ${fromId}`);
+          st.copyDoc.run({ ...to, fromId, now: now() });
+          const moved = st.moveChunks.run(to.id, fromId).changes;
+          st.deleteDoc.run(fromId);
+          if (isShadow(from.collection) && !isShadow(to.collection)) {
+            for (const c of st.ftsSourceOfDoc.all(to.id) as { id: number; headingPath: string; text: string }[]) {
+              const cols = ftsColumns(from.title, JSON.parse(c.headingPath) as string[], c.text);
+              st.insertFts.run(c.id, cols.title, cols.heading, cols.body);
+            }
+          }
+          return moved;
+        })
+        .immediate();
+    },
+    setCollectionState(name, state) {
+      st.setState.run(state.embedderId, state.dimensions, state.generation, name);
+    },
+    dropCollection(name) {
+      st.dropCollection.run(name);
+    },
     chunksOfCollection(collection) {
       return st.chunksOfCollection.all(collection) as { id: number; chunkHash: string }[];
+    },
+    chunksOfDocuments(ids) {
+      if (ids.length === 0) return [];
+      return db
+        .prepare('SELECT id, chunk_hash AS chunkHash FROM chunks WHERE document_id IN (SELECT value FROM json_each(?)) ORDER BY id')
+        .all(JSON.stringify(ids)) as { id: number; chunkHash: string }[];
     },
     chunkViews(ids) {
       const out = new Map<number, ChunkView>();
       if (ids.length === 0) return out;
-      // Chunked IN lists stay under SQLite's bound-parameter limit.
-      for (let i = 0; i < ids.length; i += 500) {
-        const part = ids.slice(i, i + 500);
-        const rows = db
-          .prepare(
-            `SELECT k.id, k.document_id, k.text, k.start_offset, k.end_offset, k.heading_path, k.page_start, k.page_end, k.chunk_hash,
-               d.source, d.title, d.effective_date
-             FROM chunks k JOIN documents d ON d.id = k.document_id WHERE k.id IN (${part.map(() => '?').join(',')})`,
-          )
-          .all(...part) as Record<string, unknown>[];
-        for (const r of rows) {
-          out.set(r.id as number, {
-            chunkId: r.id as number,
-            documentId: r.document_id as string,
-            source: r.source as string,
-            title: r.title as string,
-            text: r.text as string,
-            start: r.start_offset as number,
-            end: r.end_offset as number,
-            headingPath: JSON.parse(r.heading_path as string) as string[],
-            pageStart: (r.page_start as number | null) ?? null,
-            pageEnd: (r.page_end as number | null) ?? null,
-            effectiveDate: (r.effective_date as string | null) ?? null,
-            chunkHash: r.chunk_hash as string,
-          });
-        }
+      // One prepared statement for any number of ids (a JSON array, not a bound-parameter list).
+      const rows = st.chunkViews.all(JSON.stringify(ids)) as Record<string, unknown>[];
+      for (const r of rows) {
+        out.set(r.id as number, {
+          chunkId: r.id as number,
+          documentId: r.document_id as string,
+          source: r.source as string,
+          title: r.title as string,
+          text: r.text as string,
+          start: r.start_offset as number,
+          end: r.end_offset as number,
+          headingPath: JSON.parse(r.heading_path as string) as string[],
+          pageStart: (r.page_start as number | null) ?? null,
+          pageEnd: (r.page_end as number | null) ?? null,
+          effectiveDate: (r.effective_date as string | null) ?? null,
+          version: typeof r.version === 'string' ? r.version : null,
+          chunkHash: r.chunk_hash as string,
+        });
       }
+      return out;
+    },
+    chunkTexts(ids) {
+      const out = new Map<number, string>();
+      if (ids.length === 0) return out;
+      for (const r of st.chunkTexts.all(JSON.stringify(ids)) as { id: number; text: string }[]) out.set(r.id, r.text);
+      return out;
+    },
+    chunkVectors(modelId, ids) {
+      const out = new Map<number, Float32Array>();
+      if (ids.length === 0) return out;
+      for (const r of st.chunkVectors.all(modelId, JSON.stringify(ids)) as { id: number; vector: Buffer }[]) out.set(r.id, blobToVector(r.vector));
       return out;
     },
     getVectors(modelId, hashes) {
@@ -367,7 +494,22 @@ export function createRepository(db: Db): Repository {
     },
     searchFts(collection, match, limit, w, filter) {
       // FTS5's bm25() returns "more negative is better"; we negate it so larger is better everywhere else.
-      // The filter sits in the same statement, so LIMIT counts only rows that pass it.
+      const rank = `bm25(${num(w.title)}, ${num(w.heading)}, ${num(w.body)})`;
+      if (!filter?.documentIds && Object.keys(filter?.metadata ?? {}).length === 0) {
+        // FTS5 ranks and cuts to LIMIT on its own (ORDER BY rank), and only the rows kept are joined to their
+        // collection. The FTS table holds every collection, so with more than one, fetch more than asked and
+        // keep this collection's rows; widen until enough are kept or FTS5 has no more.
+        const single = st.onlyCollection.get() === collection;
+        if (!single && !repo.collectionState(collection)) return [];
+        let want = single ? limit : limit * 2;
+        for (;;) {
+          const rows = rankedStatement().all(match, rank, want) as [number, number][];
+          const kept = single ? rows : keepCollection(rows, collection);
+          if (kept.length >= limit || rows.length < want) return kept.slice(0, limit).map(([id, r]) => ({ chunkId: id, score: -r }));
+          want *= 4;
+        }
+      }
+      // With a document filter, the filter sits in the same statement, so LIMIT counts only rows that pass it.
       const where: string[] = [];
       const params: unknown[] = [];
       if (filter?.documentIds) {
@@ -381,12 +523,12 @@ export function createRepository(db: Db): Repository {
       }
       const rows = db
         .prepare(
-          `SELECT f.rowid AS chunkId, -bm25(chunks_fts, ?, ?, ?) AS score
+          `SELECT f.rowid AS chunkId, -f.rank AS score
            FROM chunks_fts f JOIN chunks k ON k.id = f.rowid JOIN documents d ON d.id = k.document_id
-           WHERE chunks_fts MATCH ? AND d.collection = ?${where.map((x) => ` AND ${x}`).join('')}
-           ORDER BY bm25(chunks_fts, ?, ?, ?) LIMIT ?`,
+           WHERE chunks_fts MATCH ? AND f.rank MATCH ? AND d.collection = ?${where.map((x) => ` AND ${x}`).join('')}
+           ORDER BY f.rank LIMIT ?`,
         )
-        .all(w.title, w.heading, w.body, match, collection, ...params, w.title, w.heading, w.body, limit) as FtsRow[];
+        .all(match, rank, collection, ...params, limit) as FtsRow[];
       return rows;
     },
     transaction(fn) {

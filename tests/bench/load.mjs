@@ -4,7 +4,7 @@
 // load generator from the registry) against POST /v1/search (hybrid) and extractive POST /v1/answer.
 // Usage: npm run build && node tests/bench/load.mjs [--seconds 20] [--connections 8] [--json]
 import { spawn } from 'node:child_process';
-import { cpSync, mkdirSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
+import { cpSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { parseArgs } from 'node:util';
@@ -31,37 +31,55 @@ const docs = path.join(work, 'docs');
 const dataDir = path.join(work, 'data');
 mkdirSync(docs);
 
-// Grow the corpus: copy the seed documents into numbered sub-folders until the chunk target is met.
+// Grow the corpus: one copy of the seed documents tells how many chunks a copy makes; then enough numbered
+// copies are written and ingested in one run (one index save, as the nightly re-index would).
 const env = { SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_LOG_LEVEL: 'warn' };
 const cfg = loadConfig({ env, overrides: { seed: { ingestOnEmpty: false } } });
 const rt = await createRuntime(cfg, silentLogger(), { processMetrics: false });
 const seedFiles = readdirSync(SEED).filter((f) => /\.(md|html|txt|pdf)$/.test(f));
-let copy = 0;
-let chunks = 0;
-const started = performance.now();
-while (chunks < Number(args.chunks)) {
-  const dir = path.join(docs, `branch-${String(copy).padStart(3, '0')}`);
+const copyTo = (n) => {
+  const dir = path.join(docs, `branch-${String(n).padStart(3, '0')}`);
   mkdirSync(dir);
-  for (const f of seedFiles) cpSync(path.join(SEED, f), path.join(dir, f));
-  await rt.ingestor.ingestPath(dir, { collection: 'default' });
-  chunks = rt.repo.getCollection('default').chunks;
-  copy++;
-}
+  // Each copy differs by a line naming its branch, so no two documents share a content hash.
+  for (const f of seedFiles) {
+    if (f.endsWith('.pdf')) cpSync(path.join(SEED, f), path.join(dir, f));
+    else writeFileSync(path.join(dir, f), readFileSync(path.join(SEED, f), 'utf8') + `\n\nBranch copy ${n}.\n`);
+  }
+};
+const started = performance.now();
+copyTo(0);
+await rt.ingestor.ingestPath(docs, { collection: 'default' });
+const perCopy = rt.repo.getCollection('default').chunks;
+const copies = Math.ceil(Number(args.chunks) / perCopy);
+for (let n = 1; n < copies; n++) copyTo(n);
+await rt.ingestor.ingestPath(docs, { collection: 'default' });
+const chunks = rt.repo.getCollection('default').chunks;
+const copy = copies;
 const ingestSeconds = (performance.now() - started) / 1000;
 rt.close();
 
 const configFile = path.join(work, 'config.json');
 writeFileSync(configFile, JSON.stringify({ limits: { rateLimitPerMinute: 10_000_000 }, seed: { ingestOnEmpty: false } }));
 const server = spawn(process.execPath, [path.join(ROOT, 'dist', 'cli.js'), 'serve'], {
-  env: { ...process.env, ...env, PORT: '0', SOURCEBOUND_CONFIG: configFile },
+  // The server logs at info, as deployed (the ready line is read from it; request logs are drained).
+  env: { ...process.env, ...env, SOURCEBOUND_LOG_LEVEL: 'info', PORT: '0', SOURCEBOUND_CONFIG: configFile },
   stdio: ['ignore', 'pipe', 'inherit'],
 });
+// Never leave the server behind, whatever way this script ends.
+process.on('exit', () => server.kill('SIGKILL'));
+for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => process.exit(130));
 const base = await new Promise((resolve, reject) => {
   let out = '';
+  let ready = false;
   server.stdout.on('data', (d) => {
+    if (ready) return; // request logs after start-up are read and dropped
     out += d;
     const m = /"msg":"ready on (http:\/\/[^"]+)"/.exec(out);
-    if (m) resolve(m[1]);
+    if (m) {
+      ready = true;
+      out = '';
+      resolve(m[1]);
+    }
   });
   server.on('exit', (c) => reject(new Error(`server exited ${c}`)));
 });
@@ -83,6 +101,7 @@ async function run(name, url, bodies) {
     duration: Number(args.seconds),
     requests: bodies.map((b) => ({ method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify(b) })),
   });
+  if (result.non2xx > 0) console.error(`${name}: ${result.non2xx} non-2xx replies`, result.statusCodeStats);
   return {
     name,
     requestsPerSecond: Math.round(result.requests.average * 10) / 10,

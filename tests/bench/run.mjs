@@ -1,4 +1,4 @@
-// npm run bench: retrieval latency at 10k and 100k chunks, HNSW recall against exact search at 100k x 384.
+// npm run bench: retrieval latency at 10k and 100k chunks, HNSW recall against exact search at 100k x 384, re-index.
 // Prints Markdown tables for docs/benchmarks.md and writes the recall/latency chart next to it.
 import { writeFileSync } from 'node:fs';
 import os from 'node:os';
@@ -7,6 +7,7 @@ import { fileURLToPath } from 'node:url';
 import { runHnswBench } from './hnsw-recall.mjs';
 import { runLatencyBench } from './retrieval-latency.mjs';
 import { recallChart } from './chart.mjs';
+import { reindexMarkdown, runReindexBench } from './reindex.mjs';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..', '..');
 const log = (m) => process.stderr.write(`${m}\n`);
@@ -17,13 +18,20 @@ const out = [];
 out.push(`Machine: ${os.cpus()[0]?.model ?? 'unknown'} x ${os.cpus().length}, ${f(os.totalmem() / 2 ** 30, 0)} GiB, Node ${process.version}, ${os.platform()}`);
 
 if (!only || only === 'latency') {
-  for (const [chunks, label, tuning] of [[10_000, 'defaults (RM3 on)', {}], [10_000, 'RM3 off', { rm3: null }], [100_000, 'defaults (RM3 on)', {}], [100_000, 'RM3 off', { rm3: null }]]) {
-    log(`latency at ${chunks} chunks, ${label}`);
-    const r = await runLatencyBench({ chunks, log, tuning, queries: chunks > 50_000 ? 200 : 500 });
-    out.push(`\n### ${chunks.toLocaleString('en')} chunks, ${label} (store ${f(r.storeSeconds, 1)} s, HNSW build ${f(r.indexSeconds, 1)} s, ${r.queries} queries)\n`);
-    out.push('| mode | p50 ms | p95 ms | p99 ms | queries/s |');
-    out.push('|---|---:|---:|---:|---:|');
-    for (const [mode, s] of Object.entries(r.results)) out.push(`| ${mode} | ${f(s.p50)} | ${f(s.p95)} | ${f(s.p99)} | ${f(s.qps, 0)} |${s.short !== undefined ? ` (${s.short} short of k)` : ''}`);
+  const settings = [{ label: 'defaults (RM3 on)', tuning: {} }, { label: 'RM3 off', tuning: { rm3: null } }];
+  for (const chunks of [10_000, 100_000]) {
+    log(`latency at ${chunks} chunks`);
+    const r = await runLatencyBench({ chunks, log, settings, queries: chunks > 50_000 ? 200 : 500 });
+    if (r.lexicalIndex) {
+      const x = r.lexicalIndex;
+      out.push(`\nIn-memory lexical index at ${chunks.toLocaleString('en')} chunks: ${x.terms} terms, ${x.postings} postings, built in ${f(x.seconds, 1)} s, typed arrays ${f(x.arrayMiB, 0)} MiB, resident memory growth ${f(x.rssGrowthMiB, 0)} MiB.`);
+    }
+    for (const [label, results] of Object.entries(r.results)) {
+      out.push(`\n### ${chunks.toLocaleString('en')} chunks, ${label} (store ${f(r.storeSeconds, 1)} s, HNSW build ${f(r.indexSeconds, 1)} s, ${r.queries} queries)\n`);
+      out.push('| mode | p50 ms | p95 ms | p99 ms | queries/s |');
+      out.push('|---|---:|---:|---:|---:|');
+      for (const [mode, s] of Object.entries(results)) out.push(`| ${mode} | ${f(s.p50)} | ${f(s.p95)} | ${f(s.p99)} | ${f(s.qps, 0)} |${s.short !== undefined ? ` (${s.short} short of k)` : ''}`);
+    }
   }
 }
 if (!only || only === 'hnsw') {
@@ -39,5 +47,11 @@ if (!only || only === 'hnsw') {
   for (const r of h.sweep) out.push(`| ${r.m} | ${r.efConstruction} | ${f(r.buildSeconds, 1)} | ${r.ef} | ${f(r.recall, 4)} | ${f(r.p95, 3)} |`);
   writeFileSync(path.join(root, 'docs', 'benchmarks-hnsw-recall.svg'), recallChart(h.byEf));
   out.push('\nChart written to docs/benchmarks-hnsw-recall.svg');
+}
+if (!only || only === 'reindex') {
+  log('re-index: 1,000 generated documents');
+  const r = await runReindexBench({ docs: 1000, runs: 5, log });
+  out.push('\n### Re-index\n');
+  out.push(reindexMarkdown(r));
 }
 process.stdout.write(`${out.join('\n')}\n`);

@@ -129,13 +129,12 @@ describe('the ingest pipeline', () => {
     expect(s.documents.failed).toBe(0);
   });
 
-  it('treats a moved file as a new source and removes the old one', async () => {
-    // A title inside the file: a text file's title would come from its name and change the embedded text.
+  it('treats a file moved within the folder as a rename: no document added or removed, nothing embedded', async () => {
     writeFileSync(path.join(docs, 'a.md'), `# Fares\n\n${para('fares')}`);
     await rt.ingestor.ingestPath(docs, { collection: 'c' });
     renameSync(path.join(docs, 'a.md'), path.join(docs, 'renamed.md'));
     const s = await rt.ingestor.reindex({ collection: 'c' });
-    expect(s.documents).toMatchObject({ added: 1, removed: 1 });
-    expect(s.chunks.embedded).toBe(0); // same text, vectors reused by chunk hash
+    expect(s.documents).toMatchObject({ added: 0, renamed: 1, removed: 0 });
+    expect(s.chunks.embedded).toBe(0);
   });
 });

@@ -3,7 +3,7 @@ import type { IngestSummary } from '../../src/ingest/pipeline.js';
 import { formatProgress, formatSummary, summaryJson } from '../../src/ingest/progress.js';
 
 const summary: IngestSummary = {
-  documents: { added: 3, updated: 1, unchanged: 9, removed: 0, failed: 2 },
+  documents: { added: 3, updated: 1, renamed: 0, removed: 0, unchanged: 9, failed: 2 },
   chunks: { embedded: 40, reused: 12, removed: 0 },
   failures: [
     { source: 'locked.pdf', reason: 'encrypted PDF (password protected) is not supported' },
@@ -14,14 +14,14 @@ const summary: IngestSummary = {
 };
 
 describe('formatProgress', () => {
-  it('shows files, failures, pages and chunks with their rates, then the current file', () => {
-    const line = formatProgress({ filesDone: 4, filesTotal: 10, failed: 1, pages: 30, chunks: 120, current: 'staff-handbook.pdf' }, 2);
-    expect(line).toBe('files 4/10  failed 1  pages 30 (15/s)  chunks 120 (60/s)  staff-handbook.pdf');
+  it('shows a bar of files done, then files, failures, pages and chunks with their rates, then the current file', () => {
+    const line = formatProgress({ filesDone: 4, filesTotal: 10, failed: 1, pages: 30, chunks: 120, current: 'staff-handbook.pdf' }, 2, 200);
+    expect(line).toBe('[########............]  40%  files 4/10  failed 1  pages 30 (15/s)  chunks 120 (60/s)  staff-handbook.pdf');
   });
 
   it('leaves out the failure count while nothing failed and shows one decimal for slow rates', () => {
-    const line = formatProgress({ filesDone: 1, filesTotal: 2, failed: 0, pages: 3, chunks: 5, current: 'a.md' }, 2);
-    expect(line).toBe('files 1/2  pages 3 (1.5/s)  chunks 5 (2.5/s)  a.md');
+    const line = formatProgress({ filesDone: 1, filesTotal: 2, failed: 0, pages: 3, chunks: 5, current: 'a.md' }, 2, 200);
+    expect(line).toBe('[##########..........]  50%  files 1/2  pages 3 (1.5/s)  chunks 5 (2.5/s)  a.md');
   });
 
   it('fits the terminal width so a carriage return overwrites it cleanly', () => {
@@ -35,6 +35,8 @@ describe('the ingest summaries', () => {
   it('print the documented JSON shape with every failure and its reason', () => {
     const parsed = JSON.parse(summaryJson(summary)) as Record<string, unknown>;
     expect(Object.keys(parsed).slice(0, 4)).toEqual(['documents', 'chunks', 'failures', 'seconds']);
+    expect(Object.keys(parsed.documents as object)).toEqual(['added', 'updated', 'renamed', 'removed', 'unchanged', 'failed']);
+    expect(Object.keys(parsed.chunks as object)).toEqual(['embedded', 'reused', 'removed']);
     expect(parsed).toMatchObject({
       documents: { added: 3, updated: 1, unchanged: 9, failed: 2 },
       chunks: { embedded: 40, reused: 12 },

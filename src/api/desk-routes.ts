@@ -1,0 +1,116 @@
+import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import { z } from 'zod';
+import type { Config } from '../config/index.js';
+import { SourceboundError } from '../errors.js';
+import type { Scope } from './auth.js';
+import type { DeskService } from './desk-service.js';
+import { collectionName, historyTurn } from './schemas.js';
+import { parse } from './util.js';
+
+export interface DeskRouteContext {
+  config: Readonly<Config>;
+  desk: DeskService;
+  guard(req: FastifyRequest, scope: Scope, action: string, collection?: string): void;
+}
+
+const offset = z.coerce.number().int().min(0).max(2 ** 31);
+const passageQuery = z.object({ start: offset, end: offset }).strict();
+
+// What a client sends of each citation; other citation fields are accepted and dropped.
+const ratedSource = z.object({
+  n: z.number().int().min(1).max(1000),
+  documentId: z.string().min(1).max(200),
+  source: z.string().max(1000),
+  title: z.string().max(1000),
+  page: z.number().int().min(1).nullable(),
+  section: z.string().max(2000),
+  quote: z.string().max(10_000),
+});
+
+export function ratingBody(limits: { questionMaxChars: number; historyMaxTurns: number }) {
+  return z
+    .object({
+      collection: collectionName.optional(),
+      question: z.string().trim().min(1, 'question must not be empty').max(limits.questionMaxChars),
+      answeredQuestion: z.string().trim().max(limits.questionMaxChars).optional(),
+      history: z.array(historyTurn).max(limits.historyMaxTurns).optional(),
+      answer: z.string().max(20_000),
+      abstained: z.boolean(),
+      sources: z.array(ratedSource).max(100).optional(),
+      helpful: z.boolean(),
+      comment: z.string().trim().max(2_000).optional(),
+    })
+    .strict();
+}
+
+function params(raw: unknown): { collection: string; id: string } {
+  const p = raw as { collection?: string; id?: string };
+  const c = collectionName.safeParse(p.collection ?? '');
+  if (!c.success) throw new SourceboundError('SB_ERR_VALIDATION', [`collection: ${c.error.issues[0]?.message ?? 'invalid'}`]);
+  return { collection: c.data, id: p.id ?? '' };
+}
+
+/** The desk's reads (passage in context, original file) and its ratings. */
+export function registerDeskRoutes(r: FastifyInstance, ctx: DeskRouteContext): void {
+  const { config, desk, guard } = ctx;
+  const ratingSchema = ratingBody(config.limits);
+
+  r.get('/v1/collections/:collection/documents/:id/passage', async (req) => {
+    const { collection, id } = params(req.params);
+    guard(req, 'query', 'read documents', collection);
+    const q = parse(passageQuery, req.query ?? {});
+    return desk.passage(collection, id, q.start, q.end);
+  });
+
+  const sendOriginal = async (reply: FastifyReply, collection: string, id: string) => {
+    const file = await desk.original(collection, id);
+    void reply
+      .header('content-type', file.contentType)
+      .header('content-length', String(file.bytes.length))
+      .header('content-disposition', `inline; filename*=UTF-8''${encodeURIComponent(file.fileName)}`)
+      .header('cache-control', 'private, no-store')
+      .header('referrer-policy', 'no-referrer')
+      .header('x-content-type-options', 'nosniff');
+    // A stored HTML page must never run as this service's own page: no scripts, no requests, an origin of its own.
+    if (!file.contentType.startsWith('application/pdf')) void reply.header('content-security-policy', "sandbox; default-src 'none'; style-src 'unsafe-inline'");
+    return reply.send(file.bytes);
+  };
+
+  r.get('/v1/collections/:collection/documents/:id/original', async (req, reply) => {
+    const { collection, id } = params(req.params);
+    guard(req, 'query', 'read documents', collection);
+    return sendOriginal(reply, collection, id);
+  });
+
+  r.post('/v1/collections/:collection/documents/:id/original-link', async (req) => {
+    const { collection, id } = params(req.params);
+    guard(req, 'query', 'read documents', collection);
+    return desk.linkOriginal(collection, id);
+  });
+
+  // Outside /v1/: the signed token is the credential, so a browser can follow it as a plain link.
+  r.get('/originals', async (req, reply) => {
+    const link = (req.query as { link?: unknown } | undefined)?.link;
+    const { collection, documentId } = desk.redeemLink(typeof link === 'string' ? link : '');
+    return sendOriginal(reply, collection, documentId);
+  });
+
+  r.post('/v1/ratings', async (req, reply) => {
+    const body = parse(ratingSchema, req.body);
+    const collection = body.collection ?? config.seed.collection;
+    guard(req, 'query', 'rate answers', collection);
+    const saved = desk.ratings.add({
+      collection,
+      keyId: req.principal.keyId,
+      question: body.question,
+      answeredQuestion: body.answeredQuestion && body.answeredQuestion !== body.question ? body.answeredQuestion : null,
+      history: body.history ?? [],
+      answer: body.answer,
+      abstained: body.abstained,
+      sources: (body.sources ?? []).map((s) => ({ n: s.n, documentId: s.documentId, source: s.source, title: s.title, page: s.page, section: s.section, quote: s.quote })),
+      helpful: body.helpful,
+      comment: body.comment ? body.comment : null,
+    });
+    return reply.status(201).send({ id: saved.id, createdAt: saved.createdAt });
+  });
+}

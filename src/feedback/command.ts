@@ -1,0 +1,59 @@
+// `sourcebound feedback export [--out F] [--collection C]`: desk ratings → a question set for
+// `sourcebound eval answers --questions F`.
+
+import { existsSync, renameSync, writeFileSync } from 'node:fs';
+import path from 'node:path';
+import { parseArgs } from 'node:util';
+import { loadConfig } from '../config/index.js';
+import { openDatabase, storePaths } from '../store/index.js';
+import { ratingsToQuestions, toJsonl } from './export.js';
+import { createRatingStore } from './store.js';
+
+export interface FeedbackIo {
+  stdout: (s: string) => void;
+  stderr: (s: string) => void;
+}
+
+const defaultIo: FeedbackIo = { stdout: (s) => process.stdout.write(s), stderr: (s) => process.stderr.write(s) };
+
+export async function runFeedbackCommand(args: string[], env: Record<string, string | undefined>, io: FeedbackIo = defaultIo): Promise<number> {
+  const [sub, ...rest] = args;
+  if (sub !== 'export') {
+    io.stderr('sourcebound feedback: use `feedback export [--out F] [--collection C]`\n');
+    return 2;
+  }
+  const { values } = parseArgs({ args: rest, options: { out: { type: 'string', short: 'o' }, collection: { type: 'string', short: 'c' } } });
+  const cfg = loadConfig({ env });
+  const { database } = storePaths(cfg.dataDir);
+  if (!existsSync(database)) {
+    io.stderr(`sourcebound feedback export: no database at ${database}\n`);
+    return 1;
+  }
+  const db = openDatabase(database);
+  let text: string;
+  let summary: string;
+  try {
+    const ratings = createRatingStore(db).list(values.collection ? { collection: values.collection } : {});
+    const { questions, skipped } = ratingsToQuestions(ratings);
+    text = toJsonl(questions);
+    const count = (k: string) => questions.filter((q) => q.kind === k).length;
+    summary =
+      `${ratings.length} ratings → ${questions.length} questions (${count('answerable')} answerable, ${count('followup')} follow-up, ` +
+      `${count('unanswerable')} unanswerable); ${skipped.length} skipped\n` +
+      skipped.map((s) => `  skipped ${s.id} "${s.question}": ${s.reason}\n`).join('');
+  } finally {
+    db.close();
+  }
+  if (values.out) {
+    const out = path.resolve(values.out);
+    // Written beside the target and renamed, so a reader never sees half a file.
+    const tmp = `${out}.${process.pid}.tmp`;
+    writeFileSync(tmp, text);
+    renameSync(tmp, out);
+    io.stderr(`${summary}written to ${out}\n`);
+  } else {
+    io.stdout(text);
+    io.stderr(summary);
+  }
+  return 0;
+}

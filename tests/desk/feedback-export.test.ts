@@ -1,0 +1,84 @@
+import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import path from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { readQuestions } from '../../src/eval/answers.js';
+import { createRatingStore, keyFigures, ratingsToQuestions, runFeedbackCommand, toJsonl, type NewRating } from '../../src/feedback/index.js';
+import { openDatabase, storePaths } from '../../src/store/index.js';
+
+const rated = (over: Partial<NewRating> = {}): NewRating => ({
+  collection: 'default',
+  keyId: 'desk',
+  question: 'How long do I have to claim a delay refund?',
+  answeredQuestion: null,
+  history: [],
+  answer: 'Claims must be made within 28 days of the journey [1].',
+  abstained: false,
+  sources: [{ n: 1, documentId: 'd1', source: 'delay-refunds-2026.md', title: 'Delay Refunds', page: null, section: 'Delay Refunds > Claims', quote: 'within 28 days' }],
+  helpful: true,
+  comment: null,
+  ...over,
+});
+
+describe('desk ratings as a question set', () => {
+  it('finds the figures an answer turns on', () => {
+    expect(keyFigures('A Day Rider costs £8.40 [1]; refunds close after 28 days and 2 working days [2], from 07:30.')).toEqual(['£8.40', '28 days', '2 working days']);
+    expect(keyFigures('Bikes are allowed outside peak hours [1].')).toEqual([]);
+  });
+
+  it('maps helpful/not helpful and answered/abstained onto labels, latest rating first', () => {
+    const db = openDatabase(':memory:');
+    const store = createRatingStore(db);
+    store.add(rated({ helpful: false }));
+    store.add(rated({ comment: 'Correct after the 2026 change.' })); // the same question again: this one counts
+    store.add(rated({ question: 'Is there wifi on the trams?', answer: 'The documents do not cover this question.', abstained: true, sources: [] }));
+    store.add(rated({ question: 'Can I bring a scooter?', answer: 'Scooters are carried folded [1].', helpful: false, comment: 'Wrong policy.' }));
+    store.add(rated({ question: 'What about dogs?', answer: 'The documents do not cover this question.', abstained: true, helpful: false, sources: [] }));
+    store.add(rated({ question: 'And on buses?', history: [{ role: 'user', content: 'Are bikes allowed on trams?' }, { role: 'assistant', content: 'Outside peak hours [1].' }], answer: 'Bikes are carried on buses for £1.50 [1].', sources: [{ n: 1, documentId: 'd2', source: 'bikes.pdf', title: 'Bikes', page: 3, section: 'Bikes', quote: 'q' }] }));
+    const { questions, skipped } = ratingsToQuestions(store.list());
+    db.close();
+    expect(questions.map((q) => [q.id, q.kind])).toEqual([
+      ['fb-2', 'answerable'],
+      ['fb-3', 'unanswerable'],
+      ['fb-4', 'unanswerable'],
+      ['fb-6', 'followup'],
+    ]);
+    expect(questions[0]!.expect).toEqual({ document: 'delay-refunds-2026.md', facts: ['28 days'] });
+    expect(questions[0]!.note).toContain('Correct after the 2026 change.');
+    expect(questions[2]!.note).toContain('Wrong policy.');
+    expect(questions[3]).toMatchObject({ history: [{ role: 'user' }, { role: 'assistant' }], expect: { document: 'bikes.pdf', page: 3, facts: ['£1.50'] } });
+    expect(skipped.map((s) => s.id)).toEqual(['fb-5']);
+
+    // What `sourcebound eval answers --questions F` reads back.
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-fb-'));
+    try {
+      const file = path.join(dir, 'q.jsonl');
+      writeFileSync(file, toJsonl(questions));
+      const read = readQuestions(file);
+      expect(read.map((q) => [q.id, q.kind, q.question])).toEqual(questions.map((q) => [q.id, q.kind, q.question]));
+      expect(read[3]!.history).toHaveLength(2);
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+
+  it('`feedback export --out F` writes the file from the data folder, and names what it skipped', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-fb-cli-'));
+    try {
+      const db = openDatabase(storePaths(dir).database);
+      createRatingStore(db).add(rated());
+      createRatingStore(db).add(rated({ question: 'What about dogs?', abstained: true, helpful: false, sources: [] }));
+      db.close();
+      const out = path.join(dir, 'set.jsonl');
+      let err = '';
+      const code = await runFeedbackCommand(['export', '--out', out], { SOURCEBOUND_DATA_DIR: dir }, { stdout: () => undefined, stderr: (s) => (err += s) });
+      expect(code).toBe(0);
+      expect(readQuestions(out).map((q) => q.kind)).toEqual(['answerable']);
+      expect(err).toContain('2 ratings → 1 questions');
+      expect(err).toContain('skipped fb-2 "What about dogs?"');
+      expect(await runFeedbackCommand(['import'], {}, { stdout: () => undefined, stderr: () => undefined })).toBe(2);
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+});
