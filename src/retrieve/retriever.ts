@@ -128,14 +128,23 @@ export function createRetriever(deps: {
 
   // Rocchio (1971): move the query vector toward the centroid of the top lexical hits, whose stored vectors
   // are at hand, so the dense leg searches near what BM25 already found relevant rather than near the bare
-  // question alone.
+  // question alone. The centroid is weighted by the hits' lexical scores (as RM3 weights its feedback
+  // documents): when one passage matches the question and the rest only matched expansion terms, the
+  // vector moves toward that passage, not toward the crowd.
   const feedbackVector = (query: Float32Array, top: readonly Scored[]): Float32Array => {
     if (!denseFeedback) return query;
-    const ids = top.slice(0, rm3?.docs ?? 10).map((r) => r.id);
-    const vecs = repo.chunkVectors(embedder.id, ids);
+    const fb = top.slice(0, rm3?.docs ?? 10);
+    const vecs = repo.chunkVectors(embedder.id, fb.map((r) => r.id));
     if (vecs.size === 0) return query;
+    const min = Math.min(...fb.map((r) => r.score));
+    const weightOf = new Map(fb.map((r) => [r.id, r.score - Math.min(0, min) + 1e-9]));
+    let total = 0;
+    for (const id of vecs.keys()) total += weightOf.get(id) ?? 0;
     const out = Float32Array.from(query);
-    for (const v of vecs.values()) for (let i = 0; i < out.length; i++) out[i] = out[i]! + (denseFeedback * v[i]!) / vecs.size;
+    for (const [id, v] of vecs) {
+      const w = (denseFeedback * (weightOf.get(id) ?? 0)) / total;
+      for (let i = 0; i < out.length; i++) out[i] = out[i]! + w * v[i]!;
+    }
     let norm = 0;
     for (let i = 0; i < out.length; i++) norm += out[i]! * out[i]!;
     norm = Math.sqrt(norm) || 1;

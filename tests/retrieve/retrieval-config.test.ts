@@ -46,7 +46,7 @@ describe('retrieval settings from the config', () => {
   it('rm3.enabled reaches the service retriever: two FTS queries per lexical search when on, one when off', async () => {
     const counts: number[] = [];
     for (const enabled of [true, false]) {
-      const t = await tempRuntime({ retrieval: { rm3: { enabled } } });
+      const t = await tempRuntime({ retrieval: { rm3: { enabled }, lexicalEngine: 'fts5' } });
       cleanup = t.cleanup;
       await t.rt.ingestor.ingestPath(t.config.seed.path, { collection: t.config.seed.collection });
       const seen = countFts(t.rt.repo);
@@ -60,7 +60,7 @@ describe('retrieval settings from the config', () => {
   });
 
   it('termRepeat reaches the FTS5 expression', async () => {
-    const t = await tempRuntime({ retrieval: { rm3: { enabled: false }, termRepeat: 2 } });
+    const t = await tempRuntime({ retrieval: { rm3: { enabled: false }, termRepeat: 2, lexicalEngine: 'fts5' } });
     cleanup = t.cleanup;
     await t.rt.ingestor.ingestPath(t.config.seed.path, { collection: t.config.seed.collection });
     const seen = countFts(t.rt.repo);
