@@ -321,7 +321,7 @@ function closeReader(): void {
   readerDoc = null;
 }
 
-function showCard(meta: { n: string; title: string; section: string; page: number | null; pageEnd?: number | null; effective: string | null; file: string }): void {
+function showCard(meta: { n: string; title: string; section: string; page: number | null; pageEnd?: number | null; effective: string | null; version?: string | null | undefined; file: string }): void {
   $('reader-empty').hidden = true;
   $('reader-card').hidden = false;
   $('reader-number').textContent = meta.n;
@@ -329,7 +329,8 @@ function showCard(meta: { n: string; title: string; section: string; page: numbe
   $('reader-section').textContent = sectionLabel(meta.title, meta.section) || '—';
   const page = meta.page === null ? '—' : meta.pageEnd && meta.pageEnd !== meta.page ? `${meta.page}–${meta.pageEnd}` : String(meta.page);
   $('reader-page').textContent = page;
-  $('reader-effective').textContent = meta.effective ?? 'not stated';
+  // The document's own statement of when it applies, and of which version it is, when it gives one.
+  $('reader-effective').textContent = (meta.effective ?? 'not stated') + (meta.version ? ` (version ${meta.version})` : '');
   $('reader-file').textContent = meta.file;
   $('reader-status').textContent = '';
   const open = $<HTMLButtonElement>('open-original');
@@ -345,7 +346,7 @@ async function openCitation(c: Citation, from: HTMLElement): Promise<void> {
   if (!shown) return;
   const col = shown.collection;
   readerDoc = { collection: col, documentId: c.documentId, page: c.page, format: /\.pdf$/i.test(c.source) ? 'pdf' : 'other' };
-  showCard({ n: `Source ${c.n}`, title: c.title, section: c.section, page: c.page, effective: c.effectiveDate, file: c.source });
+  showCard({ n: `Source ${c.n}`, title: c.title, section: c.section, page: c.page, effective: c.effectiveDate, version: c.version, file: c.source });
   const box = $('reader-passage');
   // The quote alone first, so the reader is never empty while the context loads.
   box.replaceChildren(el('p', {}, el('mark', {}, c.quote)));
@@ -368,7 +369,7 @@ async function openCitation(c: Citation, from: HTMLElement): Promise<void> {
 function openSummary(s: SourceSummary, from: HTMLElement): void {
   if (!shown) return;
   readerDoc = { collection: shown.collection, documentId: s.documentId, page: s.page, format: /\.pdf$/i.test(s.source) ? 'pdf' : 'other' };
-  showCard({ n: `Closest passage ${s.n}`, title: s.title, section: s.section, page: s.page, pageEnd: s.pageEnd, effective: s.effectiveDate, file: s.source });
+  showCard({ n: `Closest passage ${s.n}`, title: s.title, section: s.section, page: s.page, pageEnd: s.pageEnd, effective: s.effectiveDate, version: s.version, file: s.source });
   $('reader-passage').replaceChildren(el('p', { class: 'passage-text' }, s.text));
   focusReader(from);
 }

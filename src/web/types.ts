@@ -12,6 +12,7 @@ export interface Citation {
   start: number;
   end: number;
   effectiveDate: string | null;
+  version?: string | null;
 }
 
 export interface Claim {
@@ -31,6 +32,7 @@ export interface SourceSummary {
   pageEnd: number | null;
   section: string;
   effectiveDate: string | null;
+  version?: string | null;
   text: string;
 }
 

@@ -158,7 +158,7 @@ describe.runIf(RUN)('the reference desk', () => {
     const passage = (await page.locator('#reader-passage').textContent()) ?? '';
     expect(passage.length).toBeGreaterThan(((await mark.textContent()) ?? '').length + 40);
     expect(await page.locator('#reader-section').textContent()).not.toBe('');
-    expect(await page.locator('#reader-effective').textContent()).toMatch(/^\d{4}-\d{2}-\d{2}$|not stated/);
+    expect(await page.locator('#reader-effective').textContent()).toMatch(/^(\d{4}-\d{2}-\d{2}|not stated)( \(version .+\))?$/);
     // Keyboard: the reader took focus; "Back to the answer" returns to the source button.
     expect(await page.evaluate(() => document.activeElement?.id)).toBe('reader-title');
     await page.getByRole('button', { name: 'Back to the answer' }).click();
