@@ -88,6 +88,12 @@ export interface SearchHit {
 
 export type SearchMode = 'hybrid' | 'lexical' | 'dense';
 
+/** Narrows a search to some documents: by id and/or by exact values of document metadata keys. */
+export interface DocumentFilter {
+  documentIds?: readonly string[];
+  metadata?: Readonly<Record<string, string>>;
+}
+
 export interface Citation {
   n: number;
   documentId: string;

@@ -1,7 +1,7 @@
 // The answer flow: standalone question → retrieve → context → generate or extract → check → reply.
 
 import type { Embedder } from '../embed/types.js';
-import type { AnswerMode, Citation, SearchHit, SearchMode } from '../types.js';
+import type { AnswerMode, Citation, DocumentFilter, SearchHit, SearchMode } from '../types.js';
 import { ABSTAIN_TEXT, abstainReason, confidence, isAbstentionReply, type AbstainReason } from './abstain.js';
 import { DEMO_CALIBRATION, calibrate, type IsotonicMap } from './calibration.js';
 import { CAUTION } from './caution.js';
@@ -46,6 +46,8 @@ export interface RetrieveRequest {
   collection: string;
   k: number;
   mode: SearchMode;
+  /** Only these documents (by id and/or metadata values). */
+  filter?: DocumentFilter;
 }
 
 export interface AnswererDeps {
@@ -67,6 +69,8 @@ export interface AnswerRequest {
   history?: HistoryTurn[];
   k?: number;
   mode?: SearchMode;
+  /** Answer from these documents only. */
+  filter?: DocumentFilter;
   /** Cancels the completion call when the client goes away. */
   signal?: AbortSignal;
   /** Receives the numbered sources and the answer text as it is produced. */
@@ -108,6 +112,7 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
         collection: req.collection,
         k,
         mode: req.mode ?? 'hybrid',
+        ...(req.filter ? { filter: req.filter } : {}),
       };
       let versions = chooseVersions(question, await deps.retrieve(request));
       // Dropped versions freed places in the context; fill them with the next hits.

@@ -48,6 +48,7 @@ export function registerAnswerRoute(r: FastifyInstance, ctx: AnswerRouteContext)
       signal: deadline,
     };
     if (body.history) request.history = body.history;
+    if (body.filter) request.filter = body.filter;
     if (!body.stream) {
       const result = await withDeadline(deps.answer(request), config.server.requestTimeoutMs);
       count(result);

@@ -5,6 +5,7 @@ import { SourceboundError, type ErrorCode } from '../errors.js';
 import type { Logger } from '../logger.js';
 import type { AnswerResult, SearchHit, SearchMode } from '../types.js';
 import type { AnswerEvent } from '../answer/index.js';
+import type { RetrieveFilter } from '../retrieve/index.js';
 import {
   ANONYMOUS,
   createAuthenticator,
@@ -30,6 +31,7 @@ export interface AnswerRequest {
   history?: { role: 'user' | 'assistant'; content: string }[];
   k?: number;
   mode?: SearchMode;
+  filter?: RetrieveFilter;
   /** "extractive" never calls the completion endpoint. */
   style?: 'auto' | 'extractive';
   signal?: AbortSignal;
@@ -40,7 +42,7 @@ export interface AnswerRequest {
 /** What the HTTP layer needs from the rest of the service. Tests pass their own. */
 export interface AppDeps {
   logger: Logger;
-  search(req: { query: string; collection: string; k: number; mode: SearchMode }): Promise<SearchHit[]>;
+  search(req: { query: string; collection: string; k: number; mode: SearchMode; filter?: RetrieveFilter }): Promise<SearchHit[]>;
   answer(req: AnswerRequest): Promise<AnswerResult>;
   isReady(): boolean;
   health(): Record<string, unknown>;
@@ -172,7 +174,13 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
       const collection = body.collection ?? config.seed.collection;
       guard(req, 'query', 'search', collection);
       const results = await withDeadline(
-        deps.search({ query: body.query, collection, k: body.k ?? config.retrieval.k, mode: body.mode ?? 'hybrid' }),
+        deps.search({
+          query: body.query,
+          collection,
+          k: body.k ?? config.retrieval.k,
+          mode: body.mode ?? 'hybrid',
+          ...(body.filter ? { filter: body.filter } : {}),
+        }),
         config.server.requestTimeoutMs,
       );
       return {

@@ -10,6 +10,17 @@ export const collectionName = z
 
 export const searchMode = z.enum(['hybrid', 'lexical', 'dense']);
 
+/** Narrows a search or an answer to some documents: by id, and/or by exact values of their metadata. */
+export const searchFilter = z
+  .object({
+    documentIds: z.array(z.string().min(1).max(64)).min(1).max(1000).optional(),
+    metadata: z
+      .record(z.string().min(1).max(64), z.string().max(500))
+      .refine((m) => Object.keys(m).length <= 20, 'at most 20 metadata keys')
+      .optional(),
+  })
+  .strict();
+
 export function searchBody(limits: { questionMaxChars: number; kMax: number }) {
   return z
     .object({
@@ -17,6 +28,7 @@ export function searchBody(limits: { questionMaxChars: number; kMax: number }) {
       collection: collectionName.optional(),
       k: z.number().int().min(1).max(limits.kMax).optional(),
       mode: searchMode.optional(),
+      filter: searchFilter.optional(),
     })
     .strict();
 }
@@ -38,6 +50,7 @@ export function answerBody(limits: { questionMaxChars: number; kMax: number; his
       // Either a retrieval mode, or the answer style: "extractive" skips the completion endpoint.
       mode: z.enum(['hybrid', 'lexical', 'dense', 'auto', 'generative', 'extractive']).optional(),
       retrieval: searchMode.optional(),
+      filter: searchFilter.optional(),
       // Server-sent events (sources, delta, done) instead of one JSON reply.
       stream: z.boolean().optional(),
     })

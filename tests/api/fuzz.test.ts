@@ -43,7 +43,11 @@ const hostileString = fc.oneof(
   fc.constantFrom('', ' ', '"', "'", '\\', '*', 'NEAR(', 'a OR', 'title:x', '../../etc/passwd', '\u0000', '\uFFFF', '💥'.repeat(50), 'x'.repeat(2500), '<script>alert(1)</script>', 'DROP TABLE chunks;--'),
 );
 const anything = fc.oneof(hostileString, fc.integer(), fc.double(), fc.boolean(), fc.constant(null), fc.array(fc.jsonValue(), { maxLength: 3 }), fc.jsonValue());
-const searchLike = fc.record({ query: anything, collection: anything, k: anything, mode: anything }, { requiredKeys: [] });
+const filterLike = fc.oneof(
+  anything,
+  fc.record({ documentIds: fc.oneof(anything, fc.array(hostileString, { maxLength: 3 })), metadata: fc.oneof(anything, fc.dictionary(hostileString, hostileString, { maxKeys: 3 })) }, { requiredKeys: [] }),
+);
+const searchLike = fc.record({ query: anything, collection: anything, k: anything, mode: anything, filter: filterLike }, { requiredKeys: [] });
 const answerLike = fc.record(
   {
     question: anything,
@@ -51,6 +55,7 @@ const answerLike = fc.record(
     history: fc.oneof(anything, fc.array(fc.record({ role: fc.oneof(fc.constantFrom('user', 'assistant'), anything), content: anything }), { maxLength: 4 })),
     k: fc.oneof(anything, fc.integer({ min: -5, max: 100 })),
     mode: fc.oneof(anything, fc.constantFrom('hybrid', 'lexical', 'dense', 'extractive', 'auto')),
+    filter: filterLike,
   },
   { requiredKeys: [] },
 );
