@@ -1,7 +1,7 @@
 // Wires the stages together from a config: store → embedder → indexes → retriever → answerer → ingestor.
 // The CLI's commands and the server share it; tests build it on a temporary data folder.
 
-import { createAnswerer, createCompletionClient, loadTokenizer, type Answerer } from './answer/index.js';
+import { createAnswerer, createCompletionClient, loadTokenizer, type Answerer, type AnswererOptions } from './answer/index.js';
 import type { AnswerRequest as HttpAnswerRequest, AppDeps } from './api/app.js';
 import type { Config } from './config/index.js';
 import { resolveEmbedder } from './embed/index.js';
@@ -121,17 +121,7 @@ export async function createRuntime(
     ...(lexicalIndex ? { lexicalIndex } : {}),
     ...(config.retrieval.synonymWeight > 0 ? { synonyms: createWordNet(packagedWordNetDir()) } : {}),
   });
-  const answerOptions = {
-    k: config.retrieval.k,
-    contextBudgetTokens: config.answer.contextBudgetTokens,
-    minSupport: config.answer.minSupport,
-    minLexicalCoverage: config.answer.minLexicalCoverage,
-    minDenseScore: config.answer.minDenseScore,
-    headingCredit: config.answer.headingCredit,
-    kindMissPenalty: config.answer.kindMissPenalty,
-    minCoverageWithUnknownTerm: config.answer.minCoverageWithUnknownTerm,
-    rewriteWithCompletion: config.answer.rewriteWithCompletion,
-  };
+  const answerOptions = answererOptions(config);
   // Loaded once: the encodings' tables take a moment to build.
   const tokenizer = await loadTokenizer(config.answer.tokenizer);
   const answerLog = logger.child({ stage: 'answer' });
@@ -234,6 +224,21 @@ export async function createRuntime(
       indexes.close();
       if (db.open) db.close();
     },
+  };
+}
+
+/** The answer stage's settings from a config: what the service runs, and what the calibration fit measures. */
+export function answererOptions(config: Readonly<Config>): AnswererOptions {
+  return {
+    k: config.retrieval.k,
+    contextBudgetTokens: config.answer.contextBudgetTokens,
+    minSupport: config.answer.minSupport,
+    minLexicalCoverage: config.answer.minLexicalCoverage,
+    minDenseScore: config.answer.minDenseScore,
+    headingCredit: config.answer.headingCredit,
+    kindMissPenalty: config.answer.kindMissPenalty,
+    minCoverageWithUnknownTerm: config.answer.minCoverageWithUnknownTerm,
+    rewriteWithCompletion: config.answer.rewriteWithCompletion,
   };
 }
 

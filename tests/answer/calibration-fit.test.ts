@@ -7,6 +7,7 @@ import { createAnswerer, type AnswererOptions } from '../../src/answer/answerer.
 import { DEMO_CALIBRATION, calibrate, fitIsotonic, fitPlatt, reliabilityTable } from '../../src/answer/calibration.js';
 import { readQuestions, scoreAnswer, summarise, type QuestionOutcome } from '../../src/eval/answers.js';
 import { SEED_DIR, tempRuntime } from '../fixtures/runtime.js';
+import { answererOptions } from '../../src/runtime.js';
 
 const QUESTIONS = path.resolve(import.meta.dirname, '..', 'fixtures', 'demo-questions.jsonl');
 
@@ -16,16 +17,7 @@ describe.runIf(process.env.SOURCEBOUND_FIT === '1')('calibration and thresholds 
     try {
       await rt.ingestor.ingestPath(SEED_DIR, { collection: 'eval', remember: false });
       const questions = readQuestions(QUESTIONS);
-      const base: AnswererOptions = {
-        k: config.retrieval.k,
-        contextBudgetTokens: config.answer.contextBudgetTokens,
-        minSupport: config.answer.minSupport,
-        minLexicalCoverage: config.answer.minLexicalCoverage,
-        minDenseScore: config.answer.minDenseScore,
-        headingCredit: config.answer.headingCredit,
-        kindMissPenalty: config.answer.kindMissPenalty,
-        minCoverageWithUnknownTerm: config.answer.minCoverageWithUnknownTerm,
-      };
+      const base: AnswererOptions = answererOptions(config);
       const run = async (options: AnswererOptions) => {
         const answerer = createAnswerer({ retrieve: (q) => rt.retriever.search(q), embedder: rt.embedder, options });
         const rows: { outcome: QuestionOutcome; evidence: number }[] = [];

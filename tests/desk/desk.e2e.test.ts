@@ -1,10 +1,11 @@
-import { execFileSync, spawn, spawnSync, type ChildProcess } from 'node:child_process';
+import { spawnSync, type ChildProcess } from 'node:child_process';
 import { createHash } from 'node:crypto';
 import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { chromium, type Browser, type BrowserContext, type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { CLI, ROOT, startServe } from '../fixtures/serve.js';
 
 // The reference desk in a real browser (Debian's Chromium driven by playwright-core) against a real
 // `sourcebound serve` on the demo documents, offline with the hashing embedder, with auth on.
@@ -16,8 +17,6 @@ declare const document: any;
 declare const sessionStorage: any;
 declare const navigator: any;
 
-const ROOT = path.resolve(import.meta.dirname, '..', '..');
-const CLI = path.join(ROOT, 'dist', 'cli.js');
 const CHROMIUM = '/usr/bin/chromium';
 const KEY = 'sb_desk-test-key-not-secret';
 const SHOTS = process.env.SOURCEBOUND_SCREENSHOTS === '1' ? path.join(ROOT, 'docs', 'screenshots') : null;
@@ -32,7 +31,6 @@ if (!RUN) {
 let child: ChildProcess;
 let base = '';
 let dataDir = '';
-let log = '';
 let browser: Browser;
 let context: BrowserContext;
 let page: Page;
@@ -49,24 +47,9 @@ beforeAll(async () => {
       auth: { required: true, keys: [{ id: 'desk-staff', sha256: createHash('sha256').update(KEY).digest('hex'), scopes: ['query'], collections: ['*'] }] },
     }),
   );
-  child = spawn(process.execPath, [CLI, 'serve'], {
-    cwd: ROOT,
-    env: { ...process.env, PORT: '0', HOST: '127.0.0.1', SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_CONFIG: configFile },
-    stdio: ['ignore', 'pipe', 'pipe'],
-  });
-  child.stderr!.on('data', (d) => (log += String(d)));
-  base = await new Promise<string>((resolve, reject) => {
-    const timer = setTimeout(() => reject(new Error(`not ready within 60 s:\n${log}`)), 60_000);
-    child.stdout!.on('data', (d) => {
-      log += String(d);
-      const m = /"msg":"ready on (http:\/\/[^"]+)"/.exec(log);
-      if (m) {
-        clearTimeout(timer);
-        resolve(m[1]!);
-      }
-    });
-    child.on('exit', (code) => reject(new Error(`server exited with ${code}:\n${log}`)));
-  });
+  const server = await startServe({ SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_CONFIG: configFile });
+  child = server.child;
+  base = server.base;
   browser = await chromium.launch({
     executablePath: CHROMIUM,
     args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-background-networking'],

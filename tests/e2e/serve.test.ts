@@ -1,39 +1,22 @@
-import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
+import { spawnSync, type ChildProcess } from 'node:child_process';
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { CLI, ROOT, startServe } from '../fixtures/serve.js';
 
 // The contract of DESIGN.md, checked from outside: a real `sourcebound serve` process on an empty data
 // folder ingests the demo documents, reports ready, answers with verbatim citations, and stops cleanly.
 
-const ROOT = path.resolve(import.meta.dirname, '..', '..');
-const CLI = path.join(ROOT, 'dist', 'cli.js');
 let child: ChildProcess;
 let base = '';
 let dataDir = '';
-let log = '';
 
 beforeAll(async () => {
   dataDir = mkdtempSync(path.join(tmpdir(), 'sb-e2e-'));
-  child = spawn(process.execPath, [CLI, 'serve'], {
-    cwd: ROOT,
-    env: { ...process.env, PORT: '0', HOST: '127.0.0.1', SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing' },
-    stdio: ['ignore', 'pipe', 'pipe'],
-  });
-  child.stderr!.on('data', (d) => (log += String(d)));
-  base = await new Promise<string>((resolve, reject) => {
-    const timer = setTimeout(() => reject(new Error(`not ready within 60 s:\n${log}`)), 60_000);
-    child.stdout!.on('data', (d) => {
-      log += String(d);
-      const m = /"msg":"ready on (http:\/\/[^"]+)"/.exec(log);
-      if (m) {
-        clearTimeout(timer);
-        resolve(m[1]!);
-      }
-    });
-    child.on('exit', (code) => reject(new Error(`server exited with ${code}:\n${log}`)));
-  });
+  const server = await startServe({ SOURCEBOUND_DATA_DIR: dataDir });
+  child = server.child;
+  base = server.base;
 }, 70_000);
 
 afterAll(() => {

@@ -1,15 +1,13 @@
-import { spawn } from 'node:child_process';
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { okReply, startStub, type StubServer } from '../answer/stub-server.js';
+import { startServe } from '../fixtures/serve.js';
 
 // Graceful shutdown, seen from outside: SIGTERM while an answer is in flight (held up by a slow completion
 // endpoint) lets that answer finish, then the process refuses new connections and exits 0.
 
-const ROOT = path.resolve(import.meta.dirname, '..', '..');
-const CLI = path.join(ROOT, 'dist', 'cli.js');
 const dataDir = mkdtempSync(path.join(tmpdir(), 'sb-shutdown-'));
 let stub: StubServer | undefined;
 
@@ -21,32 +19,8 @@ afterAll(async () => {
 describe('SIGTERM', () => {
   it('finishes the request in flight, then stops accepting and exits 0', async () => {
     stub = await startStub([{ ...okReply('Found items are kept for 30 days. [1]'), delayMs: 1500 }]);
-    const child = spawn(process.execPath, [CLI, 'serve'], {
-      cwd: ROOT,
-      env: {
-        ...process.env,
-        PORT: '0',
-        HOST: '127.0.0.1',
-        SOURCEBOUND_DATA_DIR: dataDir,
-        SOURCEBOUND_EMBEDDER: 'hashing',
-        SOURCEBOUND_COMPLETION_URL: stub.baseUrl,
-      },
-      stdio: ['ignore', 'pipe', 'pipe'],
-    });
-    let log = '';
-    child.stderr.on('data', (d) => (log += String(d)));
+    const { child, base, output } = await startServe({ SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_COMPLETION_URL: stub.baseUrl });
     const exited = new Promise<number | null>((r) => child.on('exit', (code) => r(code)));
-    const base = await new Promise<string>((resolve, reject) => {
-      const timer = setTimeout(() => reject(new Error(`not ready within 60 s:\n${log}`)), 60_000);
-      child.stdout.on('data', (d) => {
-        log += String(d);
-        const m = /"msg":"ready on (http:\/\/[^"]+)"/.exec(log);
-        if (m) {
-          clearTimeout(timer);
-          resolve(m[1]!);
-        }
-      });
-    });
 
     const inFlight = fetch(`${base}/v1/answer`, {
       method: 'POST',
@@ -69,6 +43,6 @@ describe('SIGTERM', () => {
     // (72 s in fastify); the reply now closes its connection while the server is closing.
     expect(Date.now() - t0).toBeLessThan(30_000);
     await expect(fetch(`${base}/health`)).rejects.toThrow();
-    expect(log).toContain('shutting down: finishing in-flight requests');
+    expect(output()).toContain('shutting down: finishing in-flight requests');
   }, 90_000);
 });

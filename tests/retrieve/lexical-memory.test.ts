@@ -10,6 +10,7 @@ import { DEFAULT_RM3 } from '../../src/retrieve/rm3.js';
 import { createRetriever } from '../../src/retrieve/retriever.js';
 import { createRepository, openDatabase, type Db, type FtsWeights, type Repository, type VectorIndexes } from '../../src/store/index.js';
 import { tempRuntime } from '../fixtures/runtime.js';
+import { mulberry32 } from '../fixtures/random.js';
 
 // The in-memory index must rank exactly as the FTS5 path: the reference is SQLite's own FTS5 bm25() through
 // repo.searchFts (itself checked against Robertson and Zaragoza's BM25 in tests/store/bm25.test.ts). Every
@@ -46,18 +47,6 @@ function expectSameRanking(got: readonly Hit[] | null, want: readonly Hit[], lim
   }
 }
 
-function rng(seed: number): () => number {
-  // mulberry32 (a small public-domain PRNG), for a deterministic generated corpus
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
-
 // Words of the invented tram-and-ferry operator scenario, with inflections the porter stemmer folds together,
 // accents the tokenizer strips, digits and capitals.
 const STEMS = ['connect', 'connected', 'connecting', 'connection', 'connections', 'run', 'running', 'runner', 'ran', 'ticket', 'tickets', 'ticketing',
@@ -81,7 +70,7 @@ function addDoc(repo: Repository, collection: string, id: string, title: string,
 }
 
 function generate(repo: Repository, seed: number, docs: number): void {
-  const rand = rng(seed);
+  const rand = mulberry32(seed);
   const word = (): string => STEMS[Math.floor(Math.pow(rand(), 1.6) * STEMS.length)]!;
   const words = (n: number): string => Array.from({ length: n }, word).join(' ');
   repo.transaction(() => {
@@ -114,7 +103,7 @@ const WEIGHTS: FtsWeights[] = [
 
 describe('phrase counts', () => {
   it('are the repeats toWeightedMatch writes into the FTS5 expression', () => {
-    const rand = rng(5);
+    const rand = mulberry32(5);
     for (let i = 0; i < 200; i++) {
       const terms = randomQuery(rand);
       const maxRepeat = 1 + Math.floor(rand() * 18);
@@ -175,7 +164,7 @@ describe('in-memory BM25 index against FTS5', () => {
 
   it('ranks a generated corpus as FTS5 does: random weighted queries, repeats up to 18, limits, filters, two collections', () => {
     generate(repo, 11, 400);
-    const rand = rng(99);
+    const rand = mulberry32(99);
     for (let i = 0; i < 150; i++) {
       const terms = randomQuery(rand);
       const maxRepeat = [1, 6, 18][i % 3]!;
@@ -226,7 +215,7 @@ describe('retriever with the in-memory lexical engine', () => {
       const repo = createRepository(db);
       for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
       generate(repo, 21, 300);
-      const rand = rng(7);
+      const rand = mulberry32(7);
       for (const rm3 of [DEFAULT_RM3, null]) {
         const make = (lexicalEngine: 'fts5' | 'memory') =>
           createRetriever({ repo, indexes: noIndexes, embedder: noEmbedder, options: { candidates: 50, rrfK: 60, lexicalWeight: 1, denseWeight: 0.5, fieldWeights: { title: 2, heading: 1, body: 1 }, rm3, lexicalEngine } });

@@ -1,6 +1,7 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { createRepository, openDatabase, type Db, type Repository } from '../../src/store/index.js';
 import { toWeightedMatch } from '../../src/retrieve/query-text.js';
+import { mulberry32 } from '../fixtures/random.js';
 
 // searchFts lets FTS5 rank and cut to LIMIT before anything is joined, and with several collections in the
 // one FTS table fetches more than asked and keeps the collection's rows. The reference here is the plain
@@ -8,17 +9,6 @@ import { toWeightedMatch } from '../../src/retrieve/query-text.js';
 // must give the same chunks in the same order with the same scores.
 
 const WORDS = ['tram', 'fare', 'refund', 'depot', 'roster', 'shelter', 'timetable', 'night', 'claim', 'ticket', 'ferry', 'pier'];
-
-function rand(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 function reference(db: Db, collection: string, match: string, limit: number): { chunkId: number; score: number }[] {
   return db
@@ -41,7 +31,7 @@ describe('searchFts ranks in FTS5 before joining', () => {
 
   const fill = (collection: string, docs: number, seed: number) => {
     repo.ensureCollection(collection);
-    const r = rand(seed);
+    const r = mulberry32(seed);
     for (let d = 0; d < docs; d++) {
       const chunks = [0, 1, 2].map((ordinal) => {
         const len = 5 + Math.floor(r() * 30);
