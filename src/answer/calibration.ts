@@ -20,7 +20,8 @@ export interface IsotonicMap {
  */
 export const DEMO_CALIBRATION: IsotonicMap = {
   knots: [
-    [0.423, 0.847],
+    [0.423, 0.844],
+    [0.713, 0.857],
     [0.785, 0.929],
   ],
 };
