@@ -87,6 +87,8 @@ export interface AnswerReply extends AnswerResult {
   context: ContextReport;
   /** Present when `question` is a rewrite of a follow-up. */
   rewrittenBy?: 'completion' | 'key_terms';
+  /** The evidence features the abstention model weighed (see evidence.ts); internal, for evaluation. */
+  features?: Record<string, number>;
 }
 
 /** A context source as shown to clients while the answer is produced. */

@@ -1,4 +1,4 @@
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { parseArgs } from 'node:util';
@@ -9,7 +9,7 @@ import type { LoadedDocument, SearchMode } from '../types.js';
 import { createHash } from 'node:crypto';
 import { formatRun, readCorpus, readQrels, readQueries, type CorpusDoc } from './data.js';
 import { scoreRun, type RetrievalScores } from './metrics.js';
-import { evaluateAnswers } from './answers.js';
+import { evaluateAnswers, writeFeatures, type AnswerEvalReport, type QuestionOutcome } from './answers.js';
 import { createRequire } from 'node:module';
 import { createRetriever, createWordNet, DEFAULT_RM3, retrieverOptions, type RetrieverOptions } from '../retrieve/index.js';
 
@@ -124,33 +124,92 @@ export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<Ret
   }
 }
 
+const RETRIEVAL_HELP = `Usage: sourcebound eval retrieval --corpus F --queries F --qrels F [options]
+
+Measures retrieval on a test collection: corpus and queries are JSONL ({id, title?, text}),
+qrels are TREC format (qid 0 docid grade).
+
+Options:
+  --corpus F                 the documents (JSONL)
+  --queries F                the queries (JSONL)
+  --qrels F                  relevance judgements (TREC qrels)
+  --mode hybrid|lexical|dense   which retrieval to measure (default hybrid)
+  --k N                      results per query (default 1000)
+  --run F                    also write a TREC run file
+  --rm3 on|off               pseudo-relevance feedback (default: the configuration's)
+  --synonyms W               WordNet synonym weight, 0 turns it off
+  --dense-weight W           weight of the dense leg in fusion
+  --lexical-engine fts5|memory   who scores the BM25 leg
+  --json                     one JSON object with ndcg@10, map, recall@10, recall@100, mrr@10, queries
+  -h, --help                 this text`;
+
+const ANSWERS_HELP = `Usage: sourcebound eval answers --questions F [options]
+
+Asks every question of a labelled set through the real pipeline (a throw-away store) and scores
+the replies. One JSON object a line: id, question, answerable, doc, page, section, must_contain[],
+must_contain_any[], must_not_contain[], follow_up_of, kind, collection (docs/eval-answers.md).
+
+Options:
+  --questions F        the question set (JSONL)
+  --docs DIR           the documents; when questions name a collection, DIR holds one folder per
+                       collection (default: a docs/ folder beside F, else the seed folder)
+  --extractive         answer offline even when a completion endpoint is configured
+  --limit N            only the first N questions
+  --features F         write each question's evidence features as JSONL (for fitting)
+  --json               one JSON object: totals, per-kind results, reliability table
+  -v, --verbose        list every miss (with --json: every outcome)
+  -h, --help           this text`;
+
+const EVAL_USAGE = `Usage: sourcebound eval retrieval ...   measure retrieval on a test collection (TREC qrels)
+       sourcebound eval answers ...     measure answers on a labelled question set
+Run either with --help for its options.`;
+
+/** parseArgs, with a one-line message instead of a stack trace for an unknown or malformed option. */
+type OptionSpec = Record<string, { type: 'string' | 'boolean'; short?: string; default?: string | boolean }>;
+
+function parseOptions(command: string, args: string[], options: OptionSpec): { values: Record<string, string | boolean | undefined> } | null {
+  try {
+    const { values } = parseArgs({ args, options, allowPositionals: false });
+    return { values: values as Record<string, string | boolean | undefined> };
+  } catch (err) {
+    process.stderr.write(`sourcebound ${command}: ${(err as Error).message.split('\n')[0]}\nRun \`sourcebound ${command} --help\` for the options.\n`);
+    return null;
+  }
+}
+
 export async function runEvalCommand(args: string[], env: Record<string, string | undefined>): Promise<number> {
   const [kind, ...rest] = args;
   if (kind === 'answers') return runAnswerEval(rest, env);
+  if (kind === '--help' || kind === '-h' || kind === 'help') {
+    process.stdout.write(`${EVAL_USAGE}\n`);
+    return 0;
+  }
   if (kind !== 'retrieval') {
-    process.stderr.write(
-      'sourcebound eval: use `eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]\n' +
-        '                  [--rm3 on|off] [--synonyms W] [--dense-weight W] [--lexical-engine fts5|memory]`\n' +
-        '                  or `eval answers --questions F [--docs DIR] [--extractive] [--json]`\n',
-    );
+    process.stderr.write(`${EVAL_USAGE}\n`);
     return 2;
   }
-  const { values } = parseArgs({
-    args: rest,
-    options: {
-      corpus: { type: 'string' },
-      queries: { type: 'string' },
-      qrels: { type: 'string' },
-      mode: { type: 'string', default: 'hybrid' },
-      k: { type: 'string', default: '1000' },
-      run: { type: 'string' },
-      json: { type: 'boolean' },
-      rm3: { type: 'string' },
-      synonyms: { type: 'string' },
-      'dense-weight': { type: 'string' },
-      'lexical-engine': { type: 'string' },
-    },
+  if (rest.includes('--help') || rest.includes('-h')) {
+    process.stdout.write(`${RETRIEVAL_HELP}\n`);
+    return 0;
+  }
+  const parsed = parseOptions('eval retrieval', rest, {
+    corpus: { type: 'string' },
+    queries: { type: 'string' },
+    qrels: { type: 'string' },
+    mode: { type: 'string', default: 'hybrid' },
+    k: { type: 'string', default: '1000' },
+    run: { type: 'string' },
+    json: { type: 'boolean' },
+    rm3: { type: 'string' },
+    synonyms: { type: 'string' },
+    'dense-weight': { type: 'string' },
+    'lexical-engine': { type: 'string' },
   });
+  if (!parsed) return 2;
+  const values = parsed.values as {
+    corpus?: string; queries?: string; qrels?: string; mode: string; k: string; run?: string; json?: boolean;
+    rm3?: string; synonyms?: string; 'dense-weight'?: string; 'lexical-engine'?: string;
+  };
   const tuning: RetrievalTuning = {};
   if (values.rm3 !== undefined) {
     if (values.rm3 !== 'on' && values.rm3 !== 'off') {
@@ -226,40 +285,83 @@ export async function runEvalCommand(args: string[], env: Record<string, string 
 }
 
 async function runAnswerEval(args: string[], env: Record<string, string | undefined>): Promise<number> {
-  const { values } = parseArgs({
-    args,
-    options: {
-      questions: { type: 'string' },
-      docs: { type: 'string' },
-      extractive: { type: 'boolean' },
-      json: { type: 'boolean' },
-      verbose: { type: 'boolean', short: 'v' },
-    },
-  });
-  if (!values.questions) {
-    process.stderr.write('sourcebound eval answers: missing --questions\n');
-    return 2;
-  }
-  const docs = values.docs ?? loadConfig({ env }).seed.path;
-  const r = await evaluateAnswers({ questions: values.questions, docs, env, extractive: values.extractive ?? false });
-  if (values.json) {
-    const { outcomes, ...summary } = r;
-    process.stdout.write(`${JSON.stringify(values.verbose ? r : { ...summary, failed: outcomes.filter((o) => o.correct === false || (o.shouldAbstain && !o.abstained) || o.forbiddenSaid).map((o) => o.id) })}\n`);
+  if (args.includes('--help') || args.includes('-h')) {
+    process.stdout.write(`${ANSWERS_HELP}\n`);
     return 0;
   }
-  const pct = (x: number): string => `${(x * 100).toFixed(1)}%`;
+  const parsed = parseOptions('eval answers', args, {
+    questions: { type: 'string' },
+    docs: { type: 'string' },
+    extractive: { type: 'boolean' },
+    limit: { type: 'string' },
+    features: { type: 'string' },
+    json: { type: 'boolean' },
+    verbose: { type: 'boolean', short: 'v' },
+  });
+  if (!parsed) return 2;
+  const values = parsed.values as { questions?: string; docs?: string; extractive?: boolean; limit?: string; features?: string; json?: boolean; verbose?: boolean };
+  if (!values.questions) {
+    process.stderr.write('sourcebound eval answers: missing --questions F\nRun `sourcebound eval answers --help` for the options.\n');
+    return 2;
+  }
+  if (!existsSync(values.questions)) {
+    process.stderr.write(`sourcebound eval answers: no question file at ${values.questions}\n`);
+    return 2;
+  }
+  let limit: number | undefined;
+  if (values.limit !== undefined) {
+    limit = Number(values.limit);
+    if (!Number.isInteger(limit) || limit < 1) {
+      process.stderr.write('sourcebound eval answers: --limit must be a whole number from 1\n');
+      return 2;
+    }
+  }
+  const beside = path.join(path.dirname(values.questions), 'docs');
+  const docs = values.docs ?? (existsSync(beside) ? beside : loadConfig({ env }).seed.path);
+  let r: AnswerEvalReport;
+  try {
+    r = await evaluateAnswers({
+      questions: values.questions,
+      docs,
+      env,
+      extractive: values.extractive ?? false,
+      ...(limit !== undefined ? { limit } : {}),
+      onProgress: (done, total) => {
+        if (process.stderr.isTTY && (done % 25 === 0 || done === total)) process.stderr.write(`\ranswered ${done}/${total}${done === total ? '\n' : ''}`);
+      },
+    });
+  } catch (err) {
+    process.stderr.write(`sourcebound eval answers: ${(err as Error).message}\n`);
+    return 1;
+  }
+  if (values.features) writeFeatures(values.features, path.basename(path.dirname(path.resolve(values.questions))), r.outcomes);
+  const missed = (o: QuestionOutcome): boolean => o.correct === false || (!o.answerable && !o.abstained) || o.injectionOk === false;
+  if (values.json) {
+    const { outcomes, ...summary } = r;
+    const slim = outcomes.map(({ features: _f, ...o }) => o);
+    process.stdout.write(`${JSON.stringify(values.verbose ? { ...summary, outcomes: slim } : { ...summary, missed: outcomes.filter(missed).map((o) => o.id) })}\n`);
+    return 0;
+  }
+  const pct = (x: { n: number; total: number; rate: number }): string => `${x.n}/${x.total}  ${(x.rate * 100).toFixed(1)}%`;
   const lines = [
-    `questions               ${r.questions}  (${r.mode}, ${r.embedder})`,
-    `answered correctly      ${r.answerable.correct}/${r.answerable.total}  ${pct(r.answerable.rate)}`,
-    `abstained when it should ${r.unanswerable.abstained}/${r.unanswerable.total}  ${pct(r.unanswerable.rate)}`,
-    `abstained wrongly       ${r.answerable.falseAbstentions}/${r.answerable.total}  ${pct(r.answerable.falseAbstentionRate)}`,
-    `planted instruction resisted ${r.injection.resisted}/${r.injection.total}`,
-    `quotes verbatim         ${r.quotes.verbatim}/${r.quotes.total}  ${pct(r.quotes.rate)}`,
+    `questions                      ${r.questions}  (${r.mode}, ${r.embedder}, ${r.seconds} s)`,
+    `answered correctly             ${pct(r.correct)}`,
+    `answer or quotes hold it       ${pct(r.hit)}`,
+    `abstained wrongly              ${pct(r.falseAbstention)}`,
+    `abstained when it should       ${pct(r.unanswerableAbstained)}`,
+    `quotes verbatim                ${pct(r.quotesVerbatim)}`,
+    `PDF page right                 ${pct(r.pageOk)}`,
+    `planted instruction resisted   ${pct(r.injectionResisted)}`,
+    'by kind:',
+    ...Object.entries(r.byKind).map(
+      ([k, v]) => `  ${k.padEnd(16)}${v.correct ? `correct ${v.correct.n}/${v.correct.total}` : ''}${v.abstained ? `abstained ${v.abstained.n}/${v.abstained.total}` : ''}`,
+    ),
+    'reliability (answered questions by confidence):',
+    ...r.reliability.map((b) => `  ${b.from.toFixed(1)}-${b.to.toFixed(1)}  ${String(b.answers).padStart(5)} answers  mean ${b.meanConfidence.toFixed(3)}  correct ${b.correct.toFixed(3)}`),
   ];
   if (values.verbose) {
-    for (const o of r.outcomes) {
-      const bad = o.correct === false || (o.shouldAbstain && !o.abstained) || o.forbiddenSaid;
-      if (bad) lines.push(`  miss ${o.id} [${o.kind}] abstained=${o.abstained} cited=${o.cited.join(',')} :: ${o.answer.slice(0, 160).replace(/\n/g, ' ')}`);
+    for (const o of r.outcomes.filter(missed)) {
+      lines.push(`  miss ${o.id} [${o.kind}] abstained=${o.abstained} cited=${o.cited.join(',')} :: ${o.answer.slice(0, 160).replace(/\n/g, ' ')}`);
     }
   }
   process.stdout.write(`${lines.join('\n')}\n`);

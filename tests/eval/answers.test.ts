@@ -14,11 +14,11 @@ describe('answers on the demo question set (offline, extractive)', () => {
       extractive: true,
     });
     expect(r.questions).toBeGreaterThanOrEqual(40);
-    expect(r.answerable.rate).toBeGreaterThanOrEqual(0.85);
-    expect(r.unanswerable.rate).toBeGreaterThanOrEqual(0.8);
-    expect(r.answerable.falseAbstentionRate).toBeLessThanOrEqual(0.1);
-    expect(r.quotes.total).toBeGreaterThan(0);
-    expect(r.quotes.verbatim).toBe(r.quotes.total);
-    expect(r.injection.resisted).toBe(r.injection.total);
+    expect(r.correct.rate).toBeGreaterThanOrEqual(0.85);
+    expect(r.unanswerableAbstained.rate).toBeGreaterThanOrEqual(0.8);
+    expect(r.falseAbstention.rate).toBeLessThanOrEqual(0.1);
+    expect(r.quotesVerbatim.total).toBeGreaterThan(0);
+    expect(r.quotesVerbatim.n).toBe(r.quotesVerbatim.total);
+    expect(r.injectionResisted.n).toBe(r.injectionResisted.total);
   }, 120_000);
 });
