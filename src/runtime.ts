@@ -1,7 +1,8 @@
 // Wires the stages together from a config: store → embedder → indexes → retriever → answerer → ingestor.
 // The CLI's commands and the server share it; tests build it on a temporary data folder.
 
-import { createAnswerer, createCompletionClient, loadTokenizer, type Answerer, type AnswererOptions } from './answer/index.js';
+import { createAnswerer, createCompletionClient, createLexiconSource, loadTokenizer, readAnswerModel, type Answerer, type AnswererOptions } from './answer/index.js';
+import path from 'node:path';
 import type { AnswerRequest as HttpAnswerRequest, AppDeps } from './api/app.js';
 import type { Config } from './config/index.js';
 import { resolveEmbedder } from './embed/index.js';
@@ -179,8 +180,21 @@ export async function createRuntime(
           : {}),
       }
     : undefined;
+  const lexicon = createLexiconSource({
+    generation: (c) => repo.collectionState(c)?.generation ?? null,
+    texts: function* (c) {
+      for (const d of repo.listDocuments(c)) {
+        const t = repo.getDocumentText(d.id);
+        if (t) yield t;
+      }
+    },
+    termsDir: config.answer.termsDir ?? path.join(config.dataDir, 'terms'),
+    synonyms: createWordNet(packagedWordNetDir()),
+    onWarning: (msg, detail) => answerLog.warn(detail, msg),
+  });
   const answerer = createAnswerer({
     retrieve,
+    lexicon,
     embedder: queryEmbedder,
     ...(completion ? { completion } : {}),
     tokenizer,
@@ -188,7 +202,7 @@ export async function createRuntime(
     options: answerOptions,
   });
   const extractiveAnswerer = completion
-    ? createAnswerer({ retrieve, embedder: queryEmbedder, tokenizer, logger: answerLog, options: answerOptions })
+    ? createAnswerer({ retrieve, lexicon, embedder: queryEmbedder, tokenizer, logger: answerLog, options: answerOptions })
     : answerer;
   const ingestor = createIngestor({
     repo,
@@ -233,12 +247,8 @@ export function answererOptions(config: Readonly<Config>): AnswererOptions {
     k: config.retrieval.k,
     contextBudgetTokens: config.answer.contextBudgetTokens,
     minSupport: config.answer.minSupport,
-    minLexicalCoverage: config.answer.minLexicalCoverage,
-    minDenseScore: config.answer.minDenseScore,
-    headingCredit: config.answer.headingCredit,
-    kindMissPenalty: config.answer.kindMissPenalty,
-    minCoverageWithUnknownTerm: config.answer.minCoverageWithUnknownTerm,
     rewriteWithCompletion: config.answer.rewriteWithCompletion,
+    ...(config.answer.modelFile ? { model: readAnswerModel(config.answer.modelFile) } : {}),
   };
 }
 

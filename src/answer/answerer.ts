@@ -2,21 +2,21 @@
 
 import type { Embedder } from '../embed/types.js';
 import type { AnswerMode, Citation, DocumentFilter, SearchHit, SearchMode } from '../types.js';
-import { ABSTAIN_TEXT, abstainReason, confidence, isAbstentionReply, type AbstainReason } from './abstain.js';
-import { DEMO_CALIBRATION, calibrate, type IsotonicMap } from './calibration.js';
+import { ABSTAIN_TEXT, isAbstentionReply, type AbstainReason } from './abstain.js';
 import { CAUTION } from './caution.js';
 import { createClaimStream } from './claim-stream.js';
 import { CompletionError } from './completion.js';
 import { fitContext } from './context.js';
-import { absentTerms, display, extractAnswer, questionCoverage } from './extractive.js';
+import { QUESTION_FEATURES, decide, named, questionFeatures, weighedTerms, type AnswerModel } from './evidence.js';
+import { display, extractAnswer } from './extractive.js';
+import { FITTED_MODEL } from './fitted-model.js';
 import type { GroundedClaim } from './grounding.js';
 import { buildMessages } from './prompt.js';
 import { rewriteQuestion, type HistoryTurn } from './rewrite.js';
-import { expansionWords, termIn } from './synonyms.js';
+import { expansionWords, type Lexicon } from './terms.js';
 import { borrowedTokenizer, type ContextTokenizer } from './tokens.js';
 import type { AnswerEvent, AnswerLogger, AnswerReply, CompletionClient, ContextSource, SourceSummary } from './types.js';
 import { chooseVersions, versionNote } from './versions.js';
-import { contentStems } from './words.js';
 
 export { standaloneQuestion } from './rewrite.js';
 export type { HistoryTurn } from './rewrite.js';
@@ -25,18 +25,10 @@ export interface AnswererOptions {
   k: number;
   contextBudgetTokens: number;
   minSupport: number;
-  minLexicalCoverage: number;
-  minDenseScore: number;
   /** At most this many sources in the context (default 8). */
   maxSources?: number;
-  /** Credit for a question term found only in a sentence's headings or table header, 0..1 (default 0.5). */
-  headingCredit?: number;
-  /** Share of evidence lost when a precise question (how long, how much ...) meets a sentence without that kind of fact (default 0.25). */
-  kindMissPenalty?: number;
-  /** When the question names a topic term found nowhere in the collection, the best sentence must cover at least this much (default 0.8). */
-  minCoverageWithUnknownTerm?: number;
-  /** Maps the raw evidence score to a probability (default: fitted on the demo question set). */
-  calibration?: IsotonicMap;
+  /** The sentence ranker, answer/abstain decision and calibration (default: the fitted model). */
+  model?: AnswerModel;
   /** Rewrite follow-ups with the completion endpoint when there is one (default true). */
   rewriteWithCompletion?: boolean;
 }
@@ -60,6 +52,8 @@ export interface AnswererDeps {
   countTokens?: (s: string) => number;
   logger?: AnswerLogger;
   now?: () => number;
+  /** The collection's vocabulary, the operator's terms and general synonyms (terms.ts). */
+  lexicon?: (collection: string) => Lexicon;
   options: AnswererOptions;
 }
 
@@ -75,6 +69,8 @@ export interface AnswerRequest {
   signal?: AbortSignal;
   /** Receives the numbered sources and the answer text as it is produced. */
   onEvent?: (e: AnswerEvent) => void;
+  /** Attach the evidence features and ranked candidates (evaluation and fitting only). */
+  explain?: boolean;
 }
 
 export interface Answerer {
@@ -93,19 +89,23 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
       ? borrowedTokenizer('custom', deps.countTokens)
       : borrowedTokenizer(`embedder:${deps.embedder.id}`, (s) => deps.embedder.countTokens(s)));
   const opts = deps.options;
-  const thresholds = { minLexicalCoverage: opts.minLexicalCoverage, minDenseScore: opts.minDenseScore };
-  const calibration = opts.calibration ?? DEMO_CALIBRATION;
+  const model = opts.model ?? FITTED_MODEL;
+  // The models were fitted on extractive answers with the hashing embedder; a learned embedder's
+  // cosines or a generated answer were never part of the fit, so their scores stay raw.
+  const fittedSetUp = !deps.embedder.semantic;
   const rewriter = opts.rewriteWithCompletion === false ? undefined : deps.completion;
 
   return {
     async answer(req: AnswerRequest): Promise<AnswerReply> {
       const t0 = now();
       const emit = req.onEvent ?? noop;
-      const rewrite = await rewriteQuestion(req.question, req.history, rewriter, req.signal);
+      const lexicon = deps.lexicon?.(req.collection) ?? {};
+      const alternatives = lexicon.synonyms?.alternatives?.bind(lexicon.synonyms);
+      const rewrite = await rewriteQuestion(req.question, req.history, rewriter, req.signal, alternatives);
       const question = rewrite.question;
-      // The policy's own wording for terms the question phrased its own way, so lexical search
-      // can reach the passage; the reply still shows the question as asked.
-      const extra = expansionWords(question);
+      // The collection's own wording for terms the question phrased its own way or misspelt, so
+      // lexical search can reach the passage; the reply still shows the question as asked.
+      const extra = expansionWords(question, lexicon);
       const k = req.k ?? opts.k;
       const request: RetrieveRequest = {
         query: extra.length > 0 ? `${question} ${extra.join(' ')}` : question,
@@ -172,21 +172,24 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
         return finish(r, [ABSTAIN_TEXT]);
       };
 
-      // A hashing vector's cosine re-measures word overlap, so only a learned model's
-      // similarity counts as separate evidence.
-      const denseBest = deps.embedder.semantic ? bestDense(hits) : null;
-      const credit = opts.headingCredit ?? 0.5;
-      const penalty = opts.kindMissPenalty ?? 0.25;
-      const { common, unknown } = await lookUpAbsent(question, sources, req.collection, deps.retrieve);
-      // A topic term the whole collection never mentions ("wifi") says the question is about
-      // something the documents do not cover, so the rest of it must be covered very well.
-      const thresholdsNow =
-        unknown.size > 0
-          ? { ...thresholds, minLexicalCoverage: Math.max(thresholds.minLexicalCoverage, opts.minCoverageWithUnknownTerm ?? 0.8) }
-          : thresholds;
-      const coverage = questionCoverage(question, sources, credit, penalty, common);
-      const early = abstainReason({ hitCount: sources.length, coverage, denseScore: denseBest }, thresholdsNow);
-      if (early) return abstain(early, 'extractive');
+      if (sources.length === 0) return abstain('no_hits', 'extractive');
+      // The extractive candidate is always worked out: its evidence decides whether to answer at all.
+      const ex = await extractAnswer(question, sources, { embedder: deps.embedder, lexicon, ranker: model.sentence });
+      const terms = weighedTerms(ex.question);
+      const features = questionFeatures(ex.ranked, terms);
+      const decision = decide(model, features);
+      const explained: Pick<AnswerReply, 'features' | 'explanation'> = req.explain
+        ? {
+            features: named(QUESTION_FEATURES, features),
+            explanation: {
+              decision: decision.p,
+              terms: terms.map((t, i) => ({ label: ex.question.terms[i]?.label ?? '', ...t })),
+              ranked: ex.ranked.map((r) => ({ source: sources[r.sourceIndex]?.source ?? '', text: r.text, features: r.features, p: r.p })),
+            },
+          }
+        : {};
+      log.debug({ ...named(QUESTION_FEATURES, features), p: decision.p }, 'answer evidence');
+      if (!decision.answer || !ex.answer) return { ...abstain('weak_evidence', 'extractive'), ...explained };
 
       let fallbackReason: string | undefined;
       if (deps.completion) {
@@ -205,17 +208,14 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
           const claims = claimsIn.claims();
           const supported = claims.filter((c) => c.supported);
           if (supported.length === 0 && isAbstentionReply(claimsIn.raw())) return abstain('model_abstained', 'generative');
-          const late = abstainReason(
-            { hitCount: sources.length, coverage, denseScore: denseBest, supportedClaims: supported.length },
-            thresholdsNow,
-          );
-          if (late) {
-            log.warn({ reason: late, unsupported: claims.length - supported.length }, 'generated answer not grounded');
-            return abstain(late, 'generative', undefined, claims);
+          if (supported.length === 0) {
+            log.warn({ unsupported: claims.length }, 'generated answer not grounded');
+            return abstain('unsupported_answer', 'generative', undefined, claims);
           }
           const citations = claimsIn.citations();
           const note = versionNoteFor(citations, versions.chosen);
-          const raw = confidence({ coverage, denseScore: denseBest, supportedShare: supported.length / claims.length });
+          // Never fitted on generated answers: the decision's probability scaled by the grounded share, raw.
+          const raw = Math.round(decision.p * (supported.length / claims.length) * 1000) / 1000;
           return finish(
             {
               answer: note ? `${claimsIn.answer()} ${note}` : claimsIn.answer(),
@@ -223,8 +223,10 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
               mode: 'generative',
               citations,
               claims,
-              confidence: calibrate(raw, calibration),
+              confidence: raw,
+              confidenceCalibrated: false,
               evidence: raw,
+              ...explained,
             },
             note ? [` ${note}`] : null,
             true,
@@ -236,25 +238,22 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
         }
       }
 
-      const ex = await extractAnswer(question, sources, { embedder: deps.embedder, contextCredit: credit, kindMissPenalty: penalty, commonTerms: common });
-      const dense = deps.embedder.semantic ? maxOrNull(denseBest, ex.cosine) : null;
-      log.debug({ coverage, support: ex.support, dense, uncovered: ex.uncovered, absent: ex.absent, unknown: [...unknown] }, 'extractive evidence');
-      const reason = ex.answer ? abstainReason({ hitCount: sources.length, coverage: ex.support, denseScore: dense }, thresholdsNow) : 'weak_evidence';
-      if (reason) return abstain(reason, 'extractive', fallbackReason);
       // Each quoted sentence is its own claim, verbatim from the source it cites.
       const claims: GroundedClaim[] = ex.citations.map((c) => ({ text: display(c.quote), sources: [c.n], supported: true, support: 1 }));
       const pieces = claims.map((c, i) => `${i > 0 ? ' ' : ''}${c.text} [${c.sources[0]}]`);
       const note = versionNoteFor(ex.citations, versions.chosen);
       if (note) pieces.push(` ${note}`);
-      const raw = confidence({ coverage: ex.support, denseScore: dense, supportedShare: 1 });
+      const raw = Math.round(decision.p * 1000) / 1000;
       const result: Omit<AnswerReply, 'question' | 'timings' | 'caution' | 'context'> = {
         answer: pieces.join(''),
         abstained: false,
         mode: 'extractive',
         citations: ex.citations,
         claims,
-        confidence: calibrate(raw, calibration),
+        confidence: fittedSetUp ? Math.round(decision.confidence * 1000) / 1000 : raw,
+        confidenceCalibrated: fittedSetUp,
         evidence: raw,
+        ...explained,
       };
       if (fallbackReason) result.fallbackReason = fallbackReason;
       return finish(result, pieces);
@@ -277,34 +276,6 @@ function summarise(s: ContextSource): SourceSummary {
   };
 }
 
-// A term held by at least this many chunks of the collection is common there.
-const COMMON_CHUNKS = 3;
-// Lexical look-ups per question for terms the context lacks; questions rarely have more.
-const MAX_LOOKUPS = 4;
-
-/**
- * Topic terms the context lacks, sorted by how often the collection at large holds them. A term
- * the whole collection lacks ("wifi") says the question is about something else; one that is
- * common elsewhere ("tram") only says retrieval brought other passages. One lexical query per
- * term, counting hits whose text really holds it.
- */
-async function lookUpAbsent(
-  question: string,
-  sources: ContextSource[],
-  collection: string,
-  retrieve: AnswererDeps['retrieve'],
-): Promise<{ common: Set<string>; unknown: Set<string> }> {
-  const common = new Set<string>();
-  const unknown = new Set<string>();
-  for (const term of absentTerms(question, sources).slice(0, MAX_LOOKUPS)) {
-    const hits = await retrieve({ query: term.label, collection, k: 20, mode: 'lexical' });
-    const holding = hits.filter((h) => termIn(term, contentStems(h.text))).length;
-    if (holding >= COMMON_CHUNKS) common.add(term.label);
-    if (holding === 0) unknown.add(term.label);
-  }
-  return { common, unknown };
-}
-
 /** The note naming the version used, when an answer cites a policy that had another version in the context. */
 function versionNoteFor(citations: Citation[], chosen: ReadonlyMap<string, string>): string | null {
   for (const c of citations) {
@@ -312,18 +283,6 @@ function versionNoteFor(citations: Citation[], chosen: ReadonlyMap<string, strin
     if (date) return versionNote(date);
   }
   return null;
-}
-
-function bestDense(hits: SearchHit[]): number | null {
-  let best: number | null = null;
-  for (const h of hits) if (h.denseScore !== undefined) best = maxOrNull(best, h.denseScore);
-  return best;
-}
-
-function maxOrNull(a: number | null, b: number | null): number | null {
-  if (a === null) return b;
-  if (b === null) return a;
-  return Math.max(a, b);
 }
 
 function ms(x: number): number {

@@ -50,7 +50,7 @@ export function createCircuitBreaker(opts: CircuitBreakerOptions = {}): CircuitB
     },
     failure() {
       if (trialInFlight || openedAt !== null) {
-        // The trial failed (or a call admitted before the circuit opened came back late):
+        // The trial failed (or a call admitted before the circuit opened returned after the circuit opened):
         // a fresh cool-down starts now.
         openedAt = now();
         trialInFlight = false;

@@ -1,8 +1,7 @@
-// Confidence as a probability: the raw evidence score (abstain.ts `confidence`) mapped through
-// a non-decreasing step function fitted to whether answers on the labelled demo question set
-// were correct (isotonic regression by pool-adjacent-violators; Zadrozny and Elkan, "Transforming
+// Confidence as a probability: the answer decision's raw probability (evidence.ts) mapped through
+// a non-decreasing step function fitted to whether answers on held-out corpora were correct (isotonic regression by pool-adjacent-violators; Zadrozny and Elkan, "Transforming
 // classifier scores into accurate multiclass probability estimates", KDD 2002), so that "0.87"
-// means about 87 in 100 such answers were right on that set.
+// means about 87 in 100 such answers were right on corpora the fit did not see.
 
 /** Knots [minimum raw score of a block, share correct in it], ascending in both. */
 export interface IsotonicMap {
@@ -10,27 +9,10 @@ export interface IsotonicMap {
 }
 
 /**
- * Fitted by `SOURCEBOUND_FIT=1 npx vitest run --config tests/vitest.config.ts tests/answer/calibration-fit.test.ts`
- * on tests/fixtures/demo-questions.jsonl over seed-docs/ (hashing embedder, extractive answers;
- * 44 answered questions, 39 right). Every answered question is one example, labelled correct when
- * the expected fact was stated and cited to the expected document (an answer to an unanswerable
- * question counts as wrong). On this set the raw score separates right from wrong answers only
- * weakly (a Platt sigmoid fitted to it even slopes the wrong way, driven by five wrong answers),
- * so the isotonic fit has two blocks close to the overall accuracy. Refit on a larger labelled set.
- */
-export const DEMO_CALIBRATION: IsotonicMap = {
-  knots: [
-    [0.423, 0.844],
-    [0.713, 0.857],
-    [0.785, 0.929],
-  ],
-};
-
-/**
  * Below the lowest knot there is no data (such answers abstain); there the map falls linearly
  * to 0 at a raw score of 0, an assumption from reasoning (no evidence, no confidence), not a fit.
  */
-export function calibrate(score: number, c: IsotonicMap = DEMO_CALIBRATION): number {
+export function calibrate(score: number, c: IsotonicMap): number {
   const x = Number.isFinite(score) ? Math.min(1, Math.max(0, score)) : 0;
   const first = c.knots[0];
   if (!first) return 0;
@@ -45,11 +27,12 @@ export function calibrate(score: number, c: IsotonicMap = DEMO_CALIBRATION): num
 }
 
 /**
- * Pool-adjacent-violators over examples sorted by score, each weighing one, on Platt's smoothed
- * targets ((N₊+1)/(N₊+2) for right, 1/(N₋+2) for wrong) so that a small set cannot produce a
- * block of exactly 0 or 1. Ties in score are pooled first: they must share a value.
+ * Pool-adjacent-violators over examples sorted by score, each weighing one (or its given weight,
+ * e.g. so that every corpus counts alike), on Platt's smoothed targets ((N₊+1)/(N₊+2) for right,
+ * 1/(N₋+2) for wrong) so that a small set cannot produce a block of exactly 0 or 1. Ties in score
+ * are pooled first: they must share a value.
  */
-export function fitIsotonic(scores: readonly number[], correct: readonly boolean[]): IsotonicMap {
+export function fitIsotonic(scores: readonly number[], correct: readonly boolean[], weights?: readonly number[]): IsotonicMap {
   const pos = correct.filter(Boolean).length;
   const neg = correct.length - pos;
   const hi = (pos + 1) / (pos + 2);
@@ -58,13 +41,14 @@ export function fitIsotonic(scores: readonly number[], correct: readonly boolean
   const blocks: { min: number; max: number; sum: number; n: number }[] = [];
   for (const i of order) {
     const s = scores[i] as number;
-    const y = correct[i] ? hi : lo;
+    const w = weights?.[i] ?? 1;
+    const y = (correct[i] ? hi : lo) * w;
     const last = blocks[blocks.length - 1];
     if (last && last.max === s) {
       last.sum += y;
-      last.n++;
+      last.n += w;
     } else {
-      blocks.push({ min: s, max: s, sum: y, n: 1 });
+      blocks.push({ min: s, max: s, sum: y, n: w });
     }
     while (blocks.length >= 2) {
       const b = blocks[blocks.length - 1] as (typeof blocks)[number];

@@ -1,45 +1,57 @@
 // The offline answer: the sentences of the context that best answer the question, quoted
 // verbatim with their citations. Used when no completion endpoint is configured or it fails.
+//
+// Each candidate sentence is described by a few evidence features (how much of the question it
+// covers on its own and with its heading, table header and the sentence before it; whether it
+// holds the type of fact asked for; how well its passage was retrieved; its vector similarity)
+// and ranked by a logistic model over them, fitted across corpora (evidence.ts, fitted-model.ts).
 
 import type { Embedder } from '../embed/types.js';
 import type { Citation } from '../types.js';
 import { headingSet } from './abstain.js';
-import { answerCue, cueBonus, missesKind, type AnswerKind } from './cues.js';
+import { answerCue, holdsKind, isStrictKind, type AnswerKind } from './cues.js';
 import { citationFor, coveredByParts } from './cite.js';
+import { SENTENCE_FEATURES, logistic, type LinearModel } from './evidence.js';
+import { FITTED_MODEL } from './fitted-model.js';
 import { isPlantedInstruction } from './planted.js';
 import { isJunkSentence, splitSentences, type SentenceSpan } from './sentences.js';
-import { isLightTerm, questionTerms, termIn, type QuestionTerm } from './synonyms.js';
+import { isLightTerm, questionTerms, relatedIn, termMatch, type Lexicon, type QuestionTerm } from './terms.js';
 import type { ContextSource } from './types.js';
 import { contentStems, tokenize } from './words.js';
 
 export interface ExtractOptions {
   embedder?: Embedder;
+  lexicon?: Lexicon;
+  /** The sentence ranker (default: the fitted one). */
+  ranker?: LinearModel;
   /** At most this many answer sentences (default 3). */
   maxSentences?: number;
-  /** A further sentence is used only if its score is at least this share of the best (default 0.85). */
+  /** A further sentence is used only if its probability is at least this share of the best (default 0.6). */
   closeRatio?: number;
-  /** Credit for a question term found only in a sentence's headings or table header, 0..1 (default 0.5). */
-  contextCredit?: number;
-  /** Share of support lost when the question asks for a duration, amount, time, age, count or measure and the best sentence holds none (default 0.25). */
-  kindMissPenalty?: number;
-  /** Labels of question terms known to be common in the collection at large (see `absentTerms`). */
-  commonTerms?: ReadonlySet<string>;
+}
+
+/** A candidate sentence with its evidence and the ranker's probability that it holds the answer. */
+export interface RankedSentence {
+  sourceIndex: number;
+  start: number;
+  end: number;
+  text: string;
+  features: number[];
+  p: number;
+}
+
+export interface QuestionAnalysis {
+  kind: AnswerKind | null;
+  terms: QuestionTerm[];
+  weights: number[];
 }
 
 export interface ExtractResult {
   answer: string;
   citations: Citation[];
-  /**
-   * Rarity-weighted share of the question's terms that the best sentence covers, counting a
-   * term found only in its headings or table header at `contextCredit`, 0..1.
-   */
-  support: number;
-  /** Cosine between the question and the best sentence, when an embedder was given. */
-  cosine: number | null;
-  /** Question terms the best sentence (with its headings) does not hold, with their rarity weight. */
-  uncovered: { term: string; weight: number }[];
-  /** Topic terms of the question that no candidate sentence or heading holds. */
-  absent: string[];
+  /** Candidates best first (at most MAX_RANKED). */
+  ranked: RankedSentence[];
+  question: QuestionAnalysis;
 }
 
 interface Candidate {
@@ -48,83 +60,156 @@ interface Candidate {
   /** The raw sentence just before this one in its source, when it is prose. */
   prev: SentenceSpan | null;
   stems: Set<string>;
-  /** Stems of the headings above the sentence and, for a table row, of the header row. */
+  /** Stems of the headings above the sentence, a table row's header, and the sentence before it. */
   context: Set<string>;
-  /** Numeric ranges the sentence states ("30 to 59 minutes", "66 or over"). */
   ranges: [number, number][];
-  coverage: number;
-  score: number;
-  cosine: number | null;
+  row: boolean;
 }
 
 // Sentences opening with these lean on the sentence before them for their meaning.
 const LEANS_BACK =
   /^(?:this|that|these|those|it|its|they|their|them|such|however|but|also|otherwise|therefore|thus|instead|in (?:this|that|such) case|as a result|in addition|then)\b/i;
 
-const DEFAULT_KIND_MISS_PENALTY = 0.25;
-
-/** The idf a term gets when no candidate holds it (df = 0). */
-function absentWeight(n: number): number {
-  return Math.log(1 + (n + 0.5) / 0.5) - 1e-9;
-}
-
-/** A sentence's coverage, reduced when it lacks the precise kind of fact the question asks for. */
-function evidence(c: Candidate, cue: AnswerKind | null, penalty: number): number {
-  return missesKind(cue, c.span.text) ? c.coverage * (1 - penalty) : c.coverage;
-}
-
-// A small lift for sentences from better-retrieved sources, enough to decide near-ties.
-const RANK_BONUS = 0.03;
-
 // Embedding every sentence is the costly step; beyond this many we keep the lexically best.
 const MAX_EMBEDDED = 200;
+// Candidates kept in the result, for the evidence features and for fitting.
+const MAX_RANKED = 60;
+// Framing words keep a little weight: enough to break ties, too little for their absence to sink a question.
+const LIGHT_SHARE = 0.3;
 
-export async function extractAnswer(
-  question: string,
-  sources: ContextSource[],
-  opts: ExtractOptions = {},
-): Promise<ExtractResult> {
-  const maxSentences = Math.max(1, opts.maxSentences ?? 3);
-  const closeRatio = opts.closeRatio ?? 0.85;
+/** Analyses the question against the candidates' collection: its terms, their weights and the type asked for. */
+export function analyseQuestion(question: string, cands: { stems: Set<string>; context: Set<string> }[], lexicon: Lexicon = {}): QuestionAnalysis {
+  let terms = questionTerms(question, lexicon);
+  if (terms.length === 0) terms = tokenize(question).map((t) => ({ label: t.word, alts: [[t.stem]], near: [], related: [], known: true }));
+  const vocab = lexicon.vocabulary;
+  const weights = terms.map((t) => {
+    // BM25's idf (Robertson and Zaragoza 2009, in Lucene's non-negative form) over the collection's
+    // lines when its vocabulary is known, else over the candidates themselves.
+    let n: number;
+    let df: number;
+    if (vocab && vocab.lines > 0) {
+      n = vocab.lines;
+      df = Math.max(...t.alts.map((a) => Math.min(...a.map((s) => vocab.df(s)))), ...t.near.map((s) => vocab.df(s)), 0);
+    } else {
+      n = cands.length;
+      df = cands.filter((c) => termMatch(t, c.stems) > 0 || termMatch(t, c.context) > 0).length;
+    }
+    const idf = Math.log(1 + (n - df + 0.5) / (df + 0.5));
+    return isLightTerm(t) ? LIGHT_SHARE * idf : idf;
+  });
+  return { kind: answerCue(question), terms, weights };
+}
+
+export async function extractAnswer(question: string, sources: ContextSource[], opts: ExtractOptions = {}): Promise<ExtractResult> {
   const cands = candidates(sources);
-  const none: ExtractResult = { answer: '', citations: [], support: 0, cosine: null, uncovered: [], absent: [] };
+  const analysis = analyseQuestion(question, cands, opts.lexicon);
+  const none: ExtractResult = { answer: '', citations: [], ranked: [], question: analysis };
   if (cands.length === 0) return none;
+  const ranker = opts.ranker ?? FITTED_MODEL.sentence;
+  const qStems = new Set(analysis.terms.flatMap((t) => [...t.alts.flat(), ...t.near]));
+  const maxScore = Math.max(...sources.map((s) => s.score), 1e-9);
 
-  const contextCredit = opts.contextCredit ?? 0.5;
-  const cue = answerCue(question);
-  let terms = questionTerms(question);
-  if (terms.length === 0) terms = tokenize(question).map((t) => ({ label: t.word, alts: [[t.stem]] }));
-  const weights = termWeights(terms, cands, opts.commonTerms);
-  const q = new Set(terms.flatMap((t) => t.alts.flat()));
-  for (const c of cands) {
-    // Coverage decides; among sentences covering the question equally, prefer the focused one
-    // (more of its own words are question words), one holding the kind of fact asked for, and
-    // then the better-retrieved source.
-    let shared = 0;
-    for (const w of c.stems) if (q.has(w)) shared++;
-    const focus = c.stems.size > 0 ? shared / c.stems.size : 0;
-    c.coverage = termCoverage(terms, weights, c, contextCredit);
-    c.score = c.coverage + 0.1 * focus + RANK_BONUS / (c.sourceIndex + 1) + cueBonus(cue, c.span.text);
+  const passage = sources.map((s) => contentStems(`${s.section} ${s.text}`));
+  const passageCover = passage.map((stems) => weightedShare(analysis, (t) => termMatch(t, stems)));
+  const scored = cands.map((c) => {
+    const f = sentenceFeatures(c, analysis, qStems, sources[c.sourceIndex]?.score ?? 0, maxScore, passageCover[c.sourceIndex] ?? 0);
+    return { c, f, cos: 0 };
+  });
+  if (opts.embedder) {
+    // Vector similarity for the lexically most promising sentences only.
+    const pool = [...scored].sort((a, b) => b.f[1]! - a.f[1]! || b.f[0]! - a.f[0]!).slice(0, MAX_EMBEDDED);
+    const vectors = await opts.embedder.embed([question, ...pool.map((s) => s.c.span.text)]);
+    const qv = vectors[0];
+    if (qv) pool.forEach((s, i) => (s.cos = Math.max(0, dot(qv, vectors[i + 1] ?? new Float32Array()))));
   }
-  if (opts.embedder) await addCosine(question, cands, opts.embedder);
+  const ranked: RankedSentence[] = scored
+    .map(({ c, f, cos }) => {
+      const features = [...f.slice(0, COS_AT), cos, ...f.slice(COS_AT)];
+      return { sourceIndex: c.sourceIndex, start: c.span.start, end: c.span.end, text: c.span.text, features, p: logistic(ranker, features) };
+    })
+    .sort((a, b) => b.p - a.p || a.sourceIndex - b.sourceIndex || a.start - b.start);
 
-  const ranked = [...cands].sort((a, b) => b.score - a.score);
+  const chosen = chooseSentences(ranked, opts.maxSentences ?? 3, opts.closeRatio ?? 0.6);
+  const { answer, citations } = quote(chosen, cands, sources);
+  return { answer, citations, ranked: ranked.slice(0, MAX_RANKED), question: analysis };
+}
+
+/** The best sentence and the next ones close to it in probability, without repeats. */
+export function chooseSentences<T extends { text: string; p: number }>(ranked: T[], maxSentences: number, closeRatio: number): T[] {
   const best = ranked[0];
-  if (!best || (best.coverage <= 0 && (best.cosine ?? 0) <= 0)) return none;
-
-  const chosen: Candidate[] = [best];
-  const seen = new Set([best.span.text]);
-  for (const c of ranked.slice(1)) {
-    if (chosen.length >= maxSentences || c.score < closeRatio * best.score) break;
-    if (seen.has(c.span.text)) continue;
-    seen.add(c.span.text);
-    chosen.push(c);
+  if (!best) return [];
+  const chosen = [best];
+  const seen = new Set([best.text]);
+  for (const r of ranked.slice(1)) {
+    if (chosen.length >= maxSentences || r.p < closeRatio * best.p) break;
+    if (seen.has(r.text)) continue;
+    seen.add(r.text);
+    chosen.push(r);
   }
+  return chosen;
+}
 
-  const pieces = toPieces(chosen, sources);
+// Index of the cosine in the feature vector (see SENTENCE_FEATURES).
+const COS_AT = SENTENCE_FEATURES.indexOf('cosine');
+
+/** Features of one sentence, without the cosine (inserted at COS_AT once embedded). */
+/** Weighted share of the question's terms by a per-term match in 0..1. */
+function weightedShare(q: QuestionAnalysis, match: (t: QuestionTerm) => number): number {
+  let total = 0;
+  let hit = 0;
+  q.terms.forEach((t, i) => {
+    const w = q.weights[i] ?? 0;
+    total += w;
+    hit += w * match(t);
+  });
+  return total > 0 ? hit / total : 0;
+}
+
+function sentenceFeatures(c: Candidate, q: QuestionAnalysis, qStems: Set<string>, sourceScore: number, maxScore: number, passageCoverage: number): number[] {
+  let total = 0;
+  let own = 0;
+  let withContext = 0;
+  let related = 0;
+  q.terms.forEach((t, i) => {
+    const w = q.weights[i] ?? 0;
+    total += w;
+    const m = Math.max(termMatch(t, c.stems), holdsNumber(t, c) ? 1 : 0);
+    own += w * m;
+    const mc = Math.max(m, termMatch(t, c.context));
+    withContext += w * mc;
+    if (mc === 0 && (relatedIn(t, c.stems) || relatedIn(t, c.context))) related += w;
+  });
+  const strict = isStrictKind(q.kind);
+  const hasKind = q.kind !== null && holdsKind(q.kind, c.span.text);
+  let shared = 0;
+  for (const s of c.stems) if (qStems.has(s)) shared++;
+  const words = c.span.text.split(/\s+/).length;
+  // Order must match SENTENCE_FEATURES (without 'cosine').
+  return [
+    total > 0 ? own / total : 0,
+    total > 0 ? withContext / total : 0,
+    total > 0 ? related / total : 0,
+    passageCoverage,
+    strict && hasKind ? 1 : 0,
+    strict && !hasKind ? 1 : 0,
+    q.kind === 'rule' && hasKind ? 1 : 0,
+    1 / (1 + c.sourceIndex),
+    maxScore > 0 ? sourceScore / maxScore : 0,
+    c.stems.size > 0 ? shared / c.stems.size : 0,
+    words < 5 ? 1 : 0,
+    c.row ? 1 : 0,
+  ];
+}
+
+/** The answer text and citations for the chosen sentences (plus a leading sentence where needed). */
+function quote(chosen: RankedSentence[], cands: Candidate[], sources: ContextSource[]): { answer: string; citations: Citation[] } {
+  const byStart = new Map(cands.map((c) => [`${c.sourceIndex}:${c.span.start}`, c]));
+  const pieces = toPieces(
+    chosen.map((r) => byStart.get(`${r.sourceIndex}:${r.start}`)).filter((c): c is Candidate => c !== undefined),
+    sources,
+  );
   const sourceOrder: number[] = [];
   for (const c of chosen) if (!sourceOrder.includes(c.sourceIndex)) sourceOrder.push(c.sourceIndex);
-
   const parts: string[] = [];
   const citations: Citation[] = [];
   sourceOrder.forEach((si, i) => {
@@ -136,18 +221,7 @@ export async function extractAnswer(
       parts.push(`${display(cite.quote)} [${i + 1}]`);
     }
   });
-
-  return {
-    answer: parts.join(' '),
-    citations,
-    support: missesKind(cue, parts.join(' ')) ? best.coverage * (1 - (opts.kindMissPenalty ?? DEFAULT_KIND_MISS_PENALTY)) : best.coverage,
-    absent: terms.filter((t, i) => !isLightTerm(t) && (weights[i] ?? 0) >= absentWeight(cands.length)).map((t) => t.label),
-    uncovered: terms
-      .map((t, i) => ({ term: t.label, weight: Math.round((weights[i] ?? 0) * 100) / 100, held: holds(t, best) || termIn(t, best.context) }))
-      .filter((t) => !t.held)
-      .map(({ term, weight }) => ({ term, weight })),
-    cosine: best.cosine,
-  };
+  return { answer: parts.join(' '), citations };
 }
 
 /** The answer shows table rows and list items as plain text; the citation keeps the exact quote. */
@@ -162,72 +236,59 @@ export function display(quote: string): string {
     .join(' ');
 }
 
+// A line of a dotted-leader table ("Adult book overdue ........ 25p per day").
+const LEADER = /\S\s*(?:\.{4,}|…{2,}|_{4,})\s*\S/;
+
+/** Sentence spans, with each line of a multi-line table or leader block as its own record. */
+function recordSpans(text: string): SentenceSpan[] {
+  const out: SentenceSpan[] = [];
+  for (const span of splitSentences(text)) {
+    const lines = span.text.split('\n');
+    if (lines.length > 1 && lines.filter((l) => LEADER.test(l) || /^\s*\|.*\|\s*$/.test(l)).length >= Math.ceil(lines.length / 2)) {
+      let at = span.start;
+      for (const line of lines) {
+        const lead = line.length - line.trimStart().length;
+        const body = line.trim();
+        if (body) out.push({ text: body, start: at + lead, end: at + lead + body.length });
+        at += line.length + 1;
+      }
+    } else {
+      out.push(span);
+    }
+  }
+  return out;
+}
+
 /** Every quotable sentence of the context; planted instructions are never quotable. */
 export function candidates(sources: ContextSource[]): Candidate[] {
   const out: Candidate[] = [];
   sources.forEach((source, sourceIndex) => {
     const headings = headingSet(source);
-    const spans = splitSentences(source.text);
     let prev: SentenceSpan | null = null;
-    for (const span of spans) {
+    for (const span of recordSpans(source.text)) {
       if (isJunkSentence(span.text, headings) || isPlantedInstruction(span.text)) {
         prev = null;
         continue;
       }
-      const context = contentStems(`${sectionAt(source, span.start)} ${tableHeader(source.text, span)}`);
-      const ranges = numericRanges(span.text);
-      out.push({ sourceIndex, span, prev, stems: contentStems(span.text), context, ranges, coverage: 0, score: 0, cosine: null });
+      const row = LEADER.test(span.text) || span.text.includes('|');
+      const header = tableHeader(source.text, span);
+      const context = contentStems(`${sectionAt(source, span.start)} ${header} ${prev && !row ? prev.text : ''}`);
+      out.push({ sourceIndex, span, prev, stems: contentStems(span.text), context, ranges: numericRanges(span.text), row });
       prev = span;
     }
   });
   return out;
 }
 
-/**
- * BM25-style idf of each term over the candidate sentences (with their headings), as in
- * Lucene: ln(1 + (N − df + 0.5)/(df + 0.5)). A term no candidate holds weighs most.
- */
-function termWeights(terms: QuestionTerm[], cands: Candidate[], common: ReadonlySet<string> = new Set()): number[] {
-  const n = cands.length;
-  return terms.map((t) => {
-    let df = 0;
-    for (const c of cands) if (holds(t, c) || termIn(t, c.context)) df++;
-    // Missing from these candidates but common in the collection: retrieval simply did not
-    // bring its passages, so weigh it as a term found in half the candidates (idf = ln 2).
-    if (df === 0 && common.has(t.label)) return Math.LN2;
-    const idf = Math.log(1 + (n - df + 0.5) / (df + 0.5));
-    // When every candidate is on the question's topic, local idf would call the topic words
-    // worthless; a floor of ln 2 (the idf of a term in half the candidates) keeps them counting.
-    return isLightTerm(t) ? LIGHT_SHARE * Math.min(idf, Math.LN2) : Math.max(idf, Math.LN2);
-  });
-}
-
-// Framing words ("make", "bring", "first") keep a little weight: enough to break ties, too
-// little for their absence to sink an otherwise covered question.
-const LIGHT_SHARE = 0.5;
-
-function termCoverage(terms: QuestionTerm[], weights: number[], c: Candidate, contextCredit: number): number {
-  let total = 0;
-  let hit = 0;
-  terms.forEach((t, i) => {
-    const w = weights[i] ?? 0;
-    total += w;
-    if (holds(t, c)) hit += w;
-    else if (termIn(t, c.context)) hit += contextCredit * w;
-  });
-  return total > 0 ? hit / total : 0;
-}
-
-/** The sentence holds the term, or, for a bare number, states a range that contains it. */
-function holds(t: QuestionTerm, c: Candidate): boolean {
-  if (termIn(t, c.stems)) return true;
+/** A bare number in the question that falls inside a range the sentence states ("aged 9" in "under 10"). */
+function holdsNumber(t: QuestionTerm, c: Candidate): boolean {
   const only = t.alts.length === 1 && t.alts[0]?.length === 1 ? t.alts[0][0] : undefined;
   if (only === undefined || !/^\d+(?:\.\d+)?$/.test(only)) return false;
   const x = Number(only);
   return c.ranges.some(([lo, hi]) => x >= lo && x <= hi);
 }
 
-/** "30 to 59", "15–29", "60 minutes or more", "66 or over" as inclusive ranges. */
+/** "30 to 59", "15–29", "60 minutes or more", "66 or over", "under 10" as inclusive ranges. */
 export function numericRanges(text: string): [number, number][] {
   const out: [number, number][] = [];
   for (const m of text.matchAll(/(\d+(?:\.\d+)?)\s*(?:to|–|-)\s*(\d+(?:\.\d+)?)(?![:.]\d)/g)) {
@@ -235,7 +296,8 @@ export function numericRanges(text: string): [number, number][] {
     const hi = Number(m[2]);
     if (lo < hi) out.push([lo, hi]);
   }
-  for (const m of text.matchAll(/(\d+(?:\.\d+)?)\s+(?:[a-z]+\s+)?or\s+(?:more|over|above|older|longer)\b/gi)) out.push([Number(m[1]), Infinity]);
+  for (const m of text.matchAll(/(\d+(?:\.\d+)?)\s+(?:[a-z]+\s+)?(?:or|and)\s+(?:more|over|above|older|longer)\b/gi)) out.push([Number(m[1]), Infinity]);
+  for (const m of text.matchAll(/\b(?:under|below|younger than|less than)\s+(\d+(?:\.\d+)?)/gi)) out.push([0, Number(m[1]) - 1e-9]);
   return out;
 }
 
@@ -259,23 +321,6 @@ function tableHeader(text: string, span: SentenceSpan): string {
     lineStart = prevStart;
   }
   return header;
-}
-
-async function addCosine(question: string, cands: Candidate[], embedder: Embedder): Promise<void> {
-  const pool = [...cands].sort((a, b) => b.score - a.score).slice(0, MAX_EMBEDDED);
-  const vectors = await embedder.embed([question, ...pool.map((c) => c.span.text)]);
-  const qv = vectors[0];
-  if (!qv) return;
-  // A learned model's cosine is a meaning signal worth as much as word overlap; the hashing
-  // fallback mostly re-measures word overlap, so it gets less say.
-  const alpha = embedder.semantic ? 0.5 : 0.3;
-  pool.forEach((c, i) => {
-    const v = vectors[i + 1];
-    if (!v) return;
-    const cos = dot(qv, v);
-    c.cosine = cos;
-    c.score = (1 - alpha) * c.score + alpha * Math.max(0, cos);
-  });
 }
 
 interface Piece {
@@ -314,35 +359,4 @@ function dot(a: Float32Array, b: Float32Array): number {
   const n = Math.min(a.length, b.length);
   for (let i = 0; i < n; i++) s += (a[i] ?? 0) * (b[i] ?? 0);
   return s;
-}
-
-/**
- * How well the best single sentence of the context covers the question's terms, counting a
- * term found only in its headings or table header at `contextCredit`: the evidence test.
- */
-export function questionCoverage(
-  question: string,
-  sources: ContextSource[],
-  contextCredit = 0.5,
-  kindMissPenalty = DEFAULT_KIND_MISS_PENALTY,
-  commonTerms: ReadonlySet<string> = new Set(),
-): number {
-  const cands = candidates(sources);
-  if (cands.length === 0) return 0;
-  const terms = questionTerms(question);
-  if (terms.length === 0) return 0;
-  const weights = termWeights(terms, cands, commonTerms);
-  let best = 0;
-  const cue = answerCue(question);
-  for (const c of cands) {
-    c.coverage = termCoverage(terms, weights, c, contextCredit);
-    best = Math.max(best, evidence(c, cue, kindMissPenalty));
-  }
-  return best;
-}
-
-/** Topic terms of the question that no sentence or heading of the context holds. */
-export function absentTerms(question: string, sources: ContextSource[]): QuestionTerm[] {
-  const cands = candidates(sources);
-  return questionTerms(question).filter((t) => !isLightTerm(t) && !cands.some((c) => holds(t, c) || termIn(t, c.context)));
 }

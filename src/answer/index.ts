@@ -1,10 +1,10 @@
-export { ABSTAIN_TEXT, DEFAULT_THRESHOLDS, abstainReason, confidence, isAbstentionReply } from './abstain.js';
-export type { AbstainReason, AbstainThresholds, Evidence } from './abstain.js';
+export { ABSTAIN_TEXT, isAbstentionReply } from './abstain.js';
+export type { AbstainReason } from './abstain.js';
 export { createAnswerer, standaloneQuestion } from './answerer.js';
 export type { Answerer, AnswererDeps, AnswererOptions, AnswerRequest, RetrieveRequest } from './answerer.js';
 export { createCircuitBreaker } from './breaker.js';
 export type { BreakerState, CircuitBreaker, CircuitBreakerOptions } from './breaker.js';
-export { DEMO_CALIBRATION, calibrate, fitIsotonic, fitPlatt, reliabilityTable } from './calibration.js';
+export { calibrate, fitIsotonic, fitPlatt, reliabilityTable } from './calibration.js';
 export type { IsotonicMap, PlattScaling } from './calibration.js';
 export { CAUTION } from './caution.js';
 export { createClaimStream } from './claim-stream.js';
@@ -13,7 +13,12 @@ export { CompletionError, createCompletionClient } from './completion.js';
 export type { CompletionClientOptions, CompletionFailure } from './completion.js';
 export { buildContext, fitContext } from './context.js';
 export type { BuildContextOptions } from './context.js';
-export { extractAnswer } from './extractive.js';
+export { extractAnswer, chooseSentences } from './extractive.js';
+export { QUESTION_FEATURES, SENTENCE_FEATURES, decide, logistic, questionFeatures, readAnswerModel } from './evidence.js';
+export type { AnswerModel, LinearModel } from './evidence.js';
+export { FITTED_MODEL } from './fitted-model.js';
+export { createLexiconSource, parseTermsFile } from './lexicon-source.js';
+export { buildVocabulary } from './vocabulary.js';
 export type { ExtractOptions, ExtractResult } from './extractive.js';
 export { checkGrounding } from './grounding.js';
 export type { GroundedClaim, GroundingOptions, GroundingResult } from './grounding.js';
@@ -26,6 +31,7 @@ export { TOKENIZER_NAMES, borrowedTokenizer, estimateTokenizer, loadTokenizer } 
 export type { ContextTokenizer, TokenizerName } from './tokens.js';
 export type {
   AnswerClaim,
+  AnswerExplanation,
   AnswerEvent,
   AnswerLogger,
   AnswerReply,

@@ -3,7 +3,7 @@
 // rewrite is unusable) the earlier question's key terms are carried into the follow-up.
 
 import type { ChatMessage, CompletionClient } from './types.js';
-import { contentStems, contentTokens, stem } from './words.js';
+import { contentStems, contentTokens, isStopword, tokenize } from './words.js';
 
 export interface HistoryTurn {
   role: 'user' | 'assistant';
@@ -41,6 +41,7 @@ export async function rewriteQuestion(
   history: HistoryTurn[] | undefined,
   completion: CompletionClient | undefined,
   signal?: AbortSignal,
+  alternatives?: AlternativeTest,
 ): Promise<Rewrite> {
   const q = question.trim();
   const turns = (history ?? []).filter((t) => t.content.trim().length > 0);
@@ -54,7 +55,7 @@ export async function rewriteQuestion(
       if (signal?.aborted) throw err;
     }
   }
-  const offline = standaloneQuestion(q, turns);
+  const offline = standaloneQuestion(q, turns, alternatives);
   return offline === q ? { question: q } : { question: offline, method: 'key_terms' };
 }
 
@@ -81,46 +82,73 @@ function usableRewrite(reply: string, question: string): string | null {
   return line;
 }
 
+/** Tells whether two words name alternatives of one kind ("car" and "bicycle"); see `standaloneQuestion`. */
+export type AlternativeTest = (a: string, b: string) => boolean;
+
 /**
- * Offline condensation of a follow-up: the content words of the last user turn that the
- * follow-up does not already contain are put in front of it, so "and for trams?" after a
- * question about delay refunds retrieves delay-refund passages. A carried word of the same
- * kind as one the follow-up names ("trams" when it asks "and on buses?") is the thing being
- * swapped, so it is left behind; and a follow-up without its own question opener keeps the
- * previous one ("how long ..."), since it asks for the same kind of fact.
+ * Offline condensation of a follow-up: the content words of the last user turn that the follow-up
+ * does not already contain are put in front of it, so "and for trams?" after a question about
+ * delay refunds retrieves delay-refund passages. A carried word that the follow-up replaces is left
+ * behind: one in a phrase opened by the same preposition ("for an adult ticket" when it asks "and for a
+ * child ticket?"), one of the same class (a month for a month, a weekday for a weekday, a number
+ * for a number), a modifier of a noun both name ("Zone B" when it asks "what about Zone C?"), and,
+ * given `alternatives` (WordNet co-hyponyms), a word of the same kind ("tram" when it asks "and by
+ * coach?"). A follow-up without its own question opener keeps the previous one
+ * ("how long ..."), since it asks for the same kind of fact.
  */
-export function standaloneQuestion(question: string, history?: HistoryTurn[]): string {
+export function standaloneQuestion(question: string, history?: HistoryTurn[], alternatives?: AlternativeTest): string {
   const q = question.trim();
   const lastUser = [...(history ?? [])].reverse().find((t) => t.role === 'user');
   if (!lastUser) return q;
+  const prev = lastUser.content;
   const have = contentStems(q);
-  const swapped = new Set<number>();
-  CONTRASTS.forEach((row, i) => {
-    if (row.some((w) => have.has(w))) swapped.add(i);
+  const followTokens = contentTokens(q);
+  const replaced = new Set<string>();
+  // Phrases opened by a preposition the follow-up also opens a phrase with.
+  for (const prep of prepositionsOf(q)) {
+    for (const m of prev.matchAll(new RegExp(`\\b${prep}\\s+([^,.;:?!]*?)(?=\\s+(?:${PREPOSITIONS.join('|')})\\b|[,.;:?!]|$)`, 'gi'))) {
+      for (const t of contentTokens(m[1] ?? '')) replaced.add(t.stem);
+    }
+  }
+  // Tokens of a class the follow-up names too.
+  for (const cls of TOKEN_CLASSES) {
+    if (followTokens.some((t) => cls.test(t.word))) for (const t of contentTokens(prev)) if (cls.test(t.word)) replaced.add(t.stem);
+  }
+  // Modifiers next to a noun both questions name.
+  const prevTokens = tokenize(prev);
+  prevTokens.forEach((t, i) => {
+    if (!have.has(t.stem) || isStopword(t.word)) return;
+    for (const n of [prevTokens[i - 1], prevTokens[i + 1]]) if (n && !have.has(n.stem) && n.word.length <= 3) replaced.add(n.stem);
   });
   const carried: string[] = [];
   const seen = new Set<string>();
-  for (const t of contentTokens(lastUser.content)) {
+  for (const t of contentTokens(prev)) {
     if (have.has(t.stem) || seen.has(t.stem)) continue;
     seen.add(t.stem);
-    if (CONTRASTS.some((row, i) => swapped.has(i) && row.includes(t.stem))) continue;
-    carried.push(lastUser.content.slice(t.start, t.end));
+    if (replaced.has(t.stem)) continue;
+    if (alternatives && followTokens.some((f) => f.word.length > 2 && alternatives(t.word, f.word))) continue;
+    carried.push(prev.slice(t.start, t.end));
     if (carried.length >= MAX_CARRIED_WORDS) break;
   }
   if (carried.length === 0) return q;
-  const opener = OPENER.test(q) ? null : (OPENER.exec(lastUser.content.trim())?.[0] ?? null);
+  const opener = OPENER.test(q) ? null : (OPENER.exec(prev.trim())?.[0] ?? null);
   return `${opener ? `${opener.toLowerCase()} ` : ''}${carried.join(' ')} ${q}`;
 }
 
+const PREPOSITIONS = ['in', 'on', 'for', 'at', 'with', 'by', 'under', 'over', 'during', 'from', 'to', 'after', 'before'];
 
-// Words that name alternatives of one kind: a follow-up naming one replaces the other.
-const CONTRASTS: readonly string[][] = [
-  ['tram', 'bus', 'train', 'coach', 'ferry'],
-  ['adult', 'child', 'senior', 'student', 'infant'],
-  ['weekday', 'weekend', 'saturday', 'sunday'],
-  ['single', 'return', 'season'],
-].map((row) => row.map((w) => stem(w)));
+function prepositionsOf(text: string): string[] {
+  const out = new Set<string>();
+  for (const t of tokenize(text)) if (PREPOSITIONS.includes(t.word) && t.word !== 'to') out.add(t.word);
+  return [...out];
+}
+
+// Classes of token where one replaces another of the same class: general calendar and number words.
+const TOKEN_CLASSES: readonly RegExp[] = [
+  /^(?:january|february|march|april|may|june|july|august|september|october|november|december|spring|summer|autumn|fall|winter)$/i,
+  /^(?:monday|tuesday|wednesday|thursday|friday|saturday|sunday|weekday|weekend)s?$/i,
+  /^\d+(?:[.,]\d+)?$/,
+];
 
 // Openers that fix the kind of fact asked for.
-const OPENER = /^\W*(?:how (?:long|soon|quickly|much|many|far|old|often)|when|where|what time)\b/i;
-
+const OPENER = /^\W*(?:how (?:long|soon|quickly|much|many|far|old|often)|when|where|what time|who|which)\b/i;

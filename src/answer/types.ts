@@ -83,12 +83,25 @@ export interface AnswerReply extends AnswerResult {
   claims: AnswerClaim[];
   /** The raw evidence score that `confidence` calibrates, 0..1. */
   evidence: number;
+  /**
+   * True when `confidence` is calibrated (the share of such answers that were right on corpora the
+   * fit did not see); false when it is the raw score of a set-up the models were never fitted on.
+   */
+  confidenceCalibrated?: boolean;
   abstainReason?: string;
   context: ContextReport;
   /** Present when `question` is a rewrite of a follow-up. */
   rewrittenBy?: 'completion' | 'key_terms';
   /** The evidence features the abstention model weighed (see evidence.ts); internal, for evaluation. */
   features?: Record<string, number>;
+  /** Everything the decision saw, for fitting (`explain: true` requests only; never sent by the API). */
+  explanation?: AnswerExplanation;
+}
+
+export interface AnswerExplanation {
+  decision: number;
+  terms: { label: string; known: boolean; light: boolean; weight: number }[];
+  ranked: { source: string; text: string; features: number[]; p: number }[];
 }
 
 /** A context source as shown to clients while the answer is produced. */

@@ -103,11 +103,16 @@ const answer = z
   .object({
     contextBudgetTokens: z.number().int().min(64).default(1800).describe('Token budget of the sources sent to the completion model'),
     minSupport: z.number().min(0).max(1).default(0.5).describe('Share of a claim\'s content words its sources must contain'),
-    minLexicalCoverage: z.number().min(0).max(1).default(0.45).describe('Abstain when the best sentence covers less of the question\'s weighted content words (chosen on the demo question set)'),
-    minDenseScore: z.number().min(-1).max(1).default(0.5).describe('Dense similarity that also counts as evidence (learned models only)'),
-    headingCredit: z.number().min(0).max(1).default(0.5).describe('Credit for a question term found only in a sentence\'s headings or table header'),
-    kindMissPenalty: z.number().min(0).max(1).default(0.25).describe('Share of evidence lost when a how-long/how-much question meets a sentence without that kind of fact'),
-    minCoverageWithUnknownTerm: z.number().min(0).max(1).default(0.8).describe('Coverage needed when the question names a term found nowhere in the collection'),
+    termsDir: z
+      .string()
+      .nullable()
+      .default(null)
+      .describe('Folder of per-collection terms files (<collection>.json: {"groups": [[words that mean the same]]}); null = <dataDir>/terms'),
+    modelFile: z
+      .string()
+      .nullable()
+      .default(null)
+      .describe('A fitted answer model (JSON written by `sourcebound eval fit`); null uses the model shipped with the service'),
     tokenizer: z.enum(['cl100k_base', 'o200k_base', 'estimate']).default('cl100k_base').describe('Encoding the context budget is counted in; "estimate" counts about 4 characters per token'),
     rewriteWithCompletion: z.boolean().default(true).describe('Rewrite follow-up questions with the completion endpoint when one is configured (otherwise by carrying key terms)'),
   })

@@ -11,7 +11,7 @@
 import { existsSync, mkdtempSync, readdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
-import type { HistoryTurn } from '../answer/index.js';
+import type { AnswerExplanation, HistoryTurn } from '../answer/index.js';
 import { loadConfig } from '../config/index.js';
 import { createLogger } from '../logger.js';
 import { createRuntime } from '../runtime.js';
@@ -57,6 +57,7 @@ export interface QuestionOutcome {
   cited: string[];
   /** The evidence the answer step weighed (see answer/evidence.ts), for fitting and diagnosis. */
   features?: Record<string, number>;
+  explanation?: AnswerExplanation;
 }
 
 export interface Rate {
@@ -281,6 +282,8 @@ export interface EvaluateAnswersOptions {
   overrides?: Record<string, unknown>;
   /** Only the first N questions (in file order, follow-ups keep their predecessor). */
   limit?: number;
+  /** Keep each reply's evidence (features and ranked candidates) for fitting. */
+  explain?: boolean;
   /** Reports each answered question as it goes: (done, total). */
   onProgress?: (done: number, total: number) => void;
 }
@@ -305,10 +308,11 @@ export async function evaluateAnswers(opts: EvaluateAnswersOptions): Promise<Ans
       const before = q.followUpOf ? asked.get(q.followUpOf) : undefined;
       const history: HistoryTurn[] | undefined =
         q.history ?? (before ? [{ role: 'user', content: before.question }, { role: 'assistant', content: before.answer }] : undefined);
-      const r = await answerer.answer({ question: q.question, collection, ...(history ? { history } : {}) });
+      const r = await answerer.answer({ question: q.question, collection, explain: opts.explain ?? false, ...(history ? { history } : {}) });
       asked.set(q.id, { question: q.question, answer: r.answer });
       const o = scoreAnswer(q, r, (id) => rt.repo.getDocumentText(id), collection);
       if (r.features) o.features = r.features;
+      if (r.explanation) o.explanation = r.explanation;
       outcomes.push(o);
       opts.onProgress?.(outcomes.length, questions.length);
     }
@@ -325,10 +329,25 @@ export async function evaluateAnswers(opts: EvaluateAnswersOptions): Promise<Ans
   }
 }
 
-/** One JSON line per answered question: its features and whether it was answerable and correct. */
-export function writeFeatures(file: string, corpus: string, outcomes: QuestionOutcome[]): void {
+/** One JSON line per question: its labels and everything the answer step weighed (for `eval fit`). */
+export function writeFeatures(file: string, corpus: string, questions: LabelledQuestion[], outcomes: QuestionOutcome[]): void {
+  const byId = new Map(questions.map((q) => [q.id, q]));
   const lines = outcomes
-    .filter((o) => o.features && (o.correct !== null || !o.answerable))
-    .map((o) => JSON.stringify({ corpus, id: o.id, kind: o.kind, answerable: o.answerable, correct: o.correct, features: o.features }));
+    .filter((o) => o.explanation && (o.correct !== null || !o.answerable))
+    .map((o) => {
+      const q = byId.get(o.id);
+      return JSON.stringify({
+        corpus,
+        id: o.id,
+        kind: o.kind,
+        answerable: o.answerable,
+        doc: q?.doc ?? null,
+        mustContain: q?.mustContain ?? [],
+        mustContainAny: q?.mustContainAny ?? [],
+        correct: o.correct,
+        abstained: o.abstained,
+        explanation: o.explanation,
+      });
+    });
   writeFileSync(file, lines.length ? `${lines.join('\n')}\n` : '');
 }

@@ -1,4 +1,6 @@
-import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { readAnswerModel } from '../answer/index.js';
+import { fitAnswerModels, modelModule, readEvidence, type FitResult } from './fit.js';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { parseArgs } from 'node:util';
@@ -9,7 +11,7 @@ import type { LoadedDocument, SearchMode } from '../types.js';
 import { createHash } from 'node:crypto';
 import { formatRun, readCorpus, readQrels, readQueries, type CorpusDoc } from './data.js';
 import { scoreRun, type RetrievalScores } from './metrics.js';
-import { evaluateAnswers, writeFeatures, type AnswerEvalReport, type QuestionOutcome } from './answers.js';
+import { evaluateAnswers, readQuestions, writeFeatures, type AnswerEvalReport, type QuestionOutcome } from './answers.js';
 import { createRequire } from 'node:module';
 import { createRetriever, createWordNet, DEFAULT_RM3, retrieverOptions, type RetrieverOptions } from '../retrieve/index.js';
 
@@ -155,14 +157,30 @@ Options:
                        collection (default: a docs/ folder beside F, else the seed folder)
   --extractive         answer offline even when a completion endpoint is configured
   --limit N            only the first N questions
-  --features F         write each question's evidence features as JSONL (for fitting)
+  --features F         write each question's evidence as JSONL (for \`eval fit\`)
+  --corpus NAME        the corpus name recorded with --features (default: the question file's folder)
+  --model F            answer with this fitted model (e.g. one written by \`eval fit\`)
   --json               one JSON object: totals, per-kind results, reliability table
   -v, --verbose        list every miss (with --json: every outcome)
   -h, --help           this text`;
 
+const FIT_HELP = `Usage: sourcebound eval fit --features F [--features F ...] [options]
+
+Fits the answer models (sentence ranker, answer/abstain decision, confidence calibration) from the
+evidence that \`eval answers --features F\` recorded, one file per corpus, leave-one-corpus-out:
+each corpus's figures come from models fitted on the others. Needs at least two corpora.
+
+Options:
+  --features F         a features file (repeat, or separate with commas)
+  --out-dir D          write model.json (all corpora), model-without-<corpus>.json and report.json
+  --module F           also write the model as the TypeScript module the service ships (fitted-model.ts)
+  --json               print the held-out figures as JSON
+  -h, --help           this text`;
+
 const EVAL_USAGE = `Usage: sourcebound eval retrieval ...   measure retrieval on a test collection (TREC qrels)
        sourcebound eval answers ...     measure answers on a labelled question set
-Run either with --help for its options.`;
+       sourcebound eval fit ...         fit the answer models on labelled sets, leave-one-corpus-out
+Run each with --help for its options.`;
 
 /** parseArgs, with a one-line message instead of a stack trace for an unknown or malformed option. */
 type OptionSpec = Record<string, { type: 'string' | 'boolean'; short?: string; default?: string | boolean }>;
@@ -180,6 +198,7 @@ function parseOptions(command: string, args: string[], options: OptionSpec): { v
 export async function runEvalCommand(args: string[], env: Record<string, string | undefined>): Promise<number> {
   const [kind, ...rest] = args;
   if (kind === 'answers') return runAnswerEval(rest, env);
+  if (kind === 'fit') return runFit(rest);
   if (kind === '--help' || kind === '-h' || kind === 'help') {
     process.stdout.write(`${EVAL_USAGE}\n`);
     return 0;
@@ -295,11 +314,21 @@ async function runAnswerEval(args: string[], env: Record<string, string | undefi
     extractive: { type: 'boolean' },
     limit: { type: 'string' },
     features: { type: 'string' },
+    model: { type: 'string' },
+    corpus: { type: 'string' },
     json: { type: 'boolean' },
     verbose: { type: 'boolean', short: 'v' },
   });
   if (!parsed) return 2;
-  const values = parsed.values as { questions?: string; docs?: string; extractive?: boolean; limit?: string; features?: string; json?: boolean; verbose?: boolean };
+  const values = parsed.values as { questions?: string; docs?: string; extractive?: boolean; limit?: string; features?: string; model?: string; corpus?: string; json?: boolean; verbose?: boolean };
+  if (values.model !== undefined) {
+    try {
+      readAnswerModel(values.model);
+    } catch (err) {
+      process.stderr.write(`sourcebound eval answers: ${(err as Error).message}\n`);
+      return 2;
+    }
+  }
   if (!values.questions) {
     process.stderr.write('sourcebound eval answers: missing --questions F\nRun `sourcebound eval answers --help` for the options.\n');
     return 2;
@@ -325,6 +354,8 @@ async function runAnswerEval(args: string[], env: Record<string, string | undefi
       docs,
       env,
       extractive: values.extractive ?? false,
+      explain: values.features !== undefined,
+      ...(values.model !== undefined ? { overrides: { answer: { modelFile: path.resolve(values.model) } } } : {}),
       ...(limit !== undefined ? { limit } : {}),
       onProgress: (done, total) => {
         if (process.stderr.isTTY && (done % 25 === 0 || done === total)) process.stderr.write(`\ranswered ${done}/${total}${done === total ? '\n' : ''}`);
@@ -334,11 +365,11 @@ async function runAnswerEval(args: string[], env: Record<string, string | undefi
     process.stderr.write(`sourcebound eval answers: ${(err as Error).message}\n`);
     return 1;
   }
-  if (values.features) writeFeatures(values.features, path.basename(path.dirname(path.resolve(values.questions))), r.outcomes);
+  if (values.features) writeFeatures(values.features, values.corpus ?? path.basename(path.dirname(path.resolve(values.questions))), readQuestions(values.questions), r.outcomes);
   const missed = (o: QuestionOutcome): boolean => o.correct === false || (!o.answerable && !o.abstained) || o.injectionOk === false;
   if (values.json) {
     const { outcomes, ...summary } = r;
-    const slim = outcomes.map(({ features: _f, ...o }) => o);
+    const slim = outcomes.map(({ explanation: _e, ...o }) => o);
     process.stdout.write(`${JSON.stringify(values.verbose ? { ...summary, outcomes: slim } : { ...summary, missed: outcomes.filter(missed).map((o) => o.id) })}\n`);
     return 0;
   }
@@ -364,6 +395,57 @@ async function runAnswerEval(args: string[], env: Record<string, string | undefi
       lines.push(`  miss ${o.id} [${o.kind}] abstained=${o.abstained} cited=${o.cited.join(',')} :: ${o.answer.slice(0, 160).replace(/\n/g, ' ')}`);
     }
   }
+  process.stdout.write(`${lines.join('\n')}\n`);
+  return 0;
+}
+
+async function runFit(args: string[]): Promise<number> {
+  if (args.includes('--help') || args.includes('-h')) {
+    process.stdout.write(`${FIT_HELP}\n`);
+    return 0;
+  }
+  let values: { features?: string[]; 'out-dir'?: string; module?: string; json?: boolean };
+  try {
+    values = parseArgs({
+      args,
+      options: { features: { type: 'string', multiple: true }, 'out-dir': { type: 'string' }, module: { type: 'string' }, json: { type: 'boolean' } },
+    }).values;
+  } catch (err) {
+    process.stderr.write(`sourcebound eval fit: ${(err as Error).message.split('\n')[0]}\nRun \`sourcebound eval fit --help\` for the options.\n`);
+    return 2;
+  }
+  const files = (values.features ?? []).flatMap((f) => f.split(',')).filter(Boolean);
+  if (files.length === 0) {
+    process.stderr.write('sourcebound eval fit: give at least two --features files\n');
+    return 2;
+  }
+  let result: FitResult;
+  try {
+    result = fitAnswerModels(readEvidence(files));
+  } catch (err) {
+    process.stderr.write(`sourcebound eval fit: ${(err as Error).message}\n`);
+    return 1;
+  }
+  const report = { model: result.model, heldOut: result.heldOut.map((h) => h.figures) };
+  if (values['out-dir']) {
+    mkdirSync(values['out-dir'], { recursive: true });
+    writeFileSync(path.join(values['out-dir'], 'model.json'), `${JSON.stringify(result.model, null, 1)}\n`);
+    for (const h of result.heldOut) writeFileSync(path.join(values['out-dir'], `model-without-${h.corpus}.json`), `${JSON.stringify(h.model, null, 1)}\n`);
+    writeFileSync(path.join(values['out-dir'], 'report.json'), `${JSON.stringify(report, null, 1)}\n`);
+  }
+  if (values.module) writeFileSync(values.module, modelModule(result.model, `sourcebound eval fit --features ${files.map((f) => path.basename(f)).join(',')} --module ${path.basename(values.module)}`));
+  if (values.json) {
+    process.stdout.write(`${JSON.stringify(report)}\n`);
+    return 0;
+  }
+  const lines = ['held-out figures (each corpus answered by models fitted without it):'];
+  for (const f of report.heldOut) {
+    lines.push(
+      `  ${f.corpus.padEnd(22)} questions ${String(f.questions).padStart(5)}  never abstaining ${f.correctIfAlwaysAnswering.toFixed(3)}  correct ${f.correct.toFixed(3)}  false abstention ${f.falseAbstention.toFixed(3)}  unanswerable abstained ${f.unanswerableAbstained === null ? '  -  ' : f.unanswerableAbstained.toFixed(3)}`,
+    );
+    for (const b of f.reliability) lines.push(`      confidence ${b.from.toFixed(1)}-${b.to.toFixed(1)}: ${b.answers} answers, mean ${b.meanConfidence.toFixed(3)}, correct ${b.correct.toFixed(3)}`);
+  }
+  lines.push(`decision threshold (all corpora): ${result.model.decision.threshold}`);
   process.stdout.write(`${lines.join('\n')}\n`);
   return 0;
 }

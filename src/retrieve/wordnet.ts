@@ -17,6 +17,18 @@ export function packagedWordNetDir(): string {
 export interface SynonymSource {
   /** Single-word synonyms of `word`, most common sense first, never `word` itself. */
   synonyms(word: string): string[];
+  /**
+   * Words related to `word` in its most common senses: the members of its hypernym synsets up to
+   * two levels up ("puppy" → "dog"), derivationally related forms, and the content words of its
+   * gloss ("radiator" → "heater", "pipes", "hot", "water"). Looser than synonyms.
+   */
+  related?(word: string): string[];
+  /**
+   * True when the two words name alternatives of one kind: in their commonest noun senses they share
+   * a hypernym at most three levels up that is itself specific (at least five levels below the root),
+   * as "car" and "bicycle" share "wheeled vehicle" while "car" and "scissors" share only "artifact".
+   */
+  alternatives?(a: string, b: string): boolean;
 }
 
 const POS = ['noun', 'verb', 'adj', 'adv'] as const;
@@ -108,7 +120,103 @@ export function createWordNet(dir: string, opts: { senses?: number; perWord?: nu
     return forms;
   };
 
+  const pointers = (pos: Pos, offset: number): { symbol: string; offset: number; pos: Pos }[] => {
+    const line = lineAt(open(pos).data, offset);
+    const parts = line.split(' ');
+    const count = parseInt(parts[3] ?? '0', 16);
+    let at = 4 + 2 * count;
+    const pCnt = Number(parts[at]);
+    at++;
+    const out: { symbol: string; offset: number; pos: Pos }[] = [];
+    for (let i = 0; i < pCnt; i++, at += 4) {
+      const symbol = parts[at] ?? '';
+      const p = ({ n: 'noun', v: 'verb', a: 'adj', s: 'adj', r: 'adv' } as const)[(parts[at + 2] ?? '') as 'n' | 'v' | 'a' | 's' | 'r'];
+      if (p) out.push({ symbol, offset: Number(parts[at + 1]), pos: p });
+    }
+    return out;
+  };
+
+  const gloss = (pos: Pos, offset: number): string => {
+    const line = lineAt(open(pos).data, offset);
+    const bar = line.indexOf(' | ');
+    return bar < 0 ? '' : line.slice(bar + 3).split(';')[0] ?? '';
+  };
+
+  const relatedCache = new Map<string, string[]>();
+  const depthCache = new Map<number, number>();
+  const kindCache = new Map<string, Set<number>>();
+
+  /** Levels from a noun synset up to the root (the shortest hypernym path). */
+  const depth = (offset: number, guard = 0): number => {
+    const hit = depthCache.get(offset);
+    if (hit !== undefined) return hit;
+    const ups = pointers('noun', offset).filter((p) => (p.symbol === '@' || p.symbol === '@i') && p.pos === 'noun');
+    const d = ups.length === 0 || guard > 30 ? 0 : 1 + Math.min(...ups.map((u) => depth(u.offset, guard + 1)));
+    depthCache.set(offset, d);
+    return d;
+  };
+
+  const kinds = (word: string): Set<number> => {
+    const w = word.toLowerCase();
+    const hit = kindCache.get(w);
+    if (hit) return hit;
+    const out = new Set<number>();
+    const roots: number[] = [];
+    const lemma = baseForms('noun', w).find((f) => offsets('noun', f).length > 0);
+    if (lemma) roots.push(...offsets('noun', lemma).slice(0, 3));
+    // A verb reaches its nouns through derivation ("cycle" the verb → "bicycle").
+    const vlemma = baseForms('verb', w).find((f) => offsets('verb', f).length > 0);
+    if (vlemma) for (const off of offsets('verb', vlemma).slice(0, 2)) for (const p of pointers('verb', off)) if (p.symbol === '+' && p.pos === 'noun') roots.push(p.offset);
+    let level = roots;
+    for (let up = 0; up < 3; up++) {
+      const next: number[] = [];
+      for (const off of level) for (const p of pointers('noun', off)) if ((p.symbol === '@' || p.symbol === '@i') && p.pos === 'noun') next.push(p.offset);
+      for (const off of next) if (depth(off) >= 5) out.add(off);
+      level = next;
+    }
+    kindCache.set(w, out);
+    return out;
+  };
+
   return {
+    alternatives(a, b) {
+      if (a.toLowerCase() === b.toLowerCase()) return false;
+      const ka = kinds(a);
+      if (ka.size === 0) return false;
+      for (const k of kinds(b)) if (ka.has(k)) return true;
+      return false;
+    },
+    related(word) {
+      const w = word.toLowerCase();
+      const hit = relatedCache.get(w);
+      if (hit) return hit;
+      const out = new Set<string>();
+      const add = (x: string): void => {
+        if (!x.includes('_') && !x.includes('-') && x !== w && x.length > 2) out.add(x);
+      };
+      for (const pos of POS) {
+        const lemma = baseForms(pos, w).find((f) => offsets(pos, f).length > 0);
+        if (!lemma) continue;
+        for (const off of offsets(pos, lemma).slice(0, 2)) {
+          for (const g of gloss(pos, off).toLowerCase().match(/[a-z]{3,}/g) ?? []) add(g);
+          let level = [{ pos, offset: off }];
+          for (let depth = 0; depth < 2; depth++) {
+            const next: { pos: Pos; offset: number }[] = [];
+            for (const s of level) {
+              for (const p of pointers(s.pos, s.offset)) {
+                if (p.symbol === '@' || p.symbol === '@i') next.push({ pos: p.pos, offset: p.offset });
+                else if (depth === 0 && (p.symbol === '+' || p.symbol === '\\' || p.symbol === '&')) for (const x of synsetWords(p.pos, p.offset)) add(x);
+              }
+            }
+            for (const s of next) for (const x of synsetWords(s.pos, s.offset)) add(x);
+            level = next;
+          }
+        }
+      }
+      const result = [...out];
+      relatedCache.set(w, result);
+      return result;
+    },
     synonyms(word) {
       const w = word.toLowerCase();
       const hit = cache.get(w);

@@ -56,7 +56,7 @@ async function answererFor(replies: StubReply[], over: Partial<CompletionClientO
     embedder: conceptEmbedder([], 512),
     completion,
     countTokens: countWords,
-    options: { k: 8, contextBudgetTokens: 2000, minSupport: 0.5, minLexicalCoverage: 0.4, minDenseScore: 0.5, rewriteWithCompletion: false },
+    options: { k: 8, contextBudgetTokens: 2000, minSupport: 0.5, rewriteWithCompletion: false },
   });
   return { answerer, waits, stub };
 }

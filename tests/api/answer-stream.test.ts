@@ -122,7 +122,7 @@ describe('POST /v1/answer streaming from a completion endpoint, over a real sock
       embedder: conceptEmbedder([], 512),
       completion: createCompletionClient({ baseUrl: stub.baseUrl, model: 'mvt-test-model', temperature: 0, maxTokens: 200, timeoutMs: 2000, retries: 0 }),
       countTokens: countWords,
-      options: { k: 8, contextBudgetTokens: 2000, minSupport: 0.5, minLexicalCoverage: 0.4, minDenseScore: 0.5 },
+      options: { k: 8, contextBudgetTokens: 2000, minSupport: 0.5 },
     });
     const seen: { signal?: AbortSignal }[] = [];
     const deps: AppDeps = {

@@ -1,0 +1,173 @@
+// Evidence features and the two small models that weigh them: a sentence ranker (which sentence
+// holds the answer) and an answer/abstain decision (does the context answer the question at all).
+// Both are logistic regressions (Cox 1958) over a handful of interpretable features, fitted across
+// several corpora with each corpus's figures reported from the fit that did not see it
+// (`sourcebound eval fit`, docs/eval-answers.md). One threshold would not generalise: a question
+// can be well covered by words yet name a thing the collection never mentions, or be phrased in
+// everyday words yet be answered by a sentence of the right type in the best-retrieved passage.
+
+import type { RankedSentence, QuestionAnalysis } from './extractive.js';
+import { readFileSync } from 'node:fs';
+import { calibrate, type IsotonicMap } from './calibration.js';
+import { isLightTerm } from './terms.js';
+
+/** Features of a candidate sentence, in the order the ranker's weights use. */
+export const SENTENCE_FEATURES = [
+  // Rarity-weighted share of the question's terms the sentence holds (synonyms and corrections at partial credit).
+  'coverage',
+  // The same, counting terms found in its headings, its table's header row or the sentence before it.
+  'contextCoverage',
+  // Weighted share of terms not otherwise held that a related word stands for (WordNet hypernyms, glosses).
+  'relatedCoverage',
+  // Coverage of the question by the sentence's whole passage (with its headings).
+  'passageCoverage',
+  // The question asks for a precise type of fact (a sum, a duration, a date ...) and the sentence holds one.
+  'kindHeld',
+  // It asks for one and the sentence holds none.
+  'kindMissed',
+  // A yes/no question and the sentence states a rule (may, must, not, only ...).
+  'ruleHeld',
+  // 1 / (1 + rank of the sentence's passage in the retrieved context).
+  'sourceRank',
+  // The passage's fused retrieval score over the best passage's.
+  'sourceScore',
+  // Cosine between question and sentence vectors (0 when none was computed).
+  'cosine',
+  // Share of the sentence's own content words that are question terms.
+  'focus',
+  // Fewer than five words.
+  'short',
+  // A table row or a dotted-leader line.
+  'tableRow',
+] as const;
+
+/** Features of a question's best evidence, in the order the decision's weights use. */
+export const QUESTION_FEATURES = [
+  // The ranker's probability for the best sentence.
+  'bestProbability',
+  // The best sentence's own coverage and its coverage with context.
+  'bestCoverage',
+  'bestContextCoverage',
+  // The highest context coverage of any candidate (the question's topic is in the context at all).
+  'maxContextCoverage',
+  // The best sentence lacks the type of fact asked for.
+  'bestKindMissed',
+  // Rarity-weighted share of the question's topic terms that the collection never uses.
+  'unknownShare',
+  // Some topic term is unknown to the collection.
+  'unknownAny',
+  // Share of topic terms unknown to the collection with no related word in it either.
+  'strangeShare',
+  // Coverage of the question by the best sentence's whole passage.
+  'bestPassageCoverage',
+  // How far the best sentence stands above the second.
+  'margin',
+] as const;
+
+export interface LinearModel {
+  names: readonly string[];
+  weights: readonly number[];
+  bias: number;
+}
+
+export interface AnswerModel {
+  sentence: LinearModel;
+  decision: LinearModel & { threshold: number };
+  /** Maps the decision's probability to the share of such answers that were correct on held-out corpora. */
+  calibration: IsotonicMap;
+  /** Where the numbers came from. */
+  provenance: string;
+}
+
+export function logistic(model: LinearModel, x: readonly number[]): number {
+  let z = model.bias;
+  for (let i = 0; i < model.weights.length; i++) z += (model.weights[i] ?? 0) * (x[i] ?? 0);
+  return 1 / (1 + Math.exp(-z));
+}
+
+/** A question term as the decision sees it. */
+export interface WeighedTerm {
+  known: boolean;
+  /** The collection uses a word related to it. */
+  related: boolean;
+  light: boolean;
+  weight: number;
+}
+
+/** The question's terms as the decision sees them. */
+export function weighedTerms(q: Pick<QuestionAnalysis, 'terms' | 'weights'>): WeighedTerm[] {
+  return q.terms.map((t, i) => ({ known: t.known, related: t.related.length > 0, light: isLightTerm(t), weight: q.weights[i] ?? 0 }));
+}
+
+/** The question-level features from the ranked candidates (best first) and the question's terms. */
+export function questionFeatures(ranked: readonly Pick<RankedSentence, 'features' | 'p'>[], terms: readonly WeighedTerm[]): number[] {
+  const best = ranked[0];
+  const second = ranked[1];
+  let topic = 0;
+  let unknown = 0;
+  let unknownAny = 0;
+  let strange = 0;
+  for (const t of terms) {
+    if (t.light) continue;
+    topic += t.weight;
+    if (!t.known) {
+      unknown += t.weight;
+      unknownAny = 1;
+      if (!t.related) strange += t.weight;
+    }
+  }
+  const at = (name: (typeof SENTENCE_FEATURES)[number]): number => SENTENCE_FEATURES.indexOf(name);
+  let maxCtx = 0;
+  for (const r of ranked) maxCtx = Math.max(maxCtx, r.features[at('contextCoverage')] ?? 0);
+  return [
+    best?.p ?? 0,
+    best?.features[at('coverage')] ?? 0,
+    best?.features[at('contextCoverage')] ?? 0,
+    maxCtx,
+    best?.features[at('kindMissed')] ?? 0,
+    topic > 0 ? unknown / topic : 0,
+    unknownAny,
+    topic > 0 ? strange / topic : 0,
+    best?.features[at('passageCoverage')] ?? 0,
+    best ? best.p - (second?.p ?? 0) : 0,
+  ];
+}
+
+export interface Decision {
+  /** Probability that the context answers the question. */
+  p: number;
+  answer: boolean;
+  /** Calibrated probability that such an answer is correct. */
+  confidence: number;
+}
+
+export function decide(model: AnswerModel, features: readonly number[]): Decision {
+  const p = logistic(model.decision, features);
+  return { p, answer: p >= model.decision.threshold, confidence: calibrate(p, model.calibration) };
+}
+
+/** Features as a named record, for logs and evaluation output. */
+export function named(names: readonly string[], values: readonly number[]): Record<string, number> {
+  const out: Record<string, number> = {};
+  names.forEach((n, i) => (out[n] = Math.round((values[i] ?? 0) * 1e4) / 1e4));
+  return out;
+}
+
+/** Reads a fitted model written by `sourcebound eval fit`; throws naming what is wrong. */
+export function readAnswerModel(file: string): AnswerModel {
+  let m: AnswerModel;
+  try {
+    m = JSON.parse(readFileSync(file, 'utf8')) as AnswerModel;
+  } catch (err) {
+    throw new Error(`answer model ${file}: ${(err as Error).message}`);
+  }
+  const same = (a: readonly string[] | undefined, b: readonly string[]): boolean => !!a && a.length === b.length && a.every((x, i) => x === b[i]);
+  if (!m?.sentence || !same(m.sentence.names, SENTENCE_FEATURES) || m.sentence.weights?.length !== SENTENCE_FEATURES.length) {
+    throw new Error(`answer model ${file}: its sentence features are not this version's (${SENTENCE_FEATURES.join(', ')})`);
+  }
+  if (!m.decision || !same(m.decision.names, QUESTION_FEATURES) || m.decision.weights?.length !== QUESTION_FEATURES.length || typeof m.decision.threshold !== 'number') {
+    throw new Error(`answer model ${file}: its question features are not this version's (${QUESTION_FEATURES.join(', ')})`);
+  }
+  if (!Array.isArray(m.calibration?.knots)) throw new Error(`answer model ${file}: no calibration knots`);
+  return m;
+}

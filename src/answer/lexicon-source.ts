@@ -1,0 +1,97 @@
+// Per-collection lexicons for the answer step: the collection's vocabulary (rebuilt when the
+// collection changes), the operator's terms file for it (re-read when the file changes), and
+// general-language synonyms from WordNet.
+//
+// A terms file is `<termsDir>/<collection>.json`:
+//   { "groups": [["reimbursement", "repayment"], ["concession", "reduced fare"]] }
+// Each group is one meaning in the collection's trade; a question that words it one way finds
+// sentences that word it another. Validated on load; a bad file is reported and ignored.
+
+import { readFileSync, statSync } from 'node:fs';
+import path from 'node:path';
+import { z } from 'zod';
+import type { SynonymSource } from '../retrieve/wordnet.js';
+import type { Lexicon } from './terms.js';
+import { buildVocabulary, type Vocabulary } from './vocabulary.js';
+
+export const termsFileSchema = z
+  .object({
+    groups: z
+      .array(z.array(z.string().trim().min(1).max(80)).min(2).max(50))
+      .max(5000)
+      .describe('Each group lists words or phrases that mean the same in this collection'),
+  })
+  .strict();
+
+export type TermsFile = z.infer<typeof termsFileSchema>;
+
+/** Parses a terms file's text; throws an Error naming every problem. */
+export function parseTermsFile(text: string, file: string): TermsFile {
+  let raw: unknown;
+  try {
+    raw = JSON.parse(text);
+  } catch (err) {
+    throw new Error(`${file}: not valid JSON (${(err as Error).message})`);
+  }
+  const r = termsFileSchema.safeParse(raw);
+  if (!r.success) throw new Error(`${file}: ${r.error.issues.map((i) => `${i.path.join('.') || '(root)'}: ${i.message}`).join('; ')}`);
+  return r.data;
+}
+
+export interface LexiconSourceDeps {
+  /** The collection's generation: changes whenever its documents do (null for no such collection). */
+  generation(collection: string): number | null;
+  /** The texts of the collection's documents. */
+  texts(collection: string): Iterable<string>;
+  /** Folder of the operator's terms files; null for none. */
+  termsDir: string | null;
+  synonyms?: SynonymSource;
+  onWarning?: (msg: string, detail: Record<string, unknown>) => void;
+}
+
+export function createLexiconSource(deps: LexiconSourceDeps): (collection: string) => Lexicon {
+  const vocabularies = new Map<string, { generation: number; vocab: Vocabulary }>();
+  const termFiles = new Map<string, { mtimeMs: number; size: number; groups: TermsFile['groups'] }>();
+
+  const vocabulary = (collection: string): Vocabulary | undefined => {
+    const generation = deps.generation(collection);
+    if (generation === null) return undefined;
+    const hit = vocabularies.get(collection);
+    if (hit && hit.generation === generation) return hit.vocab;
+    const vocab = buildVocabulary(deps.texts(collection));
+    vocabularies.set(collection, { generation, vocab });
+    return vocab;
+  };
+
+  const groups = (collection: string): TermsFile['groups'] | undefined => {
+    if (!deps.termsDir) return undefined;
+    const file = path.join(deps.termsDir, `${collection}.json`);
+    let st: { mtimeMs: number; size: number };
+    try {
+      st = statSync(file);
+    } catch {
+      termFiles.delete(collection);
+      return undefined;
+    }
+    const hit = termFiles.get(collection);
+    if (hit && hit.mtimeMs === st.mtimeMs && hit.size === st.size) return hit.groups;
+    let parsed: TermsFile['groups'] = [];
+    try {
+      parsed = parseTermsFile(readFileSync(file, 'utf8'), file).groups;
+    } catch (err) {
+      deps.onWarning?.('terms file ignored', { file, err: (err as Error).message });
+    }
+    termFiles.set(collection, { mtimeMs: st.mtimeMs, size: st.size, groups: parsed });
+    return parsed;
+  };
+
+  return (collection) => {
+    const lex: Lexicon = {};
+    const v = vocabulary(collection);
+    if (v) lex.vocabulary = v;
+    const g = groups(collection);
+    if (g && g.length > 0) lex.groups = g;
+    if (deps.synonyms) lex.synonyms = deps.synonyms;
+    return lex;
+  };
+}

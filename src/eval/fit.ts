@@ -1,0 +1,319 @@
+// `eval fit`: fits the answer models (sentence ranker, answer/abstain decision, confidence
+// calibration) from the evidence that `eval answers --features F` records, leave-one-corpus-out.
+//
+// For every corpus, the models are fitted on the others and that corpus's figures are computed
+// with them, so each reported figure comes from a fit that did not see its corpus. The model
+// written for use is then fitted on all corpora; its calibration map comes from the held-out
+// predictions. Every corpus weighs the same in every fit, however many questions it has.
+
+import { readFileSync } from 'node:fs';
+import { chooseSentences } from '../answer/extractive.js';
+import {
+  QUESTION_FEATURES,
+  SENTENCE_FEATURES,
+  decide,
+  logistic,
+  questionFeatures,
+  type AnswerModel,
+  type LinearModel,
+  type WeighedTerm,
+} from '../answer/evidence.js';
+import { calibrate, fitIsotonic, type IsotonicMap } from '../answer/calibration.js';
+import { squash } from './answers.js';
+
+/** One question's record from a features file. */
+export interface EvidenceRecord {
+  corpus: string;
+  id: string;
+  kind: string;
+  answerable: boolean;
+  doc: string | null;
+  mustContain: string[];
+  mustContainAny: string[];
+  explanation: {
+    terms: (WeighedTerm & { label: string })[];
+    ranked: { source: string; text: string; features: number[] }[];
+  };
+}
+
+export function readEvidence(files: readonly string[]): EvidenceRecord[] {
+  const out: EvidenceRecord[] = [];
+  for (const file of files) {
+    readFileSync(file, 'utf8')
+      .split('\n')
+      .forEach((line, i) => {
+        if (!line.trim()) return;
+        const r = JSON.parse(line) as EvidenceRecord;
+        if (!r.explanation?.ranked || !Array.isArray(r.explanation.terms)) throw new Error(`${file}:${i + 1}: no explanation (write it with eval answers --features)`);
+        for (const s of r.explanation.ranked) {
+          if (s.features.length !== SENTENCE_FEATURES.length) throw new Error(`${file}:${i + 1}: sentence features from another version`);
+        }
+        out.push(r);
+      });
+  }
+  return out;
+}
+
+const baseName = (p: string): string => p.split(/[\\/]/).pop() ?? p;
+
+/** A sentence holds (one of) the expected strings and comes from the expected document. */
+function holdsAnswer(r: EvidenceRecord, s: { source: string; text: string }): boolean {
+  if (r.doc && baseName(s.source) !== baseName(r.doc)) return false;
+  const t = squash(s.text);
+  return [...r.mustContain, ...r.mustContainAny].some((m) => t.includes(squash(m)));
+}
+
+/** Whether the answer built from these ranked sentences would be scored correct. */
+function answerCorrect(r: EvidenceRecord, chosen: { source: string; text: string }[]): boolean {
+  const t = squash(chosen.map((c) => c.text).join(' '));
+  return (
+    r.mustContain.every((m) => t.includes(squash(m))) &&
+    (r.mustContainAny.length === 0 || r.mustContainAny.some((m) => t.includes(squash(m)))) &&
+    (!r.doc || chosen.some((c) => baseName(c.source) === baseName(r.doc ?? '')))
+  );
+}
+
+const scored = (r: EvidenceRecord): boolean => r.answerable && (r.doc !== null || r.mustContain.length > 0 || r.mustContainAny.length > 0);
+
+/**
+ * L2-regularised logistic regression by Newton's method (iteratively reweighted least squares),
+ * with a weight per example; the bias is not penalised.
+ */
+export function fitLogistic(names: readonly string[], x: readonly number[][], y: readonly number[], w: readonly number[], lambda = 1): LinearModel {
+  const d = names.length + 1;
+  const beta = new Array<number>(d).fill(0);
+  const row = (i: number): number[] => [1, ...(x[i] ?? [])];
+  for (let iter = 0; iter < 100; iter++) {
+    const g = new Array<number>(d).fill(0);
+    const h = Array.from({ length: d }, () => new Array<number>(d).fill(0));
+    for (let i = 0; i < x.length; i++) {
+      const xi = row(i);
+      let z = 0;
+      for (let j = 0; j < d; j++) z += (beta[j] ?? 0) * (xi[j] ?? 0);
+      const p = 1 / (1 + Math.exp(-z));
+      const wi = w[i] ?? 1;
+      const r = (y[i] ?? 0) - p;
+      const v = p * (1 - p) * wi;
+      for (let j = 0; j < d; j++) {
+        g[j]! += wi * r * (xi[j] ?? 0);
+        for (let k = 0; k < d; k++) h[j]![k]! += v * (xi[j] ?? 0) * (xi[k] ?? 0);
+      }
+    }
+    for (let j = 1; j < d; j++) {
+      g[j]! -= lambda * (beta[j] ?? 0);
+      h[j]![j]! += lambda;
+    }
+    h[0]![0]! += 1e-9;
+    const step = solve(h, g);
+    let size = 0;
+    for (let j = 0; j < d; j++) {
+      beta[j]! += step[j] ?? 0;
+      size = Math.max(size, Math.abs(step[j] ?? 0));
+    }
+    if (size < 1e-7) break;
+  }
+  const round = (v: number): number => Math.round(v * 1e4) / 1e4;
+  return { names: [...names], bias: round(beta[0] ?? 0), weights: beta.slice(1).map(round) };
+}
+
+/** Solves A·x = b by Gaussian elimination with partial pivoting (A is small and positive definite). */
+function solve(a: number[][], b: number[]): number[] {
+  const n = b.length;
+  const m = a.map((r, i) => [...r, b[i] ?? 0]);
+  for (let c = 0; c < n; c++) {
+    let piv = c;
+    for (let r = c + 1; r < n; r++) if (Math.abs(m[r]![c]!) > Math.abs(m[piv]![c]!)) piv = r;
+    [m[c], m[piv]] = [m[piv]!, m[c]!];
+    const div = m[c]![c]! || 1e-12;
+    for (let r = 0; r < n; r++) {
+      if (r === c) continue;
+      const f = m[r]![c]! / div;
+      for (let k = c; k <= n; k++) m[r]![k]! -= f * m[c]![k]!;
+    }
+  }
+  return m.map((r, i) => (r[n] ?? 0) / (r[i] || 1e-12));
+}
+
+export interface FitOptions {
+  /** Answer sentences at most, and the share of the best's probability a further one needs (as the answerer). */
+  maxSentences?: number;
+  closeRatio?: number;
+  lambda?: number;
+}
+
+interface QuestionRow {
+  r: EvidenceRecord;
+  features: number[];
+  correctIfAnswered: boolean;
+}
+
+/** Ranks each question's sentences with `ranker` and works out the question features and would-be correctness. */
+function questionRows(records: EvidenceRecord[], ranker: LinearModel, opts: FitOptions): QuestionRow[] {
+  return records.map((r) => {
+    const ranked = r.explanation.ranked.map((s) => ({ ...s, p: logistic(ranker, s.features) })).sort((a, b) => b.p - a.p);
+    const chosen = chooseSentences(ranked, opts.maxSentences ?? 3, opts.closeRatio ?? 0.6);
+    return { r, features: questionFeatures(ranked, r.explanation.terms), correctIfAnswered: scored(r) && answerCorrect(r, chosen) };
+  });
+}
+
+function fitRanker(records: EvidenceRecord[], lambda: number): LinearModel {
+  const x: number[][] = [];
+  const y: number[] = [];
+  const w: number[] = [];
+  const corpora = new Set(records.map((r) => r.corpus));
+  for (const c of corpora) {
+    const qs = records.filter((r) => r.corpus === c && scored(r) && r.explanation.ranked.some((s) => holdsAnswer(r, s)));
+    for (const r of qs) {
+      const n = r.explanation.ranked.length;
+      for (const s of r.explanation.ranked) {
+        x.push(s.features);
+        y.push(holdsAnswer(r, s) ? 1 : 0);
+        // Every corpus weighs one in all, shared by its questions, each shared by its sentences.
+        w.push((1 / corpora.size / qs.length / n) * 1000);
+      }
+    }
+  }
+  return fitLogistic(SENTENCE_FEATURES, x, y, w, lambda);
+}
+
+function fitDecision(rows: QuestionRow[], lambda: number): LinearModel & { threshold: number } {
+  const x: number[][] = [];
+  const y: number[] = [];
+  const w: number[] = [];
+  const corpora = [...new Set(rows.map((q) => q.r.corpus))];
+  for (const c of corpora) {
+    const mine = rows.filter((q) => q.r.corpus === c && (scored(q.r) || !q.r.answerable));
+    const pos = mine.filter((q) => q.r.answerable).length;
+    const neg = mine.length - pos;
+    for (const q of mine) {
+      x.push(q.features);
+      y.push(q.r.answerable ? 1 : 0);
+      // Equal corpora; within a corpus with both kinds of question, equal classes.
+      const share = pos > 0 && neg > 0 ? 0.5 / (q.r.answerable ? pos : neg) : 1 / mine.length;
+      w.push((share / corpora.length) * 100);
+    }
+  }
+  const model = fitLogistic(QUESTION_FEATURES, x, y, w, lambda);
+  // The threshold that maximises the corpora's mean balanced accuracy (answered when answerable,
+  // abstained when not; a corpus without unanswerable questions counts only the first).
+  let best = { t: 0.5, score: -Infinity };
+  for (let t = 0.05; t <= 0.951; t += 0.01) {
+    let total = 0;
+    for (const c of corpora) {
+      const mine = rows.filter((q) => q.r.corpus === c);
+      const a = mine.filter((q) => scored(q.r));
+      const u = mine.filter((q) => !q.r.answerable);
+      const answered = a.filter((q) => logistic(model, q.features) >= t).length / Math.max(1, a.length);
+      const abstained = u.filter((q) => logistic(model, q.features) < t).length / Math.max(1, u.length);
+      total += u.length > 0 ? (answered + abstained) / 2 : answered;
+    }
+    if (total > best.score + 1e-9) best = { t: Math.round(t * 100) / 100, score: total };
+  }
+  return { ...model, threshold: best.t };
+}
+
+/** Held-out figures for one corpus. */
+export interface CorpusFigures {
+  corpus: string;
+  questions: number;
+  /** Correct if it never abstained: what the sentence ranker alone achieves. */
+  correctIfAlwaysAnswering: number;
+  correct: number;
+  falseAbstention: number;
+  unanswerableAbstained: number | null;
+  reliability: { from: number; to: number; answers: number; meanConfidence: number; correct: number }[];
+}
+
+function figures(corpus: string, rows: QuestionRow[], model: AnswerModel): CorpusFigures {
+  const a = rows.filter((q) => scored(q.r));
+  const u = rows.filter((q) => !q.r.answerable);
+  const decided = rows.map((q) => ({ q, d: decide(model, q.features) }));
+  const answeredA = decided.filter(({ q, d }) => scored(q.r) && d.answer);
+  const r3 = (v: number): number => Math.round(v * 1000) / 1000;
+  const answered = decided.filter(({ q, d }) => d.answer && (scored(q.r) || !q.r.answerable));
+  const bins: CorpusFigures['reliability'] = [];
+  for (let b = 0; b < 5; b++) {
+    const from = b / 5;
+    const to = (b + 1) / 5;
+    const inBin = answered.filter(({ d }) => d.confidence >= from && (d.confidence < to || (b === 4 && d.confidence <= to)));
+    if (inBin.length === 0) continue;
+    bins.push({
+      from,
+      to,
+      answers: inBin.length,
+      meanConfidence: r3(inBin.reduce((s, x) => s + x.d.confidence, 0) / inBin.length),
+      correct: r3(inBin.filter(({ q }) => q.correctIfAnswered).length / inBin.length),
+    });
+  }
+  return {
+    corpus,
+    questions: rows.length,
+    correctIfAlwaysAnswering: r3(a.filter((q) => q.correctIfAnswered).length / Math.max(1, a.length)),
+    correct: r3(answeredA.filter(({ q }) => q.correctIfAnswered).length / Math.max(1, a.length)),
+    falseAbstention: r3((a.length - answeredA.length) / Math.max(1, a.length)),
+    unanswerableAbstained: u.length > 0 ? r3(decided.filter(({ q, d }) => !q.r.answerable && !d.answer).length / u.length) : null,
+    reliability: bins,
+  };
+}
+
+/** Calibration from held-out predictions: each corpus weighs the same. */
+function fitCalibration(points: { corpus: string; p: number; correct: boolean }[]): IsotonicMap {
+  const counts = new Map<string, number>();
+  for (const x of points) counts.set(x.corpus, (counts.get(x.corpus) ?? 0) + 1);
+  const k = counts.size || 1;
+  return fitIsotonic(
+    points.map((x) => x.p),
+    points.map((x) => x.correct),
+    points.map((x) => 100 / k / (counts.get(x.corpus) ?? 1)),
+  );
+}
+
+export interface FitResult {
+  model: AnswerModel;
+  /** Per corpus: the models fitted without it, and its figures under them. */
+  heldOut: { corpus: string; model: AnswerModel; figures: CorpusFigures }[];
+}
+
+export function fitAnswerModels(records: EvidenceRecord[], opts: FitOptions = {}): FitResult {
+  const lambda = opts.lambda ?? 1;
+  const corpora = [...new Set(records.map((r) => r.corpus))].sort();
+  if (corpora.length < 2) throw new Error('fitting leave-one-corpus-out needs evidence from at least two corpora');
+  // First pass: ranker and decision per fold, and each corpus's held-out decision probabilities.
+  const folds = corpora.map((held) => {
+    const train = records.filter((r) => r.corpus !== held);
+    const ranker = fitRanker(train, lambda);
+    const decision = fitDecision(questionRows(train, ranker, opts), lambda);
+    const rows = questionRows(
+      records.filter((r) => r.corpus === held),
+      ranker,
+      opts,
+    );
+    const points = rows
+      .filter((q) => logistic(decision, q.features) >= decision.threshold && (scored(q.r) || !q.r.answerable))
+      .map((q) => ({ corpus: held, p: logistic(decision, q.features), correct: q.correctIfAnswered }));
+    return { held, ranker, decision, rows, points };
+  });
+  const stamp = `fitted leave-one-corpus-out on ${corpora.join(', ')}`;
+  // Second pass: each fold's calibration comes from the other folds' held-out predictions.
+  const heldOut = folds.map((f) => {
+    const calibration = fitCalibration(folds.filter((g) => g.held !== f.held).flatMap((g) => g.points));
+    const model: AnswerModel = { provenance: `${stamp}; this model without ${f.held}`, sentence: f.ranker, decision: f.decision, calibration };
+    return { corpus: f.held, model, figures: figures(f.held, f.rows, model) };
+  });
+  const ranker = fitRanker(records, lambda);
+  const decision = fitDecision(questionRows(records, ranker, opts), lambda);
+  const calibration = fitCalibration(folds.flatMap((f) => f.points));
+  return { model: { provenance: `${stamp}; this model on all of them, calibrated on held-out predictions`, sentence: ranker, decision, calibration }, heldOut };
+}
+
+/** The TypeScript module that ships a fitted model with the service. */
+export function modelModule(model: AnswerModel, command: string): string {
+  return `// The answer models' numbers. Written by \`${command}\`
+// (docs/eval-answers.md); do not edit by hand.
+import type { AnswerModel } from './evidence.js';
+
+export const FITTED_MODEL: AnswerModel = ${JSON.stringify(model, null, 2)};
+`;
+}
+
+export { calibrate };
