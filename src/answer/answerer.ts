@@ -174,7 +174,7 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
 
       if (sources.length === 0) return abstain('no_hits', 'extractive');
       // The extractive candidate is always worked out: its evidence decides whether to answer at all.
-      const ex = await extractAnswer(question, sources, { embedder: deps.embedder, lexicon, ranker: model.sentence });
+      const ex = await extractAnswer(question, sources, { embedder: deps.embedder, lexicon, ranker: model.sentence, ...model.composition });
       const terms = weighedTerms(ex.question);
       const features = questionFeatures(ex.ranked, terms);
       const decision = decide(model, features);

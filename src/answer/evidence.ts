@@ -17,6 +17,12 @@ export const SENTENCE_FEATURES = [
   'coverage',
   // The same, counting terms found in its headings, its table's header row or the sentence before it.
   'contextCoverage',
+  // Coverage by its headings and table header alone.
+  'headingCoverage',
+  // Coverage by the sentence before it alone (an answer often follows the sentence naming the topic).
+  'previousCoverage',
+  // The first sentence under its heading.
+  'firstUnderHeading',
   // Weighted share of terms not otherwise held that a related word stands for (WordNet hypernyms, glosses).
   'relatedCoverage',
   // Coverage of the question by the sentence's whole passage (with its headings).
@@ -72,6 +78,8 @@ export interface LinearModel {
 
 export interface AnswerModel {
   sentence: LinearModel;
+  /** How many of the ranked sentences make the answer: the best, and others whose probability is at least closeRatio of its. */
+  composition: { maxSentences: number; closeRatio: number };
   decision: LinearModel & { threshold: number };
   /** Maps the decision's probability to the share of such answers that were correct on held-out corpora. */
   calibration: IsotonicMap;
@@ -169,5 +177,6 @@ export function readAnswerModel(file: string): AnswerModel {
     throw new Error(`answer model ${file}: its question features are not this version's (${QUESTION_FEATURES.join(', ')})`);
   }
   if (!Array.isArray(m.calibration?.knots)) throw new Error(`answer model ${file}: no calibration knots`);
+  if (!(m.composition?.maxSentences >= 1) || !(m.composition.closeRatio >= 0 && m.composition.closeRatio <= 1)) throw new Error(`answer model ${file}: no answer composition`);
   return m;
 }

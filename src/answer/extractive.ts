@@ -24,9 +24,9 @@ export interface ExtractOptions {
   lexicon?: Lexicon;
   /** The sentence ranker (default: the fitted one). */
   ranker?: LinearModel;
-  /** At most this many answer sentences (default 3). */
+  /** At most this many answer sentences (default: the fitted model's). */
   maxSentences?: number;
-  /** A further sentence is used only if its probability is at least this share of the best (default 0.6). */
+  /** A further sentence is used only if its probability is at least this share of the best (default: the fitted model's). */
   closeRatio?: number;
 }
 
@@ -62,6 +62,12 @@ interface Candidate {
   stems: Set<string>;
   /** Stems of the headings above the sentence, a table row's header, and the sentence before it. */
   context: Set<string>;
+  /** Stems of the headings and table header alone. */
+  heading: Set<string>;
+  /** Stems of the sentence before it (prose only). */
+  before: Set<string>;
+  /** The first candidate under its heading. */
+  first: boolean;
   ranges: [number, number][];
   row: boolean;
 }
@@ -129,7 +135,7 @@ export async function extractAnswer(question: string, sources: ContextSource[], 
     })
     .sort((a, b) => b.p - a.p || a.sourceIndex - b.sourceIndex || a.start - b.start);
 
-  const chosen = chooseSentences(ranked, opts.maxSentences ?? 3, opts.closeRatio ?? 0.6);
+  const chosen = chooseSentences(ranked, opts.maxSentences ?? FITTED_MODEL.composition.maxSentences, opts.closeRatio ?? FITTED_MODEL.composition.closeRatio);
   const { answer, citations } = quote(chosen, cands, sources);
   return { answer, citations, ranked: ranked.slice(0, MAX_RANKED), question: analysis };
 }
@@ -188,6 +194,9 @@ function sentenceFeatures(c: Candidate, q: QuestionAnalysis, qStems: Set<string>
   return [
     total > 0 ? own / total : 0,
     total > 0 ? withContext / total : 0,
+    weightedShare(q, (t) => termMatch(t, c.heading)),
+    weightedShare(q, (t) => termMatch(t, c.before)),
+    c.first ? 1 : 0,
     total > 0 ? related / total : 0,
     passageCoverage,
     strict && hasKind ? 1 : 0,
@@ -265,15 +274,19 @@ export function candidates(sources: ContextSource[]): Candidate[] {
   sources.forEach((source, sourceIndex) => {
     const headings = headingSet(source);
     let prev: SentenceSpan | null = null;
+    let lastSection: string | null = null;
     for (const span of recordSpans(source.text)) {
       if (isJunkSentence(span.text, headings) || isPlantedInstruction(span.text)) {
         prev = null;
         continue;
       }
       const row = LEADER.test(span.text) || span.text.includes('|');
-      const header = tableHeader(source.text, span);
-      const context = contentStems(`${sectionAt(source, span.start)} ${header} ${prev && !row ? prev.text : ''}`);
-      out.push({ sourceIndex, span, prev, stems: contentStems(span.text), context, ranges: numericRanges(span.text), row });
+      const section = sectionAt(source, span.start);
+      const heading = contentStems(`${section} ${tableHeader(source.text, span)}`);
+      const before = prev && !row ? contentStems(prev.text) : new Set<string>();
+      const context = new Set([...heading, ...before]);
+      out.push({ sourceIndex, span, prev, stems: contentStems(span.text), context, heading, before, first: section !== lastSection, ranges: numericRanges(span.text), row });
+      lastSection = section;
       prev = span;
     }
   });

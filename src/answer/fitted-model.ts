@@ -3,9 +3,10 @@ import type { AnswerModel } from './evidence.js';
 
 export const FITTED_MODEL: AnswerModel = {
   provenance: 'starting weights set by reasoning before any fit',
+  composition: { maxSentences: 3, closeRatio: 0.6 },
   sentence: {
-    names: ['coverage', 'contextCoverage', 'relatedCoverage', 'passageCoverage', 'kindHeld', 'kindMissed', 'ruleHeld', 'sourceRank', 'sourceScore', 'cosine', 'focus', 'short', 'tableRow'],
-    weights: [4, 2, 0.5, 1, 1, -2, 0.3, 0.5, 0.5, 1, 0.5, -1, 0],
+    names: ['coverage', 'contextCoverage', 'headingCoverage', 'previousCoverage', 'firstUnderHeading', 'relatedCoverage', 'passageCoverage', 'kindHeld', 'kindMissed', 'ruleHeld', 'sourceRank', 'sourceScore', 'cosine', 'focus', 'short', 'tableRow'],
+    weights: [4, 2, 0, 0, 0, 0.5, 1, 1, -2, 0.3, 0.5, 0.5, 1, 0.5, -1, 0],
     bias: -5,
   },
   decision: {

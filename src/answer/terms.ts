@@ -19,12 +19,17 @@ export interface QuestionTerm {
   near: string[];
   /** Looser relations the collection uses (WordNet hypernyms, derived forms, gloss words): a separate, weaker signal. */
   related: string[];
+  /** Surface forms of `related`, for query expansion. */
+  relatedWords?: string[];
   /** True when the collection uses the term (or one of its alternatives); false when unknown there. */
   known: boolean;
 }
 
 /** Credit for a term satisfied by a synonym or a corrected spelling rather than its own word. */
 export const NEAR_CREDIT = 0.8;
+
+// Related words added to the query per unknown question word.
+const RELATED_EXPANSIONS = 3;
 
 // A related word held by more than this share of the collection's lines says nothing about a sentence.
 const RELATED_MAX_SHARE = 0.05;
@@ -126,18 +131,22 @@ export function questionTerms(question: string, lexicon: Lexicon = {}): Question
       }
     }
     const related: string[] = [];
+    const relatedWords: string[] = [];
     if (lexicon.synonyms?.related && !/\d/.test(t.word)) {
       // Only related words the collection uses, and not its commonest ones: those would match anything.
       const cap = vocab ? Math.max(3, vocab.lines * RELATED_MAX_SHARE) : Infinity;
       for (const w of lexicon.synonyms.related(t.word)) {
         for (const c of contentTokens(w)) {
           const df = vocab ? vocab.df(c.stem) : 1;
-          if (df > 0 && df <= cap && c.stem !== t.stem && !near.includes(c.stem) && !related.includes(c.stem)) related.push(c.stem);
+          if (df > 0 && df <= cap && c.stem !== t.stem && !near.includes(c.stem) && !related.includes(c.stem)) {
+            related.push(c.stem);
+            relatedWords.push(c.word);
+          }
         }
       }
     }
     const known = inVocab || near.length > 0;
-    found.push({ at: t.start, term: { label: t.word, alts: [[t.stem]], near, related, known } });
+    found.push({ at: t.start, term: { label: t.word, alts: [[t.stem]], near, related, relatedWords, known } });
   }
   found.sort((a, b) => a.at - b.at);
   const out: QuestionTerm[] = [];
@@ -189,6 +198,17 @@ export function expansionWords(question: string, lexicon: Lexicon = {}): string[
       if (!word) continue;
       have.add(s);
       out.push(word);
+    }
+    // A word the collection never uses, and cannot be corrected to one, reaches the collection's
+    // passages only through related words it does use (WordNet: "radiator" → "heater"); a few of
+    // them, the way query expansion for out-of-vocabulary terms has long been done.
+    if (!term.known || (lexicon.vocabulary && term.alts.every((a) => a.some((st) => lexicon.vocabulary?.df(st) === 0)) && near.length === 0)) {
+      for (const w of (term.relatedWords ?? []).slice(0, RELATED_EXPANSIONS)) {
+        const st = stem(w);
+        if (have.has(st)) continue;
+        have.add(st);
+        out.push(w);
+      }
     }
   }
   return out;

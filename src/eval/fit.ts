@@ -135,10 +135,33 @@ function solve(a: number[][], b: number[]): number[] {
 }
 
 export interface FitOptions {
-  /** Answer sentences at most, and the share of the best's probability a further one needs (as the answerer). */
+  /** Answer sentences at most (as the answerer). */
   maxSentences?: number;
-  closeRatio?: number;
   lambda?: number;
+}
+
+interface Composition {
+  maxSentences: number;
+  closeRatio: number;
+}
+
+// Candidate shares of the best sentence's probability that a further answer sentence needs (1 = the best alone).
+const CLOSE_RATIOS = [1, 0.8, 0.6, 0.4, 0.2, 0];
+
+/** The composition that answers the most questions correctly on these corpora (equal weight each); ties go to shorter answers. */
+function fitComposition(records: EvidenceRecord[], ranker: LinearModel, maxSentences: number): Composition {
+  const corpora = [...new Set(records.map((r) => r.corpus))];
+  let best = { closeRatio: 1, score: -Infinity };
+  for (const closeRatio of CLOSE_RATIOS) {
+    const rows = questionRows(records, ranker, { maxSentences, closeRatio });
+    let score = 0;
+    for (const c of corpora) {
+      const a = rows.filter((q) => q.r.corpus === c && scored(q.r));
+      score += a.filter((q) => q.correctIfAnswered).length / Math.max(1, a.length);
+    }
+    if (score > best.score + 1e-9) best = { closeRatio, score };
+  }
+  return { maxSentences, closeRatio: best.closeRatio };
 }
 
 interface QuestionRow {
@@ -148,10 +171,10 @@ interface QuestionRow {
 }
 
 /** Ranks each question's sentences with `ranker` and works out the question features and would-be correctness. */
-function questionRows(records: EvidenceRecord[], ranker: LinearModel, opts: FitOptions): QuestionRow[] {
+function questionRows(records: EvidenceRecord[], ranker: LinearModel, comp: Composition): QuestionRow[] {
   return records.map((r) => {
     const ranked = r.explanation.ranked.map((s) => ({ ...s, p: logistic(ranker, s.features) })).sort((a, b) => b.p - a.p);
-    const chosen = chooseSentences(ranked, opts.maxSentences ?? 3, opts.closeRatio ?? 0.6);
+    const chosen = chooseSentences(ranked, comp.maxSentences, comp.closeRatio);
     return { r, features: questionFeatures(ranked, r.explanation.terms), correctIfAnswered: scored(r) && answerCorrect(r, chosen) };
   });
 }
@@ -279,31 +302,37 @@ export function fitAnswerModels(records: EvidenceRecord[], opts: FitOptions = {}
   const corpora = [...new Set(records.map((r) => r.corpus))].sort();
   if (corpora.length < 2) throw new Error('fitting leave-one-corpus-out needs evidence from at least two corpora');
   // First pass: ranker and decision per fold, and each corpus's held-out decision probabilities.
+  const maxSentences = opts.maxSentences ?? 3;
   const folds = corpora.map((held) => {
     const train = records.filter((r) => r.corpus !== held);
     const ranker = fitRanker(train, lambda);
-    const decision = fitDecision(questionRows(train, ranker, opts), lambda);
+    const composition = fitComposition(train, ranker, maxSentences);
+    const decision = fitDecision(questionRows(train, ranker, composition), lambda);
     const rows = questionRows(
       records.filter((r) => r.corpus === held),
       ranker,
-      opts,
+      composition,
     );
     const points = rows
       .filter((q) => logistic(decision, q.features) >= decision.threshold && (scored(q.r) || !q.r.answerable))
       .map((q) => ({ corpus: held, p: logistic(decision, q.features), correct: q.correctIfAnswered }));
-    return { held, ranker, decision, rows, points };
+    return { held, ranker, composition, decision, rows, points };
   });
   const stamp = `fitted leave-one-corpus-out on ${corpora.join(', ')}`;
   // Second pass: each fold's calibration comes from the other folds' held-out predictions.
   const heldOut = folds.map((f) => {
     const calibration = fitCalibration(folds.filter((g) => g.held !== f.held).flatMap((g) => g.points));
-    const model: AnswerModel = { provenance: `${stamp}; this model without ${f.held}`, sentence: f.ranker, decision: f.decision, calibration };
+    const model: AnswerModel = { provenance: `${stamp}; this model without ${f.held}`, composition: f.composition, sentence: f.ranker, decision: f.decision, calibration };
     return { corpus: f.held, model, figures: figures(f.held, f.rows, model) };
   });
   const ranker = fitRanker(records, lambda);
-  const decision = fitDecision(questionRows(records, ranker, opts), lambda);
+  const composition = fitComposition(records, ranker, maxSentences);
+  const decision = fitDecision(questionRows(records, ranker, composition), lambda);
   const calibration = fitCalibration(folds.flatMap((f) => f.points));
-  return { model: { provenance: `${stamp}; this model on all of them, calibrated on held-out predictions`, sentence: ranker, decision, calibration }, heldOut };
+  return {
+    model: { provenance: `${stamp}; this model on all of them, calibrated on held-out predictions`, composition, sentence: ranker, decision, calibration },
+    heldOut,
+  };
 }
 
 /** The TypeScript module that ships a fitted model with the service. */

@@ -281,7 +281,14 @@ function renderAnswer(s: Shown): void {
       b.addEventListener('click', () => openCitation(c, b));
       notes.append(el('li', { value: String(c.n) }, b));
     }
-    const confidence = el('p', { class: 'confidence' }, `Confidence: about ${Math.round(done.confidence * 100)} in 100 answers like this were right on the labelled questions.`);
+    // The figure is a share measured on other organisations' documents, not a promise about this one.
+    const confidence = el(
+      'p',
+      { class: 'confidence' },
+      done.confidenceCalibrated
+        ? `Confidence ${Math.round(done.confidence * 100)}%: on test document sets it was not tuned on, about that share of answers with evidence like this were right. It may differ on your documents.`
+        : `Evidence score ${Math.round(done.confidence * 100)} of 100 (not calibrated for this set-up).`,
+    );
     live.replaceChildren(list, el('h3', {}, 'Sources'), notes, confidence);
   }
   $('answer-tools').hidden = false;

@@ -44,6 +44,7 @@ export interface AnswerDone {
   citations: Citation[];
   claims?: Claim[];
   confidence: number;
+  confidenceCalibrated?: boolean;
   caution: string;
   question: string;
   rewrittenBy?: string;

@@ -1,6 +1,7 @@
 import { afterEach, describe, expect, it } from 'vitest';
 import { ABSTAIN_TEXT } from '../../src/answer/abstain.js';
 import { createAnswerer, standaloneQuestion, type AnswererDeps, type RetrieveRequest } from '../../src/answer/answerer.js';
+import { buildVocabulary } from '../../src/answer/vocabulary.js';
 import { CAUTION } from '../../src/answer/caution.js';
 import { createCompletionClient } from '../../src/answer/completion.js';
 import type { CompletionClient } from '../../src/answer/types.js';
@@ -8,7 +9,7 @@ import type { AnswerResult, SearchHit } from '../../src/types.js';
 import { DOCS, conceptEmbedder, countWords, hitBetween, wholeDoc } from './fixtures.js';
 import { okReply, startStub, type StubReply, type StubServer } from './stub-server.js';
 
-const options = { k: 8, contextBudgetTokens: 2000, minSupport: 0.5, minLexicalCoverage: 0.4, minDenseScore: 0.5 };
+const options = { k: 8, contextBudgetTokens: 2000, minSupport: 0.5 };
 const embedder = conceptEmbedder([], 1024);
 const docText = new Map(Object.values(DOCS).map((d) => [d.id, d.text]));
 
@@ -239,27 +240,21 @@ describe('answer rules on the offline path', () => {
     expect(r.citations.every((c) => c.documentId === 'doc-refund-2025')).toBe(true);
   });
 
-  it('does not hold a term against the answer when it is merely absent from the retrieved passages but common in the collection', async () => {
-    // Strict enough that a tram term weighed as absent everywhere would sink the answer.
-    const strict = { ...options, minLexicalCoverage: 0.6 };
-    const refundOnly = [hitBetween(DOCS.refund, 'Claims for delay refunds', 'valid claim.', { score: 0.9 })];
-    const trams = [0, 1, 2].map(() => hitBetween(DOCS.refund, 'You can claim', 'published timetable.'));
-    const queries: RetrieveRequest[] = [];
+  it('abstains when the question is about something the collection never mentions, and answers what it does', async () => {
+    const vocabulary = buildVocabulary(Object.values(DOCS).map((d) => d.text));
     const answerer = createAnswerer({
-      retrieve: async (q) => {
-        queries.push(q);
-        return q.mode === 'lexical' ? trams : refundOnly;
-      },
+      retrieve: async () => hitsFixture(),
       embedder,
       countTokens: countWords,
-      options: strict,
+      lexicon: () => ({ vocabulary }),
+      options,
     });
-    const r = await answerer.answer({ question: 'How long do I have to claim a delay refund for a tram?', collection: 'default' });
-    expect(queries.some((q) => q.mode === 'lexical' && q.query === 'tram')).toBe(true);
-    expect(r.abstained).toBe(false);
-    expect(r.answer).toContain('28 days');
-    const lonely = createAnswerer({ retrieve: async (q) => (q.mode === 'lexical' ? [] : refundOnly), embedder, countTokens: countWords, options: strict });
-    expect((await lonely.answer({ question: 'Is there wifi and a toilet on the tram?', collection: 'default' })).abstained).toBe(true);
+    const known = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    expect(known.abstained).toBe(false);
+    expect(known.answer).toContain('28 days');
+    const unknown = await answerer.answer({ question: 'Is there wifi and a toilet on board?', collection: 'default', explain: true });
+    expect(unknown.features?.unknownAny).toBe(1);
+    expect(unknown.abstained).toBe(true);
   });
 });
 
@@ -287,7 +282,7 @@ describe('createAnswerer reporting', () => {
     expect(b.context).toMatchObject({ tokenizer: 'embedder:test-concepts', estimated: true });
   });
 
-  it('returns a calibrated confidence in [0, 1] with the raw evidence beside it, and 0 when it abstains', async () => {
+  it('returns a confidence in [0, 1] with the raw evidence beside it, and 0 when it abstains', async () => {
     const { answerer } = build();
     const r = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
     expect(r.evidence).toBeGreaterThan(0);
