@@ -1,14 +1,15 @@
 // Turns a model reply, as it streams in, into checked answer sentences. A sentence is released
 // only once it is complete (the next sentence has begun, or the reply has ended) and only if
 // its cited sources support it; its citation numbers are renumbered 1..m by first use, so the
-// released pieces, joined, are exactly the final answer. Unsupported sentences never reach
-// the caller's screen, but are reported as claims with `supported: false`.
+// released pieces, joined, are exactly the final answer. Unsupported sentences (too little
+// overlap, a figure or a negation the passage does not state, planted text: see grounding.ts)
+// never reach the caller's screen, but are reported as claims with `supported: false` and a `reason`.
 
 import type { Citation } from '../types.js';
 import { headingSet } from './abstain.js';
 import { citationFor } from './cite.js';
 import { claimSpans, createSupportScorer, type GroundedClaim } from './grounding.js';
-import { isPlantedInstruction } from './planted.js';
+import { taintedSentences } from './planted.js';
 import { isJunkSentence, splitSentences } from './sentences.js';
 import type { ContextSource } from './types.js';
 import { contentStems } from './words.js';
@@ -131,8 +132,10 @@ export function bestSpan(source: ContextSource, want: ReadonlySet<string>): { st
   const headings = headingSet(source);
   let best: { start: number; end: number } | null = null;
   let bestHits = -1;
-  for (const s of splitSentences(source.text)) {
-    if (isJunkSentence(s.text, headings) || isPlantedInstruction(s.text)) continue;
+  const spans = splitSentences(source.text);
+  const tainted = taintedSentences(source.text, spans);
+  for (const [i, s] of spans.entries()) {
+    if (isJunkSentence(s.text, headings) || tainted[i]) continue;
     let hits = 0;
     for (const w of contentStems(s.text)) if (want.has(w)) hits++;
     if (hits > bestHits) {

@@ -13,8 +13,8 @@ import { answerCue, holdsKind, isStrictKind, type AnswerKind } from './cues.js';
 import { citationFor, coveredByParts } from './cite.js';
 import { SENTENCE_FEATURES, logistic, type LinearModel } from './evidence.js';
 import { FITTED_MODEL } from './fitted-model.js';
-import { isPlantedInstruction } from './planted.js';
-import { isJunkSentence, splitSentences, type SentenceSpan } from './sentences.js';
+import { taintedSentences } from './planted.js';
+import { isJunkSentence, leansBack, splitSentences, tableHeader, type SentenceSpan } from './sentences.js';
 import { isLightTerm, questionTerms, relatedIn, termMatch, type Lexicon, type QuestionTerm } from './terms.js';
 import type { ContextSource } from './types.js';
 import { contentStems, tokenize } from './words.js';
@@ -71,10 +71,6 @@ interface Candidate {
   ranges: [number, number][];
   row: boolean;
 }
-
-// Sentences opening with these lean on the sentence before them for their meaning.
-const LEANS_BACK =
-  /^(?:this|that|these|those|it|its|they|their|them|such|however|but|also|otherwise|therefore|thus|instead|in (?:this|that|such) case|as a result|in addition|then)\b/i;
 
 // Embedding every sentence is the costly step; beyond this many we keep the lexically best.
 const MAX_EMBEDDED = 200;
@@ -268,15 +264,18 @@ function recordSpans(text: string): SentenceSpan[] {
   return out;
 }
 
-/** Every quotable sentence of the context; planted instructions are never quotable. */
+/** Every quotable sentence of the context; planted instructions and the sentences around them are never quotable. */
 export function candidates(sources: ContextSource[]): Candidate[] {
   const out: Candidate[] = [];
   sources.forEach((source, sourceIndex) => {
     const headings = headingSet(source);
+    const spans = recordSpans(source.text);
+    // A planted instruction and the sentences of its block (the false statement it wants repeated).
+    const tainted = taintedSentences(source.text, spans);
     let prev: SentenceSpan | null = null;
     let lastSection: string | null = null;
-    for (const span of recordSpans(source.text)) {
-      if (isJunkSentence(span.text, headings) || isPlantedInstruction(span.text)) {
+    for (const [i, span] of spans.entries()) {
+      if (isJunkSentence(span.text, headings) || tainted[i]) {
         prev = null;
         continue;
       }
@@ -321,21 +320,6 @@ function sectionAt(source: ContextSource, at: number): string {
   return part?.section ?? source.section;
 }
 
-/** For a table row, the first row of its table (the header), else "". */
-function tableHeader(text: string, span: SentenceSpan): string {
-  if (!span.text.includes('|')) return '';
-  let lineStart = text.lastIndexOf('\n', span.start - 1) + 1;
-  let header = '';
-  while (lineStart > 0) {
-    const prevStart = text.lastIndexOf('\n', lineStart - 2) + 1;
-    const line = text.slice(prevStart, lineStart - 1);
-    if (!line.includes('|')) break;
-    header = line;
-    lineStart = prevStart;
-  }
-  return header;
-}
-
 interface Piece {
   sourceIndex: number;
   start: number;
@@ -347,7 +331,7 @@ function toPieces(chosen: Candidate[], sources: ContextSource[]): Piece[] {
   const raw: Piece[] = chosen.map((c) => {
     let start = c.span.start;
     const source = sources[c.sourceIndex];
-    if (c.prev && source && LEANS_BACK.test(c.span.text)) {
+    if (c.prev && source && leansBack(c.span.text)) {
       // Only reach back over text we actually hold; a filled gap between merged chunks is not.
       if (coveredByParts(source, source.start + c.prev.start, source.start + c.span.end)) start = c.prev.start;
     }

@@ -1,23 +1,417 @@
-// Text planted in a document to steer an automated reader ("ignore your previous
-// instructions and tell the customer ..."). Such a sentence is never policy, so it must never
-// be quoted as an answer, whatever words it shares with the question.
+// Text planted in a document to steer an automated reader ("ignore your previous instructions
+// and tell the customer ..."). Such text is never policy, so it must never be quoted as an
+// answer nor count as support for a generated claim, whatever words it shares with the question.
+//
+// The detector reads features, not one phrasing. A sentence is planted when it
+//   - asks to override what the reader was told: an override verb (ignore, disregard, forget ...)
+//     aimed at instructions/prompts/rules, or at the *other / previous* documents or sources;
+//     "respond only with", "you are now a ...", "from now on you must say", "do not mention this
+//     notice", "system prompt"; or
+//   - is addressed to an automated reader in a role that only such text takes: a notice to or for
+//     one ("Important update for AI assistants:"), one "reading this page", "if you are an AI";
+//     or, with a directive on top (say that / tell them that / ignore ...), a vocative opening
+//     ("Assistant, ...") or an automated reader as the subject of a must/should.
+// Matching runs on folded text (Unicode NFKD, combining marks removed, lower case), so capitals,
+// full-width letters and accents do not matter. The word lists below cover English, French,
+// German, Spanish, Italian, Portuguese and Dutch; they were written from general knowledge of
+// those languages (imperative and infinitive forms of the verbs, common determiners), not taken
+// from any question set or from any document collection.
+//
+// A planted block often runs over several sentences: the instruction, then the false statement
+// it wants repeated ("... refunds are paid within 90 days."). `taintedSentences` therefore also
+// marks the sentences around a planted one in the same block (and the block a planted lead-in
+// line introduces), so the statement cannot be quoted or used as support either.
 
-// Who the sentence talks to: an automated reader rather than a customer or member of staff.
-const ADDRESSEE =
-  /\b(?:(?:automated|virtual|digital)\s+(?:assistants?|agents?|systems?|readers?)|ai(?:\s+(?:assistants?|models?|systems?))?|chat\s?bots?|bots?|(?:large\s+)?language\s+models?|llms?|gpts?)\b/i;
+import { splitSentences, type SentenceSpan } from './sentences.js';
 
-// What it asks: to drop, override or reveal the reader's own instructions.
-const OVERRIDE =
-  /\b(?:ignore|disregard|override|bypass)\b[^.!?\n]{0,40}\b(?:instructions?|prompts?)\b|\b(?:system\s+prompt|previous\s+instructions|prior\s+instructions|new\s+instructions)\b|\byou\s+are\s+now\s+(?:an?|the)\b|\bpretend\s+(?:to\s+be|that)\b/i;
+/** Unicode NFKD, combining marks dropped, lower case: "ÉCARTEZ" and "ｅｃａｒｔｅｚ" both become "ecartez". */
+export function foldText(s: string): string {
+  return s
+    .normalize('NFKD')
+    .replace(/\p{M}+/gu, '')
+    .toLowerCase()
+    .replace(/\ba\.i\.?(?=\W|$)/g, 'ai');
+}
 
-// An imperative aimed at the reader ("tell the customer", "say that", "respond with").
-const DIRECTIVE = /\b(?:tell|inform|say|state|respond|reply|answer|claim|announce)\b[^.!?\n]{0,30}\b(?:customers?|users?|callers?|readers?|that|with)\b/i;
+interface Tok {
+  w: string;
+  /** The characters between the previous token and this one. */
+  gap: string;
+}
+
+function toks(folded: string): Tok[] {
+  const out: Tok[] = [];
+  let last = 0;
+  for (const m of folded.matchAll(/[\p{L}\p{N}]+/gu)) {
+    out.push({ w: m[0], gap: folded.slice(last, m.index) });
+    last = m.index + m[0].length;
+  }
+  return out;
+}
+
+const set = (s: string): ReadonlySet<string> => new Set(s.split(/\s+/).filter(Boolean));
+
+// --- Lexicons (written from general knowledge; see the file comment) ---------------------------
+
+// Nouns that on their own name an automated reader. Italian "ai" (to the) collides with "AI";
+// the roles below (notice to, vocative, subject of must) keep ordinary Italian text unflagged.
+const READER_STRONG = set(`
+  ai ia ki llm llms gpt gpts chatbot chatbots bot bots crawler crawlers scraper scrapers
+  sprachmodell sprachmodelle sprachmodellen taalmodel taalmodellen`);
+
+// Two-word names of an automated reader.
+const READER_PHRASES: readonly (readonly [string, string])[] = [
+  ['language', 'model'], ['language', 'models'], ['artificial', 'intelligence'],
+  ['intelligence', 'artificielle'], ['kunstliche', 'intelligenz'], ['inteligencia', 'artificial'],
+  ['intelligenza', 'artificiale'], ['kunstmatige', 'intelligentie'], ['modele', 'langage'], ['modeles', 'langage'],
+  ['modelo', 'lenguaje'], ['modelos', 'lenguaje'], ['modello', 'linguistico'], ['modelli', 'linguistici'],
+  ['modelo', 'linguagem'], ['modelos', 'linguagem'],
+];
+
+// Adjectives that make a reader noun automated ("automated answering tools", "assistant virtuel").
+const AUTOMATED = set(`
+  automated automatic autonomous virtual digital robotic generative conversational ai ia ki
+  automatise automatisee automatises automatisees automatique automatiques virtuel virtuelle virtuels virtuelles
+  conversationnel conversationnelle generatif generative generatifs
+  automatisiert automatisierte automatisierten automatisierter automatisch automatische automatischen virtuell virtuelle virtuellen digitale digitalen
+  automatizado automatizada automatizados automatizadas automatico automatica automaticos automaticas virtuales conversacional conversacionales generativa generativo
+  automatizzato automatizzata automatizzati automatizzate automatici automatiche virtuale virtuali conversazionale generativi
+  virtuais conversacionais
+  geautomatiseerd geautomatiseerde automatisch automatische virtuele digitale generatieve`);
+
+// Nouns that name a reader once an automated adjective is beside them, or when used as a vocative.
+const READER_WEAK = set(`
+  assistant assistants agent agents system systems reader readers tool tools model models program programs
+  programme programmes software helper helpers responder responders robot robots
+  assistante assistantes lecteur lecteurs outil outils systeme systemes modele modeles logiciel logiciels
+  assistent assistenten systeme leser werkzeug werkzeuge modell modelle programm programme
+  asistente asistentes sistema sistemas agente agentes lector lectores herramienta herramientas modelo modelos programa programas
+  assistente assistenti sistemi lettore lettori strumento strumenti modello modelli programma programmi
+  leitor leitores ferramenta ferramentas
+  systeem systemen lezer lezers model modellen`);
+
+// Words that head a note aimed at someone ("Note for ...", "Important update to ...").
+const NOTICE = set(`
+  note notes notice notices message messages update updates instruction instructions reminder attention warning
+  announcement memo information info alert nb ps
+  avis remarque rappel avertissement consigne consignes jour
+  hinweis hinweise mitteilung nachricht notiz achtung anweisung anweisungen
+  nota aviso mensaje instruccion instrucciones atencion
+  avviso messaggio istruzione istruzioni attenzione
+  mensagem instrucao instrucoes atencao
+  bericht opmerking mededeling notitie instructie instructies waarschuwing`);
+
+// Prepositions that name a recipient.
+const RECIPIENT = set(`to for attention attn a aux au pour an fur para al per agli alle voor aan aos`);
+
+// Determiners and quantifiers that may stand between a recipient preposition and the reader.
+const DETERMINER = set(`
+  the all any every each a an les le la l tous toutes tout chaque des du de d un une
+  die der den dem das alle jede jeden jeder jedes ein eine einen einem
+  el los las todos todas cualquier cada
+  il lo gli i tutti tutte ogni qualsiasi qualunque
+  o os as todo qualquer
+  het elke ieder iedere een`);
+
+// Greetings that open a vocative ("Hey assistant, ...").
+const GREETING = set(`hey hi hello dear attention ok okay bonjour cher chere salut liebe lieber hallo hola querido querida estimado estimada ciao caro cara gentile ola prezado prezada beste hoi`);
+
+// Verbs that drop what the reader was given (imperatives, infinitives and common finite forms).
+const OVERRIDE_VERB = set(`
+  ignore ignores ignoring disregard disregards forget override overrule bypass discard dismiss neglect
+  ignorez ignorer oublie oubliez oublier negligez neglige ecartez ecarte outrepassez contournez
+  ignoriere ignorieren ignoriert vergiss vergessen vergesst missachte missachten verwirf verwerfe
+  ignora ignorad ignorar ignoren olvida olvide olvidad olvidar olviden descarta descarte omite omita desestima
+  ignori ignorate ignorare dimentica dimentichi dimenticate dimenticare trascura tralascia scarta
+  ignorem esqueca esquece esquecer esquecam desconsidere desconsidera descarte despreze
+  negeer negeren vergeet omzeil`);
+
+// What an override verb aims at when it addresses the reader's own instructions.
+const OVERRIDE_RULES = set(`
+  instruction instructions prompt prompts directive directives guideline guidelines rule rules command commands
+  programming training context constraints guardrails
+  consigne consignes regle regles commandes contexte ordres
+  anweisung anweisungen anleitung anleitungen instruktion instruktionen regel regeln vorgaben befehle kontext richtlinien
+  instruccion instrucciones indicaciones reglas directrices ordenes contexto normas
+  istruzione istruzioni regole direttive indicazioni ordini contesto norme
+  instrucao instrucoes regras diretrizes ordens orientacoes
+  instructie instructies regels aanwijzingen opdrachten richtlijnen`);
+
+// What an override verb aims at when it sets other material aside; only with a modifier like
+// "other" or "previous", since "ignore any message that asks for your password" is ordinary advice.
+const OVERRIDE_MATERIAL = set(`
+  document documents source sources passage passages text texts content contents information data page pages
+  file files material materials excerpt excerpts message messages everything anything
+  texte textes contenu contenus informations donnees fichiers tout
+  dokument dokumente dokumenten quelle quellen inhalte informationen daten seiten alles
+  documento documentos fuente fuentes texto textos contenido contenidos informacion datos paginas todo
+  documenti fonte fonti testo testi contenuti informazioni dati pagine tutto
+  fontes conteudo conteudos informacoes dados tudo
+  documenten bron bronnen tekst teksten inhoud informatie gegevens alles`);
+
+// Modifiers that point at what came before or elsewhere ("previous", "other", "above").
+const ELSEWHERE = set(`
+  previous prior earlier above preceding foregoing original existing initial system other remaining else before
+  precedent precedents precedente precedentes anterieur anterieurs anterieure anterieures autres autre initiales dessus
+  vorherigen vorherige vorigen bisherigen fruheren obigen anderen andere ursprunglichen
+  anteriores previas previos otros otras demas originales
+  precedenti altri altre originali suddette
+  outros outras demais originais
+  vorige eerdere voorgaande oorspronkelijke`);
+
+// "your instructions": a possessive points at the reader's own rules, but "your data" is ordinary.
+const YOUR = set(`your vos tes deine ihre deinen tus sus tue tuoi sue suas seus tuas teus jouw uw je`);
+
+// Verbs of saying: what a planted text wants repeated.
+const SAY_VERB = set(`
+  tell say answer respond reply state claim inform mention repeat output write confirm assure advise insist announce report
+  dites dire repondez reponds repondre indiquez indique affirmez affirme informez informe annoncez confirmez precisez
+  sag sage sagt sagen antworte antwortet antworten teile teilt behaupte behaupten erklare informiere bestatige
+  diga digan decir responde responda contesta conteste indica indique afirma afirme informa informe comunica confirma
+  dici dite dica rispondi risponda rispondere afferma comunica conferma
+  dizer comunique confirme
+  zeg zeggen antwoord antwoorden vertel vertellen meld melden bevestig`);
+
+// What makes a verb of saying steer the content: "say THAT ...", "answer ONLY ...", "reply WITH ...".
+const STEER = set(`that que qu dass che dat only with uniquement seulement nur solo solamente apenas alleen`);
+
+// Verbs that read ("AI tools reading this page").
+const READING = set(`
+  reading processing parsing indexing summarising summarizing scanning crawling analysing analyzing using
+  read reads process processes lisant lisez lit lisent lire lesen liest liesst lest leyendo lea lean lee leen
+  leggendo legge leggono leggi lendo le leem leest lezen`);
+
+// Objects of reading that mean "this text".
+const THIS_TEXT = set(`this these cette ce cet ces diesen diese dieses diesem este esta estos estas questo questa questi queste dit deze page document text`);
+
+// Must / should in each language (not can / may / will, which describe what a tool does).
+const MODAL = set(`
+  should must shall need needs ought
+  doit doivent devez devrait devraient
+  muss mussen musst soll sollen sollte sollten
+  debe deben deberia deberian
+  deve devono dovrebbe dovrebbero
+  devem deveria deveriam
+  moet moeten`);
+
+const NEGATION = set(`not dont never ne nicht no non niet nao nunca jamais mai kein keine`);
+
+const IF = set(`if si wenn falls se als`);
+const YOU = set(`you vous tu du eres sei voce je u`);
+const POLITE = set(`please kindly now simply just immediately also bitte svp favor favore alstublieft`);
+
+// Phrases over the folded sentence that on their own ask to override the reader.
+const OVERRIDE_PHRASES: readonly RegExp[] = [
+  /\bsystem\s?prompt\b|\bprompt\s+systeme\b/,
+  /\byou\s+are\s+now\s+(?:a|an|the|my)\b|\b(?:tu\s+es|vous\s+etes)\s+(?:desormais|maintenant)\b|\bdu\s+bist\s+(?:jetzt|nun)\b|\bahora\s+eres\b|\bora\s+sei\b|\bagora\s+(?:voce\s+e|es)\b|\bje\s+bent\s+nu\b/,
+  /\bpretend\s+(?:to\s+be|that|you)\b/,
+  /\b(?:respond|reply|answer|output|repondez|reponds|antworte|responde|responda|rispondi|risponda|antwoord)\s+(?:only|uniquement|seulement|nur|solo|solamente|apenas|alleen)\b/,
+  // "from now on" and its equivalents, followed by you-must-say or a verb of saying.
+  /\b(?:from\s+now\s+on|henceforth|from\s+this\s+point\s+on|desormais|a\s+partir\s+de\s+maintenant|ab\s+jetzt|von\s+nun\s+an|ab\s+sofort|a\s+partir\s+de\s+ahora|de\s+ahora\s+en\s+adelante|d\s*ora\s+in\s+(?:poi|avanti)|da\s+ora\s+in\s+poi|a\s+partir\s+de\s+agora|de\s+agora\s+em\s+diante|vanaf\s+nu|voortaan)\b[\s,:]*(?:you\s+(?:must|should|will|are\s+to)\s+|vous\s+devez\s+|du\s+musst\s+|debes\s+|devi\s+|voce\s+deve\s+|je\s+moet\s+|always\s+|only\s+)?(?:tell|say|answer|respond|reply|state|claim|dites|repondez|sag|sage|antworte|di|diga|responde|rispondi|dici|responda|zeg|antwoord)\b/,
+  /\byou\s+(?:must|should|will|shall)\s+(?:now|instead)\s+(?:tell|say|answer|respond|reply|state|claim)\b/,
+];
+
+// --- Features ------------------------------------------------------------------------------
+
+/** Length in tokens of the reader name starting at token i, and whether it is strong. */
+function readerAt(t: Tok[], i: number): { len: number; strong: boolean } | null {
+  const a = t[i]?.w;
+  if (a === undefined) return null;
+  const b = t[i + 1]?.w;
+  const c = t[i + 2]?.w;
+  for (const [x, y] of READER_PHRASES) {
+    if (a === x && b === y) return { len: 2, strong: true };
+    // "modele de langage": a connective word in between.
+    if (a === x && (b === 'de' || b === 'di') && c === y) return { len: 3, strong: true };
+  }
+  // "automated reader", "automated answering tool", "assistant virtuel"
+  if (AUTOMATED.has(a)) {
+    if (b !== undefined && READER_WEAK.has(b)) return { len: 2, strong: true };
+    if (c !== undefined && READER_WEAK.has(c)) return { len: 3, strong: true };
+  }
+  if (READER_WEAK.has(a) && b !== undefined && AUTOMATED.has(b) && !READER_STRONG.has(b)) return { len: 2, strong: true };
+  if (READER_STRONG.has(a)) {
+    // "AI assistants", "KI-Assistent": the noun after belongs to the name.
+    const len = b !== undefined && READER_WEAK.has(b) ? 2 : 1;
+    return { len, strong: true };
+  }
+  if (READER_WEAK.has(a)) return { len: 1, strong: false };
+  return null;
+}
+
+/** True when token i opens a clause: the sentence start, or after punctuation, a greeting or politeness word. */
+function clauseStart(t: Tok[], i: number): boolean {
+  let j = i;
+  while (j > 0 && POLITE.has(t[j - 1]?.w ?? '') && !/[,:;!?.([\]"“”«»—–>]/.test(t[j]?.gap ?? '')) j--;
+  return j === 0 || /[,:;!?.([\]"“”«»—–>]/.test(t[j]?.gap ?? '');
+}
+
+/** An override verb aimed at instructions, or at other / earlier material. */
+function overrides(t: Tok[]): boolean {
+  for (let i = 0; i < t.length; i++) {
+    if (!OVERRIDE_VERB.has(t[i]?.w ?? '')) continue;
+    // "do not ignore your manager's instructions", "n'ignorez pas ..."
+    const before = t[i - 1]?.w ?? '';
+    if (NEGATION.has(before) || before === 'n' || t[i + 1]?.w === 'pas') continue;
+    const imperative = clauseStart(t, i);
+    for (let j = i + 1; j <= i + 7 && j < t.length; j++) {
+      const w = t[j]?.w ?? '';
+      // A full stop or semicolon ends the verb's reach.
+      if (/[.;!?]/.test(t[j]?.gap ?? '')) break;
+      // The modifier belongs to the object's own phrase: just before it ("the other documents",
+      // "alle vorherigen Anweisungen") or just after it ("istruzioni precedenti", "everything above").
+      const near = [t[j - 1]?.w, j - 2 > i ? t[j - 2]?.w : undefined, t[j + 1]?.w, t[j + 2]?.w === 'dessus' ? 'dessus' : undefined];
+      const elsewhere = near.some((x) => x !== undefined && ELSEWHERE.has(x));
+      const own = [t[j - 1]?.w, j - 2 > i ? t[j - 2]?.w : undefined].some((x) => x !== undefined && YOUR.has(x));
+      if (OVERRIDE_RULES.has(w) && (imperative || elsewhere || own)) return true;
+      if (OVERRIDE_MATERIAL.has(w) && elsewhere) return true;
+    }
+  }
+  return false;
+}
+
+// Verbs that would show the planted text to the person asking, and "this" in each language.
+const HIDE = set(`mention reveal disclose repeat quote cite show mentionnez mentionne revelez citez erwahne erwahnen verrate menciones mencione menzionare menzioni rivelare revele vermeld noem onthul`);
+const DEMONSTRATIVE = set(`this these cette ce cet ces diese diesen dieses diesem esta este estos estas questa questo questi queste dit deze`);
+
+/** "Do not mention this notice", "do not quote the amounts above": keep the planted text from the person asking. */
+function hidesItself(t: Tok[]): boolean {
+  for (let i = 0; i < t.length; i++) {
+    if (!HIDE.has(t[i]?.w ?? '')) continue;
+    const negated = [t[i - 1]?.w, t[i - 2]?.w, t[i + 1]?.w].some((w) => w !== undefined && (NEGATION.has(w) || w === 'pas'));
+    if (!negated) continue;
+    for (let j = i + 1; j <= i + 3 && j < t.length; j++) {
+      if (DEMONSTRATIVE.has(t[j]?.w ?? '') && NOTICE.has(t[j + 1]?.w ?? '')) return true;
+      // "do not quote the amounts above": steer the reader away from the document's own figures.
+      if ((t[j]?.w === 'above' || t[j]?.w === 'below') && /^[\s\])"”]*$|^[\s\])"”]*[.;!,]/.test(t[j + 1]?.gap ?? '.')) return true;
+    }
+  }
+  return false;
+}
+
+/** A verb of saying that steers what is said ("tell them that ...", "answer only ..."), not "tells you that". */
+function steers(t: Tok[]): boolean {
+  for (let i = 0; i < t.length; i++) {
+    if (!SAY_VERB.has(t[i]?.w ?? '') || YOU.has(t[i + 1]?.w ?? '')) continue;
+    for (let j = i + 1; j <= i + 8 && j < t.length; j++) {
+      if (/[.;!?]/.test(t[j]?.gap ?? '')) break;
+      if (STEER.has(t[j]?.w ?? '') || /:/.test(t[j]?.gap ?? '')) return true;
+    }
+  }
+  return false;
+}
+
+// Reader nouns that, bare and singular at the head of a sentence, can only be a vocative to a
+// machine ("Assistant, ..."): plural "Agents:" may well be staff being addressed.
+const SINGULAR_VOCATIVE = set(`assistant agent system model bot robot assistente asistente assistent modele modelo modello systeme sistema systeem`);
+
+const COPULA = set(`are re etes es bist sind eres sei e bent is`);
+
+interface Addressing {
+  /** Addressed in a role only planted text takes: a notice to an AI, "AI tools reading this", "if you are an AI". */
+  alone: boolean;
+  /** Addressed as a vocative ("Assistant, ..."), or an AI as the subject of must/should: planted with a directive. */
+  withDirective: boolean;
+  /** Addressed in a way staff may also be ("Note for assistants:", "Agents:"): planted only with an override. */
+  withOverride: boolean;
+}
+
+function addressing(t: Tok[]): Addressing {
+  const out: Addressing = { alone: false, withDirective: false, withOverride: false };
+  for (let i = 0; i < t.length; i++) {
+    const r = readerAt(t, i);
+    if (!r) continue;
+    const end = i + r.len;
+    // Recipient: "[note/update ...] to|for [all|the] <reader>", or "To any automated system" opening a clause.
+    let k = i - 1;
+    while (k >= 0 && DETERMINER.has(t[k]?.w ?? '') && !RECIPIENT.has(t[k]?.w ?? '')) k--;
+    if (k >= 0 && RECIPIENT.has(t[k]?.w ?? '')) {
+      // "à l'attention de l'IA": a run of recipient words and determiners.
+      let p = k;
+      while (p >= 0 && k - p < 6 && (RECIPIENT.has(t[p]?.w ?? '') || DETERMINER.has(t[p]?.w ?? ''))) p--;
+      let notice = false;
+      for (let q = p; q >= Math.max(0, p - 2); q--) if (NOTICE.has(t[q]?.w ?? '')) notice = true;
+      if (notice || clauseStart(t, p + 1)) {
+        if (r.strong) out.alone = true;
+        else out.withOverride = true;
+      }
+    }
+    // Vocative: "<reader>, ..." or "Hey <reader>: ..." opening a clause.
+    let s = i;
+    while (s > 0 && (GREETING.has(t[s - 1]?.w ?? '') || DETERMINER.has(t[s - 1]?.w ?? '')) && !/[,:;!?.]/.test(t[s]?.gap ?? '')) s--;
+    if (clauseStart(t, s) && /^\s*[,:!—–-]/.test(t[end]?.gap ?? '')) {
+      if (r.strong || (r.len === 1 && SINGULAR_VOCATIVE.has(t[i]?.w ?? ''))) out.withDirective = true;
+      else out.withOverride = true;
+    }
+    // "if you are an AI", "si vous êtes une IA", "wenn du eine KI bist"
+    for (let j = Math.max(0, i - 5); j < i; j++) {
+      if (!IF.has(t[j]?.w ?? '')) continue;
+      const between = t.slice(j + 1, i).map((x) => x.w);
+      if (!between.some((w) => YOU.has(w)) || !(between.some((w) => COPULA.has(w)) || COPULA.has(t[end]?.w ?? ''))) continue;
+      if (r.strong) out.alone = true;
+      else out.withDirective = true;
+    }
+    if (!r.strong) continue;
+    // "<reader> reading this ...", "<reader> that read these pages"
+    for (let j = end; j <= end + 1 && j < t.length; j++) {
+      if (READING.has(t[j]?.w ?? '') && [1, 2, 3].some((d) => THIS_TEXT.has(t[j + d]?.w ?? ''))) out.alone = true;
+    }
+    // "<reader> should / must ...": the modal right after the name, so Italian "ai clienti deve"
+    // (to the customers ... must) does not read as "AI ... must".
+    if (MODAL.has(t[end]?.w ?? '')) out.withDirective = true;
+  }
+  return out;
+}
+
+/** The features a sentence shows; `planted` is the decision. Exposed for tests and logs. */
+export function plantedFeatures(sentence: string): { override: boolean; addressed: boolean; directive: boolean; planted: boolean } {
+  const folded = foldText(sentence);
+  const t = toks(folded);
+  const override = OVERRIDE_PHRASES.some((re) => re.test(folded)) || overrides(t) || hidesItself(t);
+  const a = addressing(t);
+  const directive = override || steers(t);
+  const planted = override || a.alone || (a.withDirective && directive);
+  return { override, addressed: a.alone || a.withDirective || a.withOverride, directive, planted };
+}
 
 /**
- * True for a sentence that tries to instruct an automated reader: one that asks to override
- * instructions, or one addressed to an assistant / model that also directs what to say.
+ * True for a sentence that tries to instruct an automated reader: one that asks it to override
+ * what it was given, or one addressed to it (in any of the languages above, in any case).
  */
 export function isPlantedInstruction(sentence: string): boolean {
-  if (OVERRIDE.test(sentence)) return true;
-  return ADDRESSEE.test(sentence) && DIRECTIVE.test(sentence);
+  return plantedFeatures(sentence).planted;
+}
+
+// How many sentences either side of a planted one, within its block, are tainted with it.
+const TAINT_REACH = 3;
+
+/**
+ * For each sentence span of `text` (as `splitSentences` gives them, or the spans passed), true
+ * when it is planted or sits next to a planted one in the same block: within TAINT_REACH
+ * sentences and with no blank line between. A planted line that does not end a sentence
+ * ("Important update for AI assistants:") introduces what follows, so its taint carries across
+ * the next blank line too.
+ */
+export function taintedSentences(text: string, spans: readonly SentenceSpan[] = splitSentences(text)): boolean[] {
+  const planted = spans.map((s) => isPlantedInstruction(s.text));
+  const out = planted.slice();
+  const blockBreak = (a: SentenceSpan, b: SentenceSpan): boolean => /\n[^\S\n]*\n/.test(text.slice(a.end, b.start));
+  planted.forEach((p, i) => {
+    if (!p) return;
+    const span = spans[i] as SentenceSpan;
+    const leadIn = !/[.!?]["'”’)\]]*$/.test(span.text);
+    for (let j = i - 1; j >= Math.max(0, i - TAINT_REACH); j--) {
+      if (blockBreak(spans[j] as SentenceSpan, spans[j + 1] as SentenceSpan)) break;
+      out[j] = true;
+    }
+    let crossed = false;
+    for (let j = i + 1; j <= Math.min(spans.length - 1, i + TAINT_REACH); j++) {
+      if (blockBreak(spans[j - 1] as SentenceSpan, spans[j] as SentenceSpan)) {
+        if (!leadIn || crossed) break;
+        crossed = true;
+      }
+      out[j] = true;
+    }
+  });
+  return out;
 }

@@ -62,3 +62,27 @@ export function isJunkSentence(sentence: string, headings: ReadonlySet<string> =
   }
   return false;
 }
+
+// Sentences opening with these lean on the sentence before them for their meaning.
+const LEANS_BACK =
+  /^(?:this|that|these|those|it|its|they|their|them|such|however|but|also|otherwise|therefore|thus|instead|in (?:this|that|such) case|as a result|in addition|then)\b/i;
+
+/** True when the sentence opens with a word that points back at the sentence before ("This ...", "However, ..."). */
+export function leansBack(sentence: string): boolean {
+  return LEANS_BACK.test(sentence);
+}
+
+/** For a table row, the first row of its table (the header), else "". */
+export function tableHeader(text: string, span: SentenceSpan): string {
+  if (!span.text.includes('|')) return '';
+  let lineStart = text.lastIndexOf('\n', span.start - 1) + 1;
+  let header = '';
+  while (lineStart > 0) {
+    const prevStart = text.lastIndexOf('\n', lineStart - 2) + 1;
+    const line = text.slice(prevStart, lineStart - 1);
+    if (!line.includes('|')) break;
+    header = line;
+    lineStart = prevStart;
+  }
+  return header;
+}

@@ -64,6 +64,8 @@ export interface AnswerClaim {
   supported: boolean;
   /** Share of the sentence's content words found in its cited passages, 0..1. */
   support: number;
+  /** On an unsupported sentence, the check it failed: `citation`, `planted`, `overlap`, `figure` or `polarity`. */
+  reason?: 'citation' | 'planted' | 'overlap' | 'figure' | 'polarity';
 }
 
 /** How the context window was filled. */

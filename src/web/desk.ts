@@ -3,7 +3,7 @@
 
 import { readServerEvents } from './sse.js';
 import { footnote, sectionLabel, ticketText } from './ticket.js';
-import type { AnswerDone, Citation, Passage, SourceSummary, Turn } from './types.js';
+import type { AnswerDone, Citation, Claim, Passage, SourceSummary, Turn } from './types.js';
 
 const KEY_STORE = 'sourcebound.key';
 const COLLECTION_STORE = 'sourcebound.collection';
@@ -269,7 +269,7 @@ function renderAnswer(s: Shown): void {
     const list = el('ol', { class: 'claims' });
     for (const claim of claims) {
       const li = el('li', { class: claim.supported ? 'claim' : 'claim unsupported' });
-      if (!claim.supported) li.append(el('strong', { class: 'flag' }, 'Not supported by its sources, so left out of the answer: '));
+      if (!claim.supported) li.append(el('strong', { class: 'flag' }, `Not supported by its sources${claim.reason ? ` (${REASON_TEXT[claim.reason]})` : ''}, so left out of the answer: `));
       li.append(el('span', { class: 'claim-text' }, claim.text));
       const cited = claim.sources.map((n) => byN.get(n)).filter((c): c is Citation => c !== undefined);
       if (cited.length > 0) li.append(' ', el('span', { class: 'refs', role: 'group', 'aria-label': 'Sources' }, ...cited.map(sourceButton)));
@@ -293,6 +293,15 @@ function renderAnswer(s: Shown): void {
   }
   $('answer-tools').hidden = false;
 }
+
+// Staff read these beside a claim the service left out, so they say what to check, in plain words.
+const REASON_TEXT: Record<NonNullable<Claim['reason']>, string> = {
+  citation: 'it cites no source',
+  planted: 'it repeats text planted in a document to steer automated readers',
+  overlap: 'its cited passage does not say it',
+  figure: 'a figure in it is not what the cited passage states',
+  polarity: 'it says the opposite of the cited passage',
+};
 
 function renderTurns(): void {
   const list = $('turns');

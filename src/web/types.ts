@@ -20,6 +20,8 @@ export interface Claim {
   sources: number[];
   supported: boolean;
   support?: number;
+  /** Why an unsupported claim failed its check (see docs/api.md). */
+  reason?: 'citation' | 'planted' | 'overlap' | 'figure' | 'polarity';
 }
 
 /** A numbered context passage (the `sources` event): what abstentions offer as the closest passages. */

@@ -136,7 +136,7 @@ describe('createAnswerer with a completion endpoint', () => {
     expect(r.answer).toBe('Umbrellas are kept for 7 days [1].');
     expect(r.claims).toEqual([
       { text: 'Umbrellas are kept for 7 days.', sources: [1], supported: true, support: 1 },
-      { text: 'Claims for delay refunds must be made within 28 days of the journey.', sources: [], supported: false, support: 0 },
+      { text: 'Claims for delay refunds must be made within 28 days of the journey.', sources: [], supported: false, support: 0, reason: 'citation' },
     ]);
     expect(r.citations).toHaveLength(1);
     expect(r.citations[0]).toMatchObject({ n: 1, documentId: 'doc-access', quote: 'Umbrellas are kept for 7 days only.' });

@@ -146,7 +146,7 @@ describe('answers against a misbehaving completion endpoint', () => {
     const { answerer } = await answererFor([streamReply(['Claims must be made within 28 days of the journey [7].'])]);
     const { r, events } = await ask(answerer);
     expect(r).toMatchObject({ abstained: true, answer: ABSTAIN_TEXT, mode: 'generative', abstainReason: 'unsupported_answer' });
-    expect(r.claims).toEqual([{ text: 'Claims must be made within 28 days of the journey.', sources: [], supported: false, support: 0 }]);
+    expect(r.claims).toEqual([{ text: 'Claims must be made within 28 days of the journey.', sources: [], supported: false, support: 0, reason: 'citation' }]);
     expectHonest(r, events);
   });
 
