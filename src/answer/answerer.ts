@@ -77,6 +77,9 @@ export interface Answerer {
   answer(req: AnswerRequest): Promise<AnswerReply>;
 }
 
+// Passages the offline answer ranks sentences from (a model's context keeps `k`).
+const EXTRACTIVE_PASSAGES = 20;
+
 const noop = (): void => undefined;
 const silent: AnswerLogger = { info: noop, warn: noop, debug: noop };
 
@@ -107,17 +110,21 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
       // lexical search can reach the passage; the reply still shows the question as asked.
       const extra = expansionWords(question, lexicon);
       const k = req.k ?? opts.k;
+      // The offline answer reads more passages than a model's context holds: sentences are cheap to
+      // rank, and the ranker's passage-rank feature discounts the later ones.
+      const wide = Math.max(k, EXTRACTIVE_PASSAGES);
       const request: RetrieveRequest = {
         query: extra.length > 0 ? `${question} ${extra.join(' ')}` : question,
         collection: req.collection,
-        k,
+        k: wide,
         mode: req.mode ?? 'hybrid',
         ...(req.filter ? { filter: req.filter } : {}),
       };
       let versions = chooseVersions(question, await deps.retrieve(request));
       // Dropped versions freed places in the context; fill them with the next hits.
-      if (versions.dropped > 0) versions = chooseVersions(question, await deps.retrieve({ ...request, k: k + versions.dropped }));
-      const hits = versions.kept;
+      if (versions.dropped > 0) versions = chooseVersions(question, await deps.retrieve({ ...request, k: wide + versions.dropped }));
+      const allHits = versions.kept;
+      const hits = allHits.slice(0, k);
       const t1 = now();
 
       const { sources, tokens } = fitContext(hits, {
@@ -174,7 +181,11 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
 
       if (sources.length === 0) return abstain('no_hits', 'extractive');
       // The extractive candidate is always worked out: its evidence decides whether to answer at all.
-      const ex = await extractAnswer(question, sources, { embedder: deps.embedder, lexicon, ranker: model.sentence, ...model.composition });
+      const passages =
+        allHits.length > hits.length
+          ? fitContext(allHits, { budgetTokens: Number.MAX_SAFE_INTEGER, countTokens: () => 0, maxSources: wide }).sources
+          : sources;
+      const ex = await extractAnswer(question, passages, { embedder: deps.embedder, lexicon, ranker: model.sentence, ...model.composition });
       const terms = weighedTerms(ex.question);
       const features = questionFeatures(ex.ranked, terms);
       const decision = decide(model, features);
@@ -184,7 +195,7 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
             explanation: {
               decision: decision.p,
               terms: terms.map((t, i) => ({ label: ex.question.terms[i]?.label ?? '', ...t })),
-              ranked: ex.ranked.map((r) => ({ source: sources[r.sourceIndex]?.source ?? '', text: r.text, features: r.features, p: r.p })),
+              ranked: ex.ranked.map((r) => ({ source: passages[r.sourceIndex]?.source ?? '', text: r.text, features: r.features, p: r.p })),
             },
           }
         : {};

@@ -75,7 +75,7 @@ interface Candidate {
 // Embedding every sentence is the costly step; beyond this many we keep the lexically best.
 const MAX_EMBEDDED = 200;
 // Candidates kept in the result, for the evidence features and for fitting.
-const MAX_RANKED = 60;
+const MAX_RANKED = 120;
 // Framing words keep a little weight: enough to break ties, too little for their absence to sink a question.
 const LIGHT_SHARE = 0.3;
 
