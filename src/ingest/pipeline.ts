@@ -73,7 +73,8 @@ const SPECIAL_TOKENS = 2;
 
 // Bump when the loaders or chunker change in a way that changes chunks for the same bytes.
 // 2: DOCX support, `version` metadata, table rows and headings recognised in PDFs.
-const PIPELINE_VERSION = 2;
+// 3: PDF sub-headings in sentence case, numbered headings after an unfinished line, titles a footer repeats.
+const PIPELINE_VERSION = 3;
 
 export function createIngestor(deps: {
   repo: Repository;
