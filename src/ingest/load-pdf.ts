@@ -298,7 +298,7 @@ function inSequence(line: string, numbers: ReadonlySet<string>): number | null {
 /**
  * A paragraph cut by a page break: the last paragraph of a page ends mid-sentence and the first of the next
  * page starts in lower case. Kept apart, the second half reads as a sentence of its own ("or near the
- * overhead line."), so the two become one paragraph that records both pages.
+ * overhead line."), so the two become one paragraph that records both pages and where the second begins.
  */
 function joinRunOns(items: (Block | PendingHeading)[]): (Block | PendingHeading)[] {
   const out: (Block | PendingHeading)[] = [];
@@ -315,7 +315,9 @@ function joinRunOns(items: (Block | PendingHeading)[]): (Block | PendingHeading)
       !TERMINAL.test(prev.text) &&
       /^\p{Ll}/u.test(item.text)
     ) {
-      out[out.length - 1] = { ...prev, text: `${prev.text} ${item.text}`, pageEnd: item.page };
+      // The page break is kept as an offset, so a quote from the second half is cited on its own page.
+      const pageBreaks = [...(prev.pageBreaks ?? []), { at: prev.text.length + 1, page: item.page }];
+      out[out.length - 1] = { ...prev, text: `${prev.text} ${item.text}`, pageEnd: item.page, pageBreaks };
       continue;
     }
     out.push(item);

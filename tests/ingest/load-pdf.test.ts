@@ -205,9 +205,17 @@ describe('PDF text clean-up', () => {
     expect(blocks.map((b) => b.kind)).toEqual(['paragraph', 'heading', 'paragraph']);
   });
 
-  it('joins a sentence cut by a page break into one paragraph that records both pages', () => {
+  it('joins a sentence cut by a page break into one paragraph that records both pages and where the second begins', () => {
     const blocks = pagesToBlocks([['This sentence runs on and on past the end of'], ['the page and ends here.']]);
-    expect(blocks).toEqual([{ kind: 'paragraph', text: 'This sentence runs on and on past the end of the page and ends here.', page: 1, pageEnd: 2 }]);
+    const text = 'This sentence runs on and on past the end of the page and ends here.';
+    expect(blocks).toEqual([{ kind: 'paragraph', text, page: 1, pageEnd: 2, pageBreaks: [{ at: text.indexOf('the page'), page: 2 }] }]);
+  });
+
+  it('moves a page break with the text when clean-up drops characters before it', () => {
+    // A soft hyphen (U+00AD) is removed by normalisation; the break must still open "the page".
+    const blocks = pagesToBlocks([['This sentence runs on\u00AD and on past the end of'], ['the page and ends here.']]);
+    const b = blocks[0]!;
+    expect(b.text.slice(b.pageBreaks![0]!.at)).toBe('the page and ends here.');
   });
 
   it('takes a short sentence-case line between a finished sentence and prose as a sub-heading', () => {
