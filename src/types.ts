@@ -15,6 +15,17 @@ export interface Block {
   page?: number;
   /** Last page, when a paragraph runs on over a page break. */
   pageEnd?: number;
+  /** Where later pages begin inside the block's text, for a paragraph that runs on over a page break. */
+  pageBreaks?: PageBreak[];
+}
+
+/**
+ * A page that begins inside a span of text: `page` starts at character `at`. In a Block, `at` is an
+ * offset into the block's text; in chunks and search hits, an offset into the document's normalised text.
+ */
+export interface PageBreak {
+  at: number;
+  page: number;
 }
 
 /** What a loader returns for one file. */
@@ -54,8 +65,11 @@ export interface ChunkDraft {
   start: number;
   end: number;
   headingPath: string[];
+  /** The page of the chunk's first character. */
   pageStart: number | null;
   pageEnd: number | null;
+  /** Pages that begin after the chunk's first character, in document offsets (empty when it sits on one page). */
+  pageBreaks: PageBreak[];
   /** Tokens of `text` in the embedder's tokenizer. */
   tokenCount: number;
 }
@@ -71,6 +85,8 @@ export interface SearchHit {
   title: string;
   page: number | null;
   pageEnd: number | null;
+  /** Pages that begin inside the chunk after `page`, in document offsets; absent when none are recorded. */
+  pageBreaks?: PageBreak[];
   section: string;
   headingPath: string[];
   text: string;
@@ -99,6 +115,7 @@ export interface Citation {
   documentId: string;
   source: string;
   title: string;
+  /** The page where the quote's first character is (PDF). */
   page: number | null;
   section: string;
   quote: string;

@@ -144,13 +144,15 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
       let shown = false;
       const finish = (
         r: Omit<AnswerReply, 'question' | 'timings' | 'caution' | 'context'>,
-        pieces: string[] | null,
+        pieces: (string | { text: string; citations: Citation[] })[] | null,
         append = false,
       ): AnswerReply => {
         // Text already shown belongs to an attempt that was abandoned unless we are appending to it.
         const reset = shown && !append;
-        (pieces ?? []).forEach((text, i) => {
-          emit(i === 0 && reset ? { type: 'delta', text: text.trimStart(), reset: true } : { type: 'delta', text });
+        (pieces ?? []).forEach((piece, i) => {
+          const { text, citations = [] } = typeof piece === 'string' ? { text: piece } : piece;
+          const cited = citations.length > 0 ? { citations } : {};
+          emit(i === 0 && reset ? { type: 'delta', text: text.trimStart(), reset: true, ...cited } : { type: 'delta', text, ...cited });
         });
         const t2 = now();
         const out: AnswerReply = {
@@ -249,14 +251,18 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
         }
       }
 
-      // Each quoted sentence is its own claim, verbatim from the source it cites.
+      // Each quoted passage is its own claim, verbatim, with its own citation number; its delta
+      // carries that citation, as a generated sentence's does.
       const claims: GroundedClaim[] = ex.citations.map((c) => ({ text: display(c.quote), sources: [c.n], supported: true, support: 1 }));
-      const pieces = claims.map((c, i) => `${i > 0 ? ' ' : ''}${c.text} [${c.sources[0]}]`);
+      const pieces: { text: string; citations: Citation[] }[] = claims.map((c, i) => ({
+        text: `${i > 0 ? ' ' : ''}${c.text} [${c.sources[0]}]`,
+        citations: ex.citations.slice(i, i + 1),
+      }));
       const note = versionNoteFor(ex.citations, versions.chosen);
-      if (note) pieces.push(` ${note}`);
+      if (note) pieces.push({ text: ` ${note}`, citations: [] });
       const raw = Math.round(decision.p * 1000) / 1000;
       const result: Omit<AnswerReply, 'question' | 'timings' | 'caution' | 'context'> = {
-        answer: pieces.join(''),
+        answer: pieces.map((p) => p.text).join(''),
         abstained: false,
         mode: 'extractive',
         citations: ex.citations,

@@ -4,9 +4,12 @@ import type { Citation } from '../types.js';
 import type { ContextSource, SourcePart } from './types.js';
 
 /**
- * A citation for source.text.slice(localStart, localEnd). Offsets become document offsets,
- * and page/section come from the merged chunk the quote starts in, so a quote from the second
- * of two merged chunks is placed on that chunk's page.
+ * A citation for source.text.slice(localStart, localEnd). Offsets become document offsets, and
+ * page/section come from the merged chunk the quote starts in. The page is the one the quote's
+ * first character is printed on, found from the page breaks recorded inside that chunk: a reader
+ * opening the document there finds the quote's opening words. A quote that runs over a page break
+ * is cited on the page where it starts (the page it continues on follows it in any viewer).
+ * Chunks stored before page breaks were recorded fall back to the page the chunk starts on.
  */
 export function citationFor(source: ContextSource, localStart: number, localEnd: number, n: number): Citation {
   const start = source.start + localStart;
@@ -17,7 +20,7 @@ export function citationFor(source: ContextSource, localStart: number, localEnd:
     documentId: source.documentId,
     source: source.source,
     title: source.title,
-    page: part?.page ?? source.page,
+    page: (part ? pageAt(part, start) : null) ?? source.page,
     section: part?.section || source.section,
     quote: source.text.slice(localStart, localEnd),
     start,
@@ -29,6 +32,16 @@ export function citationFor(source: ContextSource, localStart: number, localEnd:
 
 function partAt(source: ContextSource, docOffset: number): SourcePart | undefined {
   return source.parts.find((p) => docOffset >= p.start && docOffset < p.end);
+}
+
+/** The page of document offset `at` inside `part`: its start page, moved on by each break at or before `at`. */
+export function pageAt(part: SourcePart, at: number): number | null {
+  let page = part.page;
+  for (const b of part.pageBreaks ?? []) {
+    if (b.at > at) break;
+    page = b.page;
+  }
+  return page;
 }
 
 /** True when every character of the document span [start, end) lies inside one of the merged chunks. */

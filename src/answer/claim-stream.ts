@@ -1,18 +1,20 @@
 // Turns a model reply, as it streams in, into checked answer sentences. A sentence is released
 // only once it is complete (the next sentence has begun, or the reply has ended) and only if
-// its cited sources support it; its citation numbers are renumbered 1..m by first use, so the
-// released pieces, joined, are exactly the final answer. Unsupported sentences (too little
-// overlap, a figure or a negation the passage does not state, planted text: see grounding.ts)
-// never reach the caller's screen, but are reported as claims with `supported: false` and a `reason`.
+// its cited sources support it. Each of its markers becomes a citation of the passage of that
+// source that best supports this sentence, numbered 1..m by first use: two sentences backed by
+// different passages of one source cite two numbers, so every number opens the words behind the
+// sentence it follows. The released pieces, joined, are exactly the final answer. Unsupported
+// sentences (too little overlap, a figure or a negation the passage does not state, planted text:
+// see grounding.ts) never reach the caller's screen, but are reported as claims with
+// `supported: false` and a `reason`.
 
 import type { Citation } from '../types.js';
 import { headingSet } from './abstain.js';
 import { citationFor } from './cite.js';
-import { claimSpans, createSupportScorer, type GroundedClaim } from './grounding.js';
+import { claimSpans, createSupportScorer, supportingSpan, type GroundedClaim } from './grounding.js';
 import { taintedSentences } from './planted.js';
 import { isJunkSentence, splitSentences } from './sentences.js';
 import type { ContextSource } from './types.js';
-import { contentStems } from './words.js';
 
 export interface ReleasedPiece {
   /** Text to append to what was released before (leading space included). */
@@ -25,7 +27,12 @@ export interface ClaimStream {
   push(text: string): void;
   /** Flushes the last sentence; call once the reply is complete. */
   end(): void;
-  /** Every scored sentence so far, with `sources` in the answer's numbering (sources no shown sentence cites are left out). */
+  /**
+   * Every scored sentence so far, with `sources` in the answer's numbering. A shown sentence names
+   * the citations of its own passages; an unsupported one names, per source, the citation of its
+   * best passage if a shown sentence cites it, else the source's first citation (sources no shown
+   * sentence cites are left out).
+   */
   claims(): GroundedClaim[];
   citations(): Citation[];
   /** The released pieces joined. */
@@ -50,27 +57,48 @@ export function createClaimStream(
   let released = 0;
   let answer = '';
   const claims: GroundedClaim[] = [];
+  // For each claim, the passage (as a key) it leans on in each source it cites.
+  const passages: { n: number; key: string }[][] = [];
   const citations: Citation[] = [];
-  const mapping = new Map<number, number>();
+  // Passage key ("source n:start:end") → its citation number; source n → its citation numbers.
+  const numberOf = new Map<string, number>();
+  const bySource = new Map<number, number[]>();
+
+  /** The passage of source `n` that best supports the claim `text`, with the key that names it. */
+  const passageFor = (n: number, text: string): { key: string; start: number; end: number } => {
+    const source = byN.get(n) as ContextSource;
+    const headings = headingSet(source);
+    // A planted instruction and the sentences of its block are never a claim's quote.
+    const spans = splitSentences(source.text);
+    const tainted = taintedSentences(source.text, spans);
+    const taintedText = new Set(spans.filter((_, i) => tainted[i]).map((x) => x.text));
+    const quotable = (s: string): boolean => !isJunkSentence(s, headings) && !taintedText.has(s);
+    const span = supportingSpan(source, text, quotable) ?? firstSentence(source, quotable);
+    return { key: `${n}:${span.start}:${span.end}`, ...span };
+  };
 
   const release = (spans: { text: string; markers: number[] }[]): void => {
     for (const span of spans) {
       const claim = score(span.text, span.markers);
       if (!claim) continue;
       claims.push(claim);
+      const own = claim.sources.map((n) => ({ n, ...passageFor(n, claim.text) }));
+      passages.push(own.map(({ n, key }) => ({ n, key })));
       if (!claim.supported) continue;
       const fresh: Citation[] = [];
-      for (const n of claim.sources) {
-        if (mapping.has(n)) continue;
-        const next = mapping.size + 1;
-        mapping.set(n, next);
-        const source = byN.get(n) as ContextSource;
-        const span = bestSpan(source, contentStems(claim.text));
-        const cite = citationFor(source, span.start, span.end, next);
-        fresh.push(cite);
-        citations.push(cite);
+      const numbers: number[] = [];
+      for (const p of own) {
+        let number = numberOf.get(p.key);
+        if (number === undefined) {
+          number = citations.length + 1;
+          numberOf.set(p.key, number);
+          bySource.set(p.n, [...(bySource.get(p.n) ?? []), number]);
+          const cite = citationFor(byN.get(p.n) as ContextSource, p.start, p.end, number);
+          fresh.push(cite);
+          citations.push(cite);
+        }
+        if (!numbers.includes(number)) numbers.push(number);
       }
-      const numbers = claim.sources.map((n) => mapping.get(n) as number);
       const piece = `${answer.length > 0 ? ' ' : ''}${withMarkers(claim.text, numbers)}`;
       answer += piece;
       onPiece({ text: piece, citations: fresh });
@@ -102,8 +130,15 @@ export function createClaimStream(
       release(all.slice(released));
       released = all.length;
     },
-    // In the answer's numbering; an unsupported claim keeps only sources a supported one also cites.
-    claims: () => claims.map((c) => ({ ...c, sources: c.sources.flatMap((n) => (mapping.has(n) ? [mapping.get(n) as number] : [])) })),
+    claims: () =>
+      claims.map((c, i) => {
+        const numbers: number[] = [];
+        for (const { n, key } of passages[i] ?? []) {
+          const number = numberOf.get(key) ?? (c.supported ? undefined : bySource.get(n)?.[0]);
+          if (number !== undefined && !numbers.includes(number)) numbers.push(number);
+        }
+        return { ...c, sources: numbers };
+      }),
     citations: () => citations,
     answer: () => answer,
     removed: () => {
@@ -127,23 +162,10 @@ export function withMarkers(text: string, numbers: number[]): string {
   return m ? `${text.slice(0, m.index)} ${marks}${m[0]}` : `${text} ${marks}`;
 }
 
-/** The sentence of `source` sharing most content words with the claim, as a local span. */
-export function bestSpan(source: ContextSource, want: ReadonlySet<string>): { start: number; end: number } {
-  const headings = headingSet(source);
-  let best: { start: number; end: number } | null = null;
-  let bestHits = -1;
-  const spans = splitSentences(source.text);
-  const tainted = taintedSentences(source.text, spans);
-  for (const [i, s] of spans.entries()) {
-    if (isJunkSentence(s.text, headings) || tainted[i]) continue;
-    let hits = 0;
-    for (const w of contentStems(s.text)) if (want.has(w)) hits++;
-    if (hits > bestHits) {
-      bestHits = hits;
-      best = { start: s.start, end: s.end };
-    }
-  }
-  if (best) return best;
+/** The quote when no sentence of the source shares a word with the claim: its first quotable sentence, else all of it. */
+function firstSentence(source: ContextSource, quotable: (s: string) => boolean): { start: number; end: number } {
+  const first = splitSentences(source.text).find((s) => quotable(s.text));
+  if (first) return { start: first.start, end: first.end };
   const lead = source.text.length - source.text.trimStart().length;
   return { start: lead, end: source.text.trimEnd().length };
 }

@@ -82,8 +82,14 @@ export function mergeHits(hits: SearchHit[]): Unnumbered[] {
   return out;
 }
 
-function fromHit(h: SearchHit): Unnumbered {
+function partOf(h: SearchHit): SourcePart {
   const part: SourcePart = { start: h.start, end: h.end, page: h.page, pageEnd: h.pageEnd, section: h.section };
+  if (h.pageBreaks && h.pageBreaks.length > 0) part.pageBreaks = h.pageBreaks;
+  return part;
+}
+
+function fromHit(h: SearchHit): Unnumbered {
+  const part = partOf(h);
   const s: Unnumbered = {
     documentId: h.documentId,
     source: h.source,
@@ -124,7 +130,7 @@ function absorb(cur: Unnumbered, h: SearchHit): void {
     const hEnd = h.pageEnd ?? h.page;
     cur.pageEnd = cur.pageEnd === null ? hEnd : Math.max(cur.pageEnd, hEnd);
   }
-  cur.parts.push({ start: h.start, end: h.end, page: h.page, pageEnd: h.pageEnd, section: h.section });
+  cur.parts.push(partOf(h));
 }
 
 /** Longest prefix (cut at whitespace) whose rendered block fits the budget, or null. */

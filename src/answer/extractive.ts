@@ -217,13 +217,15 @@ function quote(chosen: RankedSentence[], cands: Candidate[], sources: ContextSou
   for (const c of chosen) if (!sourceOrder.includes(c.sourceIndex)) sourceOrder.push(c.sourceIndex);
   const parts: string[] = [];
   const citations: Citation[] = [];
-  sourceOrder.forEach((si, i) => {
+  // Every quoted passage gets its own number, even beside another from the same source: a number
+  // names one passage, so the reader's [2] opens the words it follows.
+  sourceOrder.forEach((si) => {
     const source = sources[si];
     if (!source) return;
     for (const p of pieces.filter((x) => x.sourceIndex === si)) {
-      const cite = citationFor(source, p.start, p.end, i + 1);
+      const cite = citationFor(source, p.start, p.end, citations.length + 1);
       citations.push(cite);
-      parts.push(`${display(cite.quote)} [${i + 1}]`);
+      parts.push(`${display(cite.quote)} [${cite.n}]`);
     }
   });
   return { answer: parts.join(' '), citations };

@@ -11,6 +11,7 @@
 //   - planted text: a claim that itself instructs an automated reader, or that only text planted
 //     in a document backs, is never supported (planted.ts).
 
+import { coveredByParts } from './cite.js';
 import { figureStated, figuresIn, statedRanges, type Figure } from './figures.js';
 import { polarityConflicts, polarityOf, type Polarity } from './negation.js';
 import { isPlantedInstruction, taintedSentences } from './planted.js';
@@ -219,6 +220,59 @@ function coverage(words: ReadonlySet<string>, have: ReadonlySet<string>): number
   let n = 0;
   for (const w of words) if (have.has(w)) n++;
   return words.size > 0 ? n / words.size : 0;
+}
+
+/**
+ * The passage of a cited source that best supports one claim, as a span of `source.text`, so the
+ * claim is shown beside the words that back it rather than whatever else its source says. Passages
+ * are single sentences and pairs of adjacent sentences in one paragraph (the windows the support
+ * check reads); the best holds most of the claim's figures, then most of its content words, then is
+ * the shortest, so a pair wins only when its second sentence adds something the claim says. A
+ * figure decides first because a claim about 10 days must not be shown with a 28-day sentence.
+ * Sentences that `quotable` refuses (headings, table rules) and planted instructions are never
+ * chosen. Null when no sentence shares a figure or a word with the claim.
+ */
+export function supportingSpan(
+  source: ContextSource,
+  claim: string,
+  quotable: (sentence: string) => boolean = () => true,
+): { start: number; end: number } | null {
+  const words = contentStems(claim);
+  const figures = new Set(numbersIn(claim));
+  // Refused sentences stay in the list as gaps, so a pair never spans one.
+  const sentences = splitSentences(source.text).map((s) =>
+    quotable(s.text) && !isPlantedInstruction(s.text) ? { ...s, stems: new Set([...contentStems(s.text), ...numbersIn(s.text)]) } : null,
+  );
+  let best: { start: number; end: number; figures: number; words: number } | null = null;
+  const consider = (start: number, end: number, stems: ReadonlySet<string>): void => {
+    let f = 0;
+    let w = 0;
+    for (const x of figures) if (stems.has(x)) f++;
+    for (const x of words) if (stems.has(x)) w++;
+    if (f + w === 0) return;
+    const better =
+      !best || f > best.figures || (f === best.figures && (w > best.words || (w === best.words && end - start < best.end - best.start)));
+    if (better) best = { start, end, figures: f, words: w };
+  };
+  sentences.forEach((cur, i) => {
+    if (!cur) return;
+    consider(cur.start, cur.end, cur.stems);
+    const next = sentences[i + 1];
+    const between = next ? source.text.slice(cur.end, next.start) : '';
+    // A pair must read as one passage: same paragraph, and text the context really holds.
+    if (next && !/\n\s*\n/.test(between) && coveredByParts(source, source.start + cur.start, source.start + next.end)) {
+      consider(cur.start, next.end, new Set([...cur.stems, ...next.stems]));
+    }
+  });
+  const found = best as { start: number; end: number } | null;
+  return found ? { start: found.start, end: found.end } : null;
+}
+
+/** Number tokens of a text, as stems: what a claim's figures are matched on when choosing its quote. */
+function numbersIn(text: string): string[] {
+  return tokenize(text)
+    .filter((t) => /\d/.test(t.word))
+    .map((t) => t.stem);
 }
 
 // Words that end a claim's subject: auxiliaries, modals and the common verbs of policy text

@@ -1,13 +1,16 @@
 // Shapes used inside the answer stage and by its callers.
 
-import type { AnswerResult, Citation } from '../types.js';
+import type { AnswerResult, Citation, PageBreak } from '../types.js';
 
 /** One original retrieval chunk inside a (possibly merged) context source. */
 export interface SourcePart {
   start: number;
   end: number;
+  /** The page of the chunk's first character. */
   page: number | null;
   pageEnd: number | null;
+  /** Pages that begin inside the chunk, in document offsets (absent when none are recorded). */
+  pageBreaks?: PageBreak[];
   section: string;
 }
 

@@ -1,4 +1,4 @@
-import type { ChunkDraft, NormalisedDocument, PlacedBlock, TokenCounter } from '../types.js';
+import type { ChunkDraft, NormalisedDocument, PageBreak, PlacedBlock, TokenCounter } from '../types.js';
 import { splitSentences } from './sentences.js';
 
 export interface ChunkOptions {
@@ -130,6 +130,32 @@ function firstBlockEndingAfter(blocks: PlacedBlock[], offset: number): number {
 }
 
 /**
+ * The pages of the document span [start, end) that the blocks cover: the page of its first
+ * character, the last page, and every later page's first offset inside the span, so a quote can be
+ * placed on the page it is printed on rather than the page the chunk starts on.
+ */
+function pagesOf(covered: PlacedBlock[], start: number, end: number): { first: number | null; last: number | null; breaks: PageBreak[] } {
+  // Each block begins on its page; a paragraph that runs on over a page break says where the next begins.
+  const marks: PageBreak[] = [];
+  for (const b of covered) {
+    if (b.page === undefined) continue;
+    marks.push({ at: b.start, page: b.page });
+    for (const p of b.pageBreaks ?? []) marks.push({ at: b.start + p.at, page: p.page });
+  }
+  let first: number | null = null;
+  let last: number | null = null;
+  const breaks: PageBreak[] = [];
+  for (const m of marks) {
+    if (m.at >= end) break;
+    if (m.at <= start) first = m.page;
+    else if (first === null) first = m.page;
+    else if (m.page !== (breaks[breaks.length - 1]?.page ?? first)) breaks.push({ at: m.at, page: m.page });
+    last = last === null ? m.page : Math.max(last, m.page);
+  }
+  return { first, last, breaks };
+}
+
+/**
  * Splits a normalised document into chunks that follow its structure: each heading starts a
  * chunk, whole blocks are packed up to `targetTokens`, an oversized block is split at sentence
  * (or, for tables and lists, line) boundaries, and only a unit that alone passes `maxTokens` is cut
@@ -160,15 +186,16 @@ export function chunkDocument(doc: NormalisedDocument, opts: ChunkOptions): Chun
     }
     const firstBody = cur.pieces.find((p) => !p.heading);
     const pathBlock = firstBody ? blocks[firstBody.block]! : blocks[cur.pieces[cur.pieces.length - 1]!.block]!;
-    const pages = covered.flatMap((b) => [b.page, b.pageEnd]).filter((p): p is number => typeof p === 'number');
+    const pages = pagesOf(covered, cur.start, cur.end);
     drafts.push({
       ordinal: drafts.length,
       text: chunkText,
       start: cur.start,
       end: cur.end,
       headingPath: [...pathBlock.headingPath],
-      pageStart: pages.length > 0 ? Math.min(...pages) : null,
-      pageEnd: pages.length > 0 ? Math.max(...pages) : null,
+      pageStart: pages.first,
+      pageEnd: pages.last,
+      pageBreaks: pages.breaks,
       tokenCount: count(chunkText),
     });
     prev = cur;

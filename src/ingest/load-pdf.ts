@@ -81,27 +81,35 @@ function edgeKey(line: string): string {
 }
 
 /**
- * Drops running headers and footers: lines at a page edge that recur (digits ignored, so
- * "Page 2 of 5" matches "Page 3 of 5") on at least half the pages, plus bare page numbers.
+ * Drops running headers and footers: lines at a page edge that recur at that same edge (digits
+ * ignored, so "Page 2 of 5" matches "Page 3 of 5") on at least half the pages, plus bare page
+ * numbers. Top and bottom are counted apart: a footer that repeats the document's title must not
+ * take the title printed at the top of the first page with it.
  */
 export function removeRunningLines(pages: string[][]): string[][] {
   const trimmed = pages.map((lines) => lines.map((l) => l.replace(/\s+/g, ' ').trim()).filter((l) => l !== ''));
-  const repeated = new Set<string>();
-  if (trimmed.length >= 2) {
+  const repeatedAt = (edgeOf: (lines: string[]) => string[]): Set<string> => {
+    const repeated = new Set<string>();
+    if (trimmed.length < 2) return repeated;
     const seen = new Map<string, number>();
     for (const lines of trimmed) {
-      const edge = new Set([...lines.slice(0, EDGE_LINES), ...lines.slice(-EDGE_LINES)].map(edgeKey));
-      for (const key of edge) seen.set(key, (seen.get(key) ?? 0) + 1);
+      for (const key of new Set(edgeOf(lines).map(edgeKey))) seen.set(key, (seen.get(key) ?? 0) + 1);
     }
     const needed = Math.max(2, Math.ceil(trimmed.length / 2));
     for (const [key, count] of seen) if (count >= needed) repeated.add(key);
-  }
-  const running = (line: string): boolean => repeated.has(edgeKey(line)) || PAGE_NUMBER.test(line);
+    return repeated;
+  };
+  // On a short page the two edges would overlap; each takes its own half.
+  const topSize = (lines: string[]): number => Math.min(EDGE_LINES, Math.floor(lines.length / 2));
+  const bottomSize = (lines: string[]): number => Math.min(EDGE_LINES, lines.length - topSize(lines));
+  const top = repeatedAt((lines) => lines.slice(0, topSize(lines)));
+  const bottom = repeatedAt((lines) => lines.slice(lines.length - bottomSize(lines)));
+  const running = (line: string, repeated: Set<string>): boolean => repeated.has(edgeKey(line)) || PAGE_NUMBER.test(line);
   return trimmed.map((lines) => {
     let start = 0;
     let end = lines.length;
-    while (start < end && start < EDGE_LINES && running(lines[start]!)) start++;
-    while (end > start && lines.length - end < EDGE_LINES && running(lines[end - 1]!)) end--;
+    while (start < topSize(lines) && running(lines[start]!, top)) start++;
+    while (end > start && lines.length - end < bottomSize(lines) && running(lines[end - 1]!, bottom)) end--;
     return lines.slice(start, end);
   });
 }
@@ -136,6 +144,29 @@ export function headingShape(line: string): number | null {
   return caps || titleCase ? 0 : null;
 }
 
+// A line ending in one of these words breaks off mid-phrase: it is wrapped text, not a heading.
+const OPEN_ENDING = new Set([
+  ...MINOR_WORDS,
+  'nor', 'but', 'is', 'are', 'was', 'were', 'be', 'been', 'that', 'which', 'who', 'whose', 'than', 'if',
+  'your', 'our', 'their', 'its', 'this', 'these', 'those', 'not', 'no', 'will', 'may', 'must', 'can',
+]);
+
+/**
+ * A short label in sentence case ("Opening hours", "How keys are returned"): the
+ * sub-heading style of many policy documents, which title-case and numbering rules miss. Only the
+ * shape is judged here; pagesToBlocks also asks that it stands alone between a finished sentence
+ * and the prose it introduces, which a table row, an address line or a wrapped line does not.
+ */
+export function isLabelLine(line: string, maxLength: number): boolean {
+  const t = line.trim();
+  if (t.length === 0 || t.length >= maxLength || !/^\p{Lu}/u.test(t)) return false;
+  // Punctuation inside or at the end marks a sentence or a list of values, not a label; a question is allowed.
+  if (/[.,;:!·|]/u.test(t)) return false;
+  const words = t.replace(/\?$/, '').split(/\s+/);
+  if (words.length > 8 || !words.every((w) => /[\p{L}\d&–-]/u.test(w))) return false;
+  return !OPEN_ENDING.has(words[words.length - 1]!.toLowerCase());
+}
+
 function typicalLineLength(pages: string[][]): number {
   const lengths = pages.flat().map((l) => l.length).sort((a, b) => a - b);
   return lengths[Math.floor(lengths.length * 0.8)] ?? 0;
@@ -144,6 +175,8 @@ function typicalLineLength(pages: string[][]): number {
 interface PendingHeading {
   block: Block;
   depth: number;
+  /** A sentence-case label: the sub-heading style, so it nests under the numbered section it sits in. */
+  label?: true;
 }
 
 /**
@@ -176,9 +209,10 @@ function proseAndRows(lines: string[], shortLimit: number, page: number): Block[
 export function pagesToBlocks(pages: string[][]): Block[] {
   const shortLimit = typicalLineLength(pages) * SHORT_LINE_SHARE;
   const out: (Block | PendingHeading)[] = [];
-  pages.forEach((rawLines, index) => {
+  const allLines = pages.map((p) => rejoinHyphenated(p));
+  const numbers = sectionNumbers(allLines);
+  allLines.forEach((lines, index) => {
     const page = index + 1;
-    const lines = rejoinHyphenated(rawLines);
     let paragraph: string[] = [];
     let list: string[] = [];
     // A heading can only start after a sentence, a heading or the page top.
@@ -191,14 +225,24 @@ export function pagesToBlocks(pages: string[][]): Block[] {
     };
     lines.forEach((line, i) => {
       const endsSentence = TERMINAL.test(line);
-      const depth = afterSentence && i + 1 < lines.length ? headingShape(line) : null;
+      const last = i + 1 >= lines.length;
       // An unnumbered heading must lead into prose or a numbered section; a capitalised line
       // followed by another short fragment is more likely a table's header row.
       const next = lines[i + 1] ?? '';
       const leadsIn = next.length >= shortLimit || TERMINAL.test(next) || NUMBERED.test(next) || BULLET.test(next);
+      let depth = afterSentence && !last ? headingShape(line) : null;
+      let label = false;
+      // A sentence-case label needs the same setting, and the prose after it must start a sentence.
+      if (depth === null && afterSentence && !last && leadsIn && /^[\p{Lu}\d•‣◦▪●■–-]/u.test(next) && isLabelLine(line, shortLimit)) {
+        depth = 0;
+        label = true;
+      }
+      // A numbered heading after an unfinished line (a date or owner line under the title, a table's
+      // last row) still counts when the document numbers its sections in sequence around it.
+      if (depth === null && !afterSentence && !last && leadsIn) depth = inSequence(line, numbers);
       if (depth !== null && (depth > 0 || leadsIn)) {
         flush();
-        out.push({ block: { kind: 'heading', text: line, page }, depth });
+        out.push({ block: { kind: 'heading', text: line, page }, depth, ...(label ? { label: true as const } : {}) });
         afterSentence = true;
         return;
       }
@@ -225,9 +269,36 @@ export function pagesToBlocks(pages: string[][]): Block[] {
 }
 
 /**
+ * Numbers ("3", "4.2") of the lines shaped like numbered headings that stand where a heading can:
+ * at a page top, or after a line that ends a sentence.
+ */
+function sectionNumbers(pages: string[][]): Set<string> {
+  const out = new Set<string>();
+  for (const lines of pages) {
+    lines.forEach((line, i) => {
+      const number = NUMBERED.exec(line.trim())?.[1];
+      if (number === undefined || !(headingShape(line) ?? 0)) return;
+      if (i === 0 || TERMINAL.test(lines[i - 1]!)) out.add(number);
+    });
+  }
+  return out;
+}
+
+/** The depth of a numbered heading whose neighbour in the numbering (the next or the previous section) is a heading. */
+function inSequence(line: string, numbers: ReadonlySet<string>): number | null {
+  const depth = headingShape(line);
+  const number = NUMBERED.exec(line.trim())?.[1];
+  if (!depth || number === undefined) return null;
+  const parts = number.split('.').map(Number);
+  const lastPart = parts[parts.length - 1]!;
+  const sibling = (k: number): string => [...parts.slice(0, -1), k].join('.');
+  return numbers.has(sibling(lastPart + 1)) || (lastPart > 1 && numbers.has(sibling(lastPart - 1))) ? depth : null;
+}
+
+/**
  * A paragraph cut by a page break: the last paragraph of a page ends mid-sentence and the first of the next
  * page starts in lower case. Kept apart, the second half reads as a sentence of its own ("or near the
- * overhead line."), so the two become one paragraph that records both pages.
+ * overhead line."), so the two become one paragraph that records both pages and where the second begins.
  */
 function joinRunOns(items: (Block | PendingHeading)[]): (Block | PendingHeading)[] {
   const out: (Block | PendingHeading)[] = [];
@@ -244,7 +315,9 @@ function joinRunOns(items: (Block | PendingHeading)[]): (Block | PendingHeading)
       !TERMINAL.test(prev.text) &&
       /^\p{Ll}/u.test(item.text)
     ) {
-      out[out.length - 1] = { ...prev, text: `${prev.text} ${item.text}`, pageEnd: item.page };
+      // The page break is kept as an offset, so a quote from the second half is cited on its own page.
+      const pageBreaks = [...(prev.pageBreaks ?? []), { at: prev.text.length + 1, page: item.page }];
+      out[out.length - 1] = { ...prev, text: `${prev.text} ${item.text}`, pageEnd: item.page, pageBreaks };
       continue;
     }
     out.push(item);
@@ -252,15 +325,23 @@ function joinRunOns(items: (Block | PendingHeading)[]): (Block | PendingHeading)
   return out;
 }
 
-// Without font sizes, levels come from shape: an unnumbered first heading on page 1 is the
-// document title (level 1); numbered headings nest by their number depth beneath it.
+// pdf-parse's text gives no font sizes, so levels come from shape: an unnumbered first heading on
+// page 1 is the document title (level 1); numbered headings nest by their number depth beneath it;
+// a sentence-case label nests one level below the numbered heading before it. Unnumbered Title Case
+// or capitals headings keep the top level: they are as often part titles as sub-headings.
 function assignHeadingLevels(items: (Block | PendingHeading)[]): Block[] {
   const first = items.find((x): x is PendingHeading => 'depth' in x);
   const hasTitle = first !== undefined && first.depth === 0 && first.block.page === 1;
+  const offset = hasTitle ? 1 : 0;
+  let numbered = 0;
   return items.map((x) => {
     if (!('depth' in x)) return x;
-    const offset = hasTitle ? 1 : 0;
-    const level = x === first && hasTitle ? 1 : x.depth === 0 ? 1 + offset : x.depth + offset;
+    let level: number;
+    if (x === first && hasTitle) level = 1;
+    else if (x.depth > 0) level = x.depth + offset;
+    else if (x.label && numbered > 0) level = numbered + offset + 1;
+    else level = 1 + offset;
+    if (x.depth > 0) numbered = x.depth;
     return { ...x.block, level: Math.min(6, level) };
   });
 }

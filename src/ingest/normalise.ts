@@ -1,4 +1,4 @@
-import type { Block, NormalisedDocument, PlacedBlock } from '../types.js';
+import type { Block, NormalisedDocument, PageBreak, PlacedBlock } from '../types.js';
 
 // Soft hyphens and byte-order marks are invisible in print but break exact-phrase matching
 // and quote checks, so they go along with the C0/C1 controls.
@@ -24,7 +24,32 @@ export function normaliseText(s: string): string {
 
 /** Loaders hand out blocks with normalised text and no empty blocks, as the Block type promises. */
 export function cleanBlocks(blocks: Block[]): Block[] {
-  return blocks.map((b) => ({ ...b, text: normaliseText(b.text) })).filter((b) => b.text !== '');
+  return blocks.map((b) => withText(b, normaliseText)).filter((b) => b.text !== '');
+}
+
+/** The block with `rewrite` applied to its text, its page breaks moved to match. */
+function withText<T extends Block>(block: T, rewrite: (s: string) => string): T {
+  const text = rewrite(block.text);
+  if (!block.pageBreaks || block.pageBreaks.length === 0) return { ...block, text };
+  return { ...block, text, pageBreaks: moveBreaks(block.text, text, block.pageBreaks, rewrite) };
+}
+
+/**
+ * Where each page break lands after `rewrite`: rewriting the text before a break gives the
+ * rewritten text up to it (the rewrites here only drop, fold and trim characters), and the break
+ * then sits on the next non-space character, the first one of the new page.
+ */
+function moveBreaks(before: string, after: string, breaks: PageBreak[], rewrite: (s: string) => string): PageBreak[] {
+  const out: PageBreak[] = [];
+  for (const b of breaks) {
+    let at = Math.min(rewrite(before.slice(0, b.at)).length, after.length);
+    while (at < after.length && /\s/.test(after[at]!)) at++;
+    if (at <= 0 || at >= after.length) continue;
+    const last = out[out.length - 1];
+    if (last && last.at >= at) continue;
+    out.push({ at, page: b.page });
+  }
+  return out;
 }
 
 /**
@@ -49,12 +74,12 @@ export function buildNormalisedDocument(blocks: Block[]): NormalisedDocument {
   const open: (string | undefined)[] = [];
   let text = '';
   for (const block of blocks) {
-    const t = blockText(block);
+    const { text: t, ...rest } = withText(block, (s) => blockText({ ...block, text: s }));
     if (t === '') continue;
     if (text !== '') text += '\n\n';
     const start = text.length;
     text += t;
-    const out: PlacedBlock = { ...block, text: t, start, end: text.length, headingPath: [] };
+    const out: PlacedBlock = { ...rest, text: t, start, end: text.length, headingPath: [] };
     if (block.kind === 'heading') {
       const level = headingLevel(block);
       open.length = level;

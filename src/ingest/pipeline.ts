@@ -73,7 +73,8 @@ const SPECIAL_TOKENS = 2;
 
 // Bump when the loaders or chunker change in a way that changes chunks for the same bytes.
 // 2: DOCX support, `version` metadata, table rows and headings recognised in PDFs.
-const PIPELINE_VERSION = 2;
+// 3: PDF sub-headings in sentence case, and the offsets where pages begin inside a chunk (page breaks).
+const PIPELINE_VERSION = 3;
 
 export function createIngestor(deps: {
   repo: Repository;
@@ -229,8 +230,8 @@ export function createIngestor(deps: {
         text: normalised.text,
         settingsKey,
       },
-      chunks.map(({ ordinal, text, start, end, headingPath, pageStart, pageEnd, tokenCount, chunkHash }) => ({
-        ordinal, text, start, end, headingPath, pageStart, pageEnd, tokenCount, chunkHash,
+      chunks.map(({ ordinal, text, start, end, headingPath, pageStart, pageEnd, pageBreaks, tokenCount, chunkHash }) => ({
+        ordinal, text, start, end, headingPath, pageStart, pageEnd, pageBreaks, tokenCount, chunkHash,
       })),
       vectors,
       embedder.id,

@@ -296,6 +296,7 @@ function toHit(v: ChunkView, score: number, ranks: { lexical?: number; dense?: n
     score,
     ranks,
   };
+  if (v.pageBreaks.length > 0) hit.pageBreaks = v.pageBreaks;
   if (denseScore !== undefined) hit.denseScore = denseScore;
   return hit;
 }

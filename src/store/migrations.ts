@@ -126,4 +126,11 @@ export const MIGRATIONS: readonly string[] = [
   );
   CREATE INDEX answer_ratings_by_collection ON answer_ratings(collection, created_at);
   `,
+  // 4: where pages begin inside a chunk that crosses a page break, as a JSON array of [document offset, page],
+  // so a citation names the page its quote is printed on. NULL when the chunk sits on one page, and for
+  // chunks stored before this column: those are cited on page_start until the document is re-processed
+  // (the pipeline version changed with this migration, so the next re-index does that).
+  `
+  ALTER TABLE chunks ADD COLUMN page_breaks TEXT;
+  `,
 ];

@@ -1,3 +1,4 @@
+import type { PageBreak } from '../types.js';
 import type { Db } from './db.js';
 
 export interface CollectionRow {
@@ -32,8 +33,11 @@ export interface ChunkInput {
   start: number;
   end: number;
   headingPath: string[];
+  /** The page of the chunk's first character. */
   pageStart: number | null;
   pageEnd: number | null;
+  /** Pages that begin inside the chunk, in document offsets; left out, none are recorded. */
+  pageBreaks?: PageBreak[];
   tokenCount: number;
   chunkHash: string;
 }
@@ -55,6 +59,8 @@ export interface ChunkView {
   headingPath: string[];
   pageStart: number | null;
   pageEnd: number | null;
+  /** Pages that begin inside the chunk; empty for chunks stored before these were recorded. */
+  pageBreaks: PageBreak[];
   effectiveDate: string | null;
   /** The document's stated version or issue ("Issue 4", "v2.1"), when it states one. */
   version?: string | null;
@@ -209,7 +215,7 @@ export function createRepository(db: Db): Repository {
       'SELECT name, embedder_id AS embedderId, dimensions, generation FROM collections WHERE name = ?',
     ),
     chunkViews: db.prepare(`
-      SELECT k.id, k.document_id, k.text, k.start_offset, k.end_offset, k.heading_path, k.page_start, k.page_end, k.chunk_hash,
+      SELECT k.id, k.document_id, k.text, k.start_offset, k.end_offset, k.heading_path, k.page_start, k.page_end, k.page_breaks, k.chunk_hash,
         d.source, d.title, d.effective_date, json_extract(d.metadata, '$.version') AS version
       FROM chunks k JOIN documents d ON d.id = k.document_id WHERE k.id IN (SELECT value FROM json_each(?))`),
     chunkTexts: db.prepare('SELECT id, text FROM chunks WHERE id IN (SELECT value FROM json_each(?))'),
@@ -251,8 +257,8 @@ export function createRepository(db: Db): Repository {
         text = excluded.text, settings_key = excluded.settings_key, updated_at = excluded.updated_at`),
     insertChunk: db.prepare(`
       INSERT INTO chunks (document_id, ordinal, text, start_offset, end_offset, heading_path, page_start, page_end,
-        token_count, chunk_hash)
-      VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`),
+        page_breaks, token_count, chunk_hash)
+      VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`),
     insertFts: db.prepare('INSERT INTO chunks_fts (rowid, title, heading, body) VALUES (?, ?, ?, ?)'),
     insertVector: db.prepare(
       'INSERT INTO vectors (model_id, chunk_hash, dimensions, vector) VALUES (?, ?, ?, ?) ON CONFLICT DO NOTHING',
@@ -381,6 +387,7 @@ export function createRepository(db: Db): Repository {
               JSON.stringify(c.headingPath),
               c.pageStart,
               c.pageEnd,
+              c.pageBreaks && c.pageBreaks.length > 0 ? JSON.stringify(c.pageBreaks.map((b) => [b.at, b.page])) : null,
               c.tokenCount,
               c.chunkHash,
             );
@@ -464,6 +471,7 @@ export function createRepository(db: Db): Repository {
           headingPath: JSON.parse(r.heading_path as string) as string[],
           pageStart: (r.page_start as number | null) ?? null,
           pageEnd: (r.page_end as number | null) ?? null,
+          pageBreaks: parsePageBreaks(r.page_breaks),
           effectiveDate: (r.effective_date as string | null) ?? null,
           version: typeof r.version === 'string' ? r.version : null,
           chunkHash: r.chunk_hash as string,
@@ -536,4 +544,11 @@ export function createRepository(db: Db): Repository {
     },
   };
   return repo;
+}
+
+/** The stored `[[offset, page], ...]` form; NULL (a chunk stored before page breaks were recorded, or on one page) is none. */
+function parsePageBreaks(raw: unknown): PageBreak[] {
+  if (typeof raw !== 'string' || raw === '') return [];
+  const pairs = JSON.parse(raw) as [number, number][];
+  return pairs.map(([at, page]) => ({ at, page }));
 }

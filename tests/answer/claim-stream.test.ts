@@ -26,21 +26,41 @@ function run(chunks: string[]) {
 }
 
 describe('createClaimStream', () => {
-  it('releases only supported sentences, renumbered by first use, and joins them into the answer', () => {
+  it('releases only supported sentences, numbering the passages they cite by first use, and joins them into the answer', () => {
     const { s, pieces } = run([REPLY]);
-    expect(s.answer()).toBe('Umbrellas are kept for 7 days [1]. Claims for delay refunds must be made within 28 days of the journey [2]. Guide dogs travel free [1].');
+    // Umbrellas and guide dogs are two passages of the same source [2]: two numbers.
+    expect(s.answer()).toBe('Umbrellas are kept for 7 days [1]. Claims for delay refunds must be made within 28 days of the journey [2]. Guide dogs travel free [3].');
     expect(pieces.map((p) => p.text).join('')).toBe(s.answer());
     expect(s.claims().map((c) => [c.supported, c.sources])).toEqual([
       [true, [1]],
       [false, [2]],
       [true, [2]],
-      [true, [1]],
+      [true, [3]],
     ]);
     expect(s.removed()).toEqual([9]);
-    // Each citation arrives with the first piece that uses it, quoting the best sentence.
+    // Each citation arrives with the first piece that uses it, quoting the sentence behind that piece.
     expect(pieces[0]?.citations.map((c) => c.quote)).toEqual(['Umbrellas are kept for 7 days only.']);
     expect(pieces[1]?.citations[0]?.quote).toContain('within 28 days of the journey');
-    expect(s.citations().map((c) => c.n)).toEqual([1, 2]);
+    expect(pieces[2]?.citations.map((c) => c.quote)).toEqual(['Guide dogs and assistance dogs travel free on all services.']);
+    expect(s.citations().map((c) => c.n)).toEqual([1, 2, 3]);
+  });
+
+  it('shows each claim with the sentence holding its figures, though both come from one source', () => {
+    const { s, pieces } = run(['Claims must be made within 28 days of the journey [1]. Compensation is paid within 10 working days [1].']);
+    expect(s.answer()).toBe('Claims must be made within 28 days of the journey [1]. Compensation is paid within 10 working days [2].');
+    expect(s.citations().map((c) => [c.n, c.quote])).toEqual([
+      [1, 'Claims for delay refunds must be made within 28 days of the journey.'],
+      [2, 'Compensation is paid within 10 working days of a valid claim.'],
+    ]);
+    expect(pieces[1]?.citations.map((c) => c.n)).toEqual([2]);
+    for (const c of s.citations()) expect(DOCS.refund.text.slice(c.start, c.end)).toBe(c.quote);
+  });
+
+  it('gives a passage one number however many claims lean on it', () => {
+    const { s, pieces } = run(['Umbrellas are kept for 7 days [2]. Umbrellas are kept only 7 days [2].']);
+    expect(s.answer()).toBe('Umbrellas are kept for 7 days [1]. Umbrellas are kept only 7 days [1].');
+    expect(s.citations()).toHaveLength(1);
+    expect(pieces[1]?.citations).toEqual([]);
   });
 
   it('holds a sentence back until the next one has begun, so a marker after the full stop still belongs to it', () => {

@@ -1,4 +1,5 @@
 import { describe, expect, it } from 'vitest';
+import { citationFor } from '../../src/answer/cite.js';
 import { buildContext } from '../../src/answer/context.js';
 import { renderSource } from '../../src/answer/render.js';
 import { DOCS, countWords, hitAt, hitBetween } from './fixtures.js';
@@ -52,6 +53,30 @@ describe('buildContext', () => {
     const out = buildContext(hits, big);
     expect(out.map((s) => s.n)).toEqual([1, 2, 3]);
     expect(out.map((s) => s.documentId)).toEqual(['doc-refund', 'doc-refund-2025', 'doc-access']);
+  });
+
+  it('cites a quote on the page its first character is on, from the page breaks of the chunk it starts in', () => {
+    const at = (s: string): number => doc.text.indexOf(s);
+    // Chunk a runs from page 1 into page 2 (page 2 begins at "How to claim"); chunk b, merged with it, is on page 3.
+    const a = hitAt(doc, 0, at('Each claim must'), { page: 1, pageEnd: 2, pageBreaks: [{ at: at('How to claim'), page: 2 }] });
+    const b = hitAt(doc, at('Each claim must'), doc.text.length, { page: 3, pageEnd: 3 });
+    const [s] = buildContext([a, b], big);
+    const cite = (from: string, to: string): number | null => {
+      const start = s!.text.indexOf(from);
+      return citationFor(s!, start, s!.text.indexOf(to, start) + to.length, 1).page;
+    };
+    expect(cite('You can claim', 'timetable.')).toBe(1);
+    expect(cite('Claims for delay refunds', 'journey.')).toBe(2);
+    expect(cite('Compensation is paid', 'claim.')).toBe(3);
+    // A quote that runs over the break is cited where it starts.
+    expect(cite('For buses', 'journey.')).toBe(1);
+  });
+
+  it('falls back to the chunk\'s start page for chunks stored without page breaks', () => {
+    const a = hitAt(doc, 0, doc.text.length, { page: 4, pageEnd: 5 });
+    const [s] = buildContext([a], big);
+    const start = s!.text.indexOf('Compensation is paid');
+    expect(citationFor(s!, start, start + 20, 1).page).toBe(4);
   });
 
   it('keeps the best dense score, the best lexical rank and the page range of merged chunks', () => {

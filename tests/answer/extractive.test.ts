@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { buildContext } from '../../src/answer/context.js';
-import { extractAnswer, numericRanges } from '../../src/answer/extractive.js';
+import { display, extractAnswer, numericRanges } from '../../src/answer/extractive.js';
 import { SENTENCE_FEATURES } from '../../src/answer/evidence.js';
 
 const feature = (r: { ranked: { features: number[] }[] }, name: (typeof SENTENCE_FEATURES)[number]): number => r.ranked[0]?.features[SENTENCE_FEATURES.indexOf(name)] ?? 0;
@@ -22,6 +22,21 @@ function expectVerbatim(citations: { documentId: string; quote: string; start: n
   }
 }
 
+// Two paragraphs of one document, under different headings, that answer one question equally.
+const TWO_SECTIONS: DocFixture = {
+  id: 'doc-lockers',
+  title: 'Harbour Lockers',
+  effectiveDate: null,
+  text: [
+    'Harbour Lockers',
+    'North quay',
+    'Ferry lockers on the north quay are emptied every Monday at noon.',
+    'South quay',
+    'Ferry lockers on the south quay are emptied every Friday at dusk.',
+  ].join('\n\n'),
+};
+docsById.set(TWO_SECTIONS.id, TWO_SECTIONS);
+
 describe('extractAnswer', () => {
   const sources = context([wholeDoc(DOCS.refund, { score: 0.9 }), wholeDoc(DOCS.access, { score: 0.4 })]);
 
@@ -37,9 +52,10 @@ describe('extractAnswer', () => {
     const r = await extractAnswer('What happens to an umbrella somebody leaves behind?', sources);
     expect(r.citations.map((c) => c.quote)).toContain('Umbrellas are kept for 7 days only.');
     expectVerbatim(r.citations);
-    // The only source cited is the accessibility document, so it is renumbered to 1.
-    expect(r.citations.every((c) => c.n === 1 && c.documentId === 'doc-access')).toBe(true);
-    expect(r.answer).toContain('[1]');
+    // Only the accessibility document is cited; each of its quoted passages has a number of its own.
+    expect(r.citations.every((c) => c.documentId === 'doc-access')).toBe(true);
+    expect(r.citations.map((c) => c.n)).toEqual(r.citations.map((_, i) => i + 1));
+    for (const c of r.citations) expect(r.answer).toContain(`[${c.n}]`);
   });
 
   it('uses embedding similarity to answer a paraphrase with little word overlap', async () => {
@@ -66,14 +82,28 @@ describe('extractAnswer', () => {
     expectVerbatim(r.citations);
   });
 
-  it('keeps several close sentences in document order, numbered by source in order of first use', async () => {
+  it('keeps several close sentences grouped by source in order of first use, each passage with its own number', async () => {
     const ctx = context([wholeDoc(DOCS.refund, { score: 0.9 }), wholeDoc(DOCS.oldRefund, { score: 0.8 })]);
     const r = await extractAnswer('Within how many days must delay refund claims be made?', ctx);
     const quotes = r.citations.map((c) => c.quote);
     expect(quotes).toContain('Claims for delay refunds must be made within 28 days of the journey.');
     expect(quotes).toContain('Claims for delay refunds must be made within 14 days of the journey.');
-    expect(new Set(r.citations.map((c) => c.n))).toEqual(new Set([1, 2]));
-    expect(r.answer).toMatch(/\[1\].*\[2\]/);
+    // Numbers run 1, 2, 3 ... in the order the answer shows them, one per quoted passage.
+    expect(r.citations.map((c) => c.n)).toEqual(r.citations.map((_, i) => i + 1));
+    expect(r.answer).toBe(r.citations.map((c) => `${display(c.quote)} [${c.n}]`).join(' '));
+    // The current policy's passages come before the superseded one's.
+    expect(r.citations.at(-1)?.documentId).toBe('doc-refund-2025');
+    expectVerbatim(r.citations);
+  });
+
+  it('gives two quotes from one document two numbers, each following its own words', async () => {
+    const ctx = context([wholeDoc(TWO_SECTIONS)]);
+    const r = await extractAnswer('When are ferry lockers emptied?', ctx, { closeRatio: 0.5, maxSentences: 2 });
+    expect(r.citations).toHaveLength(2);
+    expect(r.citations.map((c) => c.documentId)).toEqual(['doc-lockers', 'doc-lockers']);
+    expect(r.citations.map((c) => c.n)).toEqual([1, 2]);
+    expect(r.citations[0]!.quote).not.toBe(r.citations[1]!.quote);
+    for (const c of r.citations) expect(r.answer).toContain(`${display(c.quote)} [${c.n}]`);
     expectVerbatim(r.citations);
   });
 

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { buildContext } from '../../src/answer/context.js';
-import { checkGrounding, renumberMarkers } from '../../src/answer/grounding.js';
+import { checkGrounding, renumberMarkers, supportingSpan } from '../../src/answer/grounding.js';
 import { DOCS, countWords, wholeDoc } from './fixtures.js';
 
 const sources = buildContext([wholeDoc(DOCS.refund, { score: 0.9 }), wholeDoc(DOCS.access, { score: 0.5 })], {
@@ -114,5 +114,32 @@ describe('checkGrounding reads figures, negation and the subject, not only word 
 describe('renumberMarkers', () => {
   it('rewrites markers through the mapping and drops unmapped ones', () => {
     expect(renumberMarkers('A [3]. B [1][3]. C [5].', new Map([[3, 1], [1, 2]]))).toBe('A [1]. B [2][1]. C.');
+  });
+});
+
+describe('supportingSpan', () => {
+  const [refund, access] = sources;
+  const quote = (source: typeof refund, claim: string, quotable?: (s: string) => boolean): string | null => {
+    const span = supportingSpan(source!, claim, quotable);
+    return span ? source!.text.slice(span.start, span.end) : null;
+  };
+
+  it('picks the sentence holding the claim\'s figure over one sharing more of its words', () => {
+    // "claim", "delay", "refund" all sit in the 28-day sentence; only the 10-day one holds "10".
+    expect(quote(refund, 'A delay refund claim is paid within 10 days')).toBe('Compensation is paid within 10 working days of a valid claim.');
+    expect(quote(refund, 'Delay refund claims must be made within 28 days')).toBe('Claims for delay refunds must be made within 28 days of the journey.');
+  });
+
+  it('takes two adjacent sentences only when the second adds words the claim uses', () => {
+    expect(quote(access, 'Guide dogs travel free')).toBe('Guide dogs and assistance dogs travel free on all services.');
+    expect(quote(access, 'Guide dogs travel free but must stay on a lead')).toBe(
+      'Guide dogs and assistance dogs travel free on all services. They must stay on a lead and off the seats.',
+    );
+  });
+
+  it('never quotes a sentence the caller refuses, and finds nothing when no word is shared', () => {
+    const notUmbrellas = (s: string): boolean => !s.startsWith('Umbrellas');
+    expect(quote(access, 'Umbrellas are kept for 7 days', notUmbrellas)).not.toContain('Umbrellas');
+    expect(quote(access, 'Xylophones squeak')).toBeNull();
   });
 });

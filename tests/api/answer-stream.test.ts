@@ -83,6 +83,27 @@ describe('POST /v1/answer with stream: true on the demo corpus (offline)', () =>
     expect(done.context).toMatchObject({ budgetTokens: expect.any(Number), estimated: expect.any(Boolean) });
   });
 
+  it('numbers every quoted passage once, even two from one document, and sends each with the delta that shows it', async () => {
+    // The penalty-fare notice answers this with two sentences of one document.
+    const frames = parseFrames((await post({ question: 'How much is the penalty fare?', stream: true })).body);
+    const done = frames.at(-1)?.data;
+    expect(done.abstained).toBe(false);
+    const cites: { n: number; documentId: string; quote: string }[] = done.citations;
+    expect(cites.length).toBeGreaterThanOrEqual(2);
+    expect(new Set(cites.map((c) => c.documentId)).size).toBeLessThan(cites.length);
+    expect(cites.map((c) => c.n)).toEqual(cites.map((_, i) => i + 1));
+    // The citations the deltas carried, in order, are the reply's; each delta names the ones it carries.
+    const deltas = frames.filter((f) => f.event === 'delta');
+    expect(deltas.flatMap((d) => d.data.citations ?? [])).toEqual(cites);
+    for (const d of deltas) for (const c of d.data.citations ?? []) expect(d.data.text).toContain(`[${c.n}]`);
+    // What the desk does: each claim's number opens the citation whose quote is that claim.
+    const byN = new Map(cites.map((c) => [c.n, c]));
+    for (const claim of done.claims) {
+      expect(claim.sources).toHaveLength(1);
+      expect(byN.get(claim.sources[0])?.quote.replace(/\s+/g, ' ')).toContain(claim.text);
+    }
+  });
+
   it('streams an abstention as one delta with the abstention text', async () => {
     const frames = parseFrames((await post({ question: 'What is the monthly salary of a tram driver?', stream: true })).body);
     const done = frames.at(-1)?.data;

@@ -169,10 +169,33 @@ describe('chunkDocument structure', () => {
     expect(chunks.every((c) => c.tokenCount <= 256 && !/^\p{M}/u.test(c.text))).toBe(true);
   });
 
+  it('starts a chunk on the page of its first character and records the pages that begin inside it', () => {
+    const first = 'Gates open at dawn and close at dusk every day of the year.';
+    const second = 'Keys are returned to the warden on leaving.';
+    const runOn = `${first} ${second}`;
+    const doc = buildNormalisedDocument([
+      { kind: 'heading', level: 1, text: 'Site rules', page: 1 },
+      // A paragraph that runs over from page 1 to page 2 (the loader records where page 2 begins).
+      { kind: 'paragraph', text: runOn, page: 1, pageEnd: 2, pageBreaks: [{ at: runOn.indexOf(second), page: 2 }] },
+      { kind: 'paragraph', text: 'Bonfires are allowed in November only.', page: 3 },
+    ]);
+    const whole = chunkDocument(doc, { targetTokens: 200, maxTokens: 256, overlapTokens: 0, countTokens: words });
+    expect(whole).toHaveLength(1);
+    expect([whole[0]!.pageStart, whole[0]!.pageEnd]).toEqual([1, 3]);
+    expect(whole[0]!.pageBreaks).toEqual([
+      { at: doc.text.indexOf(second), page: 2 },
+      { at: doc.text.indexOf('Bonfires'), page: 3 },
+    ]);
+    // Cut small, the chunk that starts with the page-2 sentence starts on page 2, not on its paragraph's page.
+    const small = chunkDocument(doc, { targetTokens: 10, maxTokens: 14, overlapTokens: 0, countTokens: words });
+    const onTwo = small.find((c) => c.text.startsWith('Keys are returned'))!;
+    expect([onTwo.pageStart, onTwo.pageEnd, onTwo.pageBreaks]).toEqual([2, 2, []]);
+  });
+
   it('gives unpaged documents null pages', () => {
     const doc = buildNormalisedDocument([{ kind: 'paragraph', text: 'Bikes ride free off-peak.' }]);
     const [c] = chunkDocument(doc, { targetTokens: 50, maxTokens: 60, overlapTokens: 5, countTokens: words });
-    expect(c).toMatchObject({ pageStart: null, pageEnd: null, headingPath: [], ordinal: 0 });
+    expect(c).toMatchObject({ pageStart: null, pageEnd: null, pageBreaks: [], headingPath: [], ordinal: 0 });
   });
 
   it('refuses a limit too small to hold one character', () => {

@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest';
 import {
   ENCRYPTED_MESSAGE,
   headingShape,
+  isLabelLine,
   loadPdf,
   NO_TEXT_MESSAGE,
   pagesToBlocks,
@@ -137,6 +138,15 @@ describe('PDF text clean-up', () => {
     expect(removeRunningLines(pages)).toEqual([['Body one.'], ['Body two.'], ['Something else', 'Body three.'], ['Body four.']]);
   });
 
+  it('counts the top and bottom edges apart, so a footer that repeats the title keeps the title on page 1', () => {
+    const pages = [
+      ['Plot Rules', 'Body one.', 'Plot Rules'],
+      ['Body two.', 'More of two.', 'Plot Rules'],
+      ['Body three.', 'More of three.', 'Plot Rules'],
+    ];
+    expect(removeRunningLines(pages)).toEqual([['Plot Rules', 'Body one.'], ['Body two.', 'More of two.'], ['Body three.', 'More of three.']]);
+  });
+
   it('keeps a one-page document\'s edge lines except bare page numbers', () => {
     expect(removeRunningLines([['Title line', 'Body.', 'Page 1 of 1']])).toEqual([['Title line', 'Body.']]);
   });
@@ -195,9 +205,65 @@ describe('PDF text clean-up', () => {
     expect(blocks.map((b) => b.kind)).toEqual(['paragraph', 'heading', 'paragraph']);
   });
 
-  it('joins a sentence cut by a page break into one paragraph that records both pages', () => {
+  it('joins a sentence cut by a page break into one paragraph that records both pages and where the second begins', () => {
     const blocks = pagesToBlocks([['This sentence runs on and on past the end of'], ['the page and ends here.']]);
-    expect(blocks).toEqual([{ kind: 'paragraph', text: 'This sentence runs on and on past the end of the page and ends here.', page: 1, pageEnd: 2 }]);
+    const text = 'This sentence runs on and on past the end of the page and ends here.';
+    expect(blocks).toEqual([{ kind: 'paragraph', text, page: 1, pageEnd: 2, pageBreaks: [{ at: text.indexOf('the page'), page: 2 }] }]);
+  });
+
+  it('moves a page break with the text when clean-up drops characters before it', () => {
+    // A soft hyphen (U+00AD) is removed by normalisation; the break must still open "the page".
+    const blocks = pagesToBlocks([['This sentence runs on\u00AD and on past the end of'], ['the page and ends here.']]);
+    const b = blocks[0]!;
+    expect(b.text.slice(b.pageBreaks![0]!.at)).toBe('the page and ends here.');
+  });
+
+  it('takes a short sentence-case line between a finished sentence and prose as a sub-heading', () => {
+    const long = 'Members renew their cards at any desk, and a renewal runs for one year from that day on.';
+    const blocks = pagesToBlocks([['Lending rules', long, 'Late returns', long, 'Books come back to any branch of the service within the loan period shown.']]);
+    expect(blocks.map((b) => [b.kind, b.text.slice(0, 14)])).toEqual([
+      ['heading', 'Lending rules'],
+      ['paragraph', long.slice(0, 14)],
+      ['heading', 'Late returns'],
+      ['paragraph', long.slice(0, 14)],
+    ]);
+  });
+
+  it('leaves short lines that are not between a finished sentence and prose in the body', () => {
+    const long = 'Members renew their cards at any desk, and a renewal runs for one year from that day on.';
+    // After an unfinished line (a wrapped sentence) and before another short line (a grid).
+    const wrapped = pagesToBlocks([[long, 'Cards that are lost are replaced for a small fee and', 'Replacement cards', long]]);
+    expect(wrapped.some((b) => b.kind === 'heading' && b.text === 'Replacement cards')).toBe(false);
+    const grid = pagesToBlocks([[long, 'Card type Fee', 'Adult card 2 pounds', 'Child card none', long]]);
+    expect(grid.filter((b) => b.kind === 'heading')).toEqual([]);
+  });
+
+  it('accepts a label shape only for short capitalised lines without inner punctuation or an open ending', () => {
+    expect(isLabelLine('Keys and gates', 70)).toBe(true);
+    expect(isLabelLine('How long deposits are held', 70)).toBe(true);
+    expect(isLabelLine('What happens if I am late?', 70)).toBe(true);
+    expect(isLabelLine('Parking and', 70)).toBe(false);
+    expect(isLabelLine('Wardens walk the site every evening', 20)).toBe(false);
+    expect(isLabelLine('Next check: June 2028', 70)).toBe(false);
+    expect(isLabelLine('Site Hut, Orchard Lane', 70)).toBe(false);
+    expect(isLabelLine('see the table below', 70)).toBe(false);
+    expect(isLabelLine('Cards are renewed at the desk for one year from the day', 90)).toBe(false);
+  });
+
+  it('nests a sentence-case sub-heading under the numbered section before it', () => {
+    const long = 'Members renew their cards at any desk, and a renewal runs for one year from that day on.';
+    const blocks = pagesToBlocks([['Library Guide', '1. Cards', long, 'Lost cards', long, '2. Loans', long]]);
+    expect(blocks.filter((b) => b.kind === 'heading').map((b) => [b.text, b.level])).toEqual([
+      ['Library Guide', 1],
+      ['1. Cards', 2],
+      ['Lost cards', 3],
+      ['2. Loans', 2],
+    ]);
+  });
+
+  it('keeps a numbered list item after an unfinished line in its list when no section is numbered beside it', () => {
+    const blocks = pagesToBlocks([['Before a visit, staff always check the following items in this order', '1. Check the address book', '2. Check the diary for the day and the expected finish time of each visit.']]);
+    expect(blocks.filter((b) => b.kind === 'heading')).toEqual([]);
   });
 
   it('keeps paragraphs apart at a page break when the first ends a sentence or the next starts a new one', () => {
