@@ -29,6 +29,10 @@ Usage:
                                                  bring every remembered folder's documents up to date
   sourcebound eval retrieval --corpus F --queries F --qrels F [--mode M] [--k N] [--run F] [--json]
                                                  measure retrieval on a test collection (TREC qrels)
+  sourcebound eval answers --questions F [--docs DIR] [--extractive] [--json]
+                                                 measure answers on a labelled question set
+  sourcebound eval fit --features F[,F...] [--out-dir D] [--module F]
+                                                 fit the answer models, leave one corpus out
   sourcebound model pull [<id>]                  download the embedding model into the model folder
   sourcebound model status                       say which embedder the service would use
   sourcebound key new [--id ID] [--scopes query,ingest,admin] [--collections C1,C2|*]
@@ -49,6 +53,13 @@ export async function main(argv: string[], env: Record<string, string | undefine
   if (!command || command === 'help' || command === '--help' || command === '-h') {
     process.stdout.write(`${USAGE}\n`);
     return command ? 0 : 2;
+  }
+  // `<command> --help` prints the usage instead of running the command (`eval` has its own, fuller help).
+  if (command !== 'eval' && (rest.includes('--help') || rest.includes('-h'))) {
+    const lines = USAGE.split('\n');
+    const mine = lines.filter((l, i) => l.startsWith(`  sourcebound ${command}`) || (i > 0 && /^\s{40,}/.test(l) && lines.slice(0, i).reverse().find((x) => !/^\s{40,}/.test(x))?.startsWith(`  sourcebound ${command}`)));
+    process.stdout.write(`${mine.length > 0 ? `Usage:\n${mine.join('\n')}` : USAGE}\n`);
+    return 0;
   }
   switch (command) {
     case 'serve':

@@ -248,6 +248,7 @@ export function answererOptions(config: Readonly<Config>): AnswererOptions {
     contextBudgetTokens: config.answer.contextBudgetTokens,
     minSupport: config.answer.minSupport,
     rewriteWithCompletion: config.answer.rewriteWithCompletion,
+    minAnswerProbability: config.answer.minAnswerProbability,
     ...(config.answer.modelFile ? { model: readAnswerModel(config.answer.modelFile) } : {}),
   };
 }

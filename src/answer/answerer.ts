@@ -29,6 +29,8 @@ export interface AnswererOptions {
   maxSources?: number;
   /** The sentence ranker, answer/abstain decision and calibration (default: the fitted model). */
   model?: AnswerModel;
+  /** Overrides the decision's fitted threshold. */
+  minAnswerProbability?: number | null;
   /** Rewrite follow-ups with the completion endpoint when there is one (default true). */
   rewriteWithCompletion?: boolean;
 }
@@ -92,7 +94,11 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
       ? borrowedTokenizer('custom', deps.countTokens)
       : borrowedTokenizer(`embedder:${deps.embedder.id}`, (s) => deps.embedder.countTokens(s)));
   const opts = deps.options;
-  const model = opts.model ?? FITTED_MODEL;
+  const fitted = opts.model ?? FITTED_MODEL;
+  const model: AnswerModel =
+    opts.minAnswerProbability === undefined || opts.minAnswerProbability === null
+      ? fitted
+      : { ...fitted, decision: { ...fitted.decision, threshold: opts.minAnswerProbability } };
   // The models were fitted on extractive answers with the hashing embedder; a learned embedder's
   // cosines or a generated answer were never part of the fit, so their scores stay raw.
   const fittedSetUp = !deps.embedder.semantic;

@@ -47,28 +47,14 @@ export const SENTENCE_FEATURES = [
   'tableRow',
 ] as const;
 
-/** Features of a question's best evidence, in the order the decision's weights use. */
-export const QUESTION_FEATURES = [
-  // The ranker's probability for the best sentence.
-  'bestProbability',
-  // The best sentence's own coverage and its coverage with context.
-  'bestCoverage',
-  'bestContextCoverage',
-  // The highest context coverage of any candidate (the question's topic is in the context at all).
-  'maxContextCoverage',
-  // The best sentence lacks the type of fact asked for.
-  'bestKindMissed',
-  // Rarity-weighted share of the question's topic terms that the collection never uses.
-  'unknownShare',
-  // Some topic term is unknown to the collection.
-  'unknownAny',
-  // Share of topic terms unknown to the collection with no related word in it either.
-  'strangeShare',
-  // Coverage of the question by the best sentence's whole passage.
-  'bestPassageCoverage',
-  // How far the best sentence stands above the second.
-  'margin',
-] as const;
+/**
+ * Features of a question's evidence, in the order the decision's weights use. Three, because the
+ * labelled sets hold 33 unanswerable questions in all, and a logistic model needs about ten events
+ * per variable to be stable (Peduzzi et al., J Clin Epidemiol 1996, a rule of thumb of the trade):
+ * how well the best sentence covers the question with its context, how well anything in the
+ * context does, and how much of the question names things the collection never mentions.
+ */
+export const QUESTION_FEATURES = ['bestContextCoverage', 'maxContextCoverage', 'unknownShare'] as const;
 
 export interface LinearModel {
   names: readonly string[];
@@ -110,35 +96,17 @@ export function weighedTerms(q: Pick<QuestionAnalysis, 'terms' | 'weights'>): We
 /** The question-level features from the ranked candidates (best first) and the question's terms. */
 export function questionFeatures(ranked: readonly Pick<RankedSentence, 'features' | 'p'>[], terms: readonly WeighedTerm[]): number[] {
   const best = ranked[0];
-  const second = ranked[1];
   let topic = 0;
   let unknown = 0;
-  let unknownAny = 0;
-  let strange = 0;
   for (const t of terms) {
     if (t.light) continue;
     topic += t.weight;
-    if (!t.known) {
-      unknown += t.weight;
-      unknownAny = 1;
-      if (!t.related) strange += t.weight;
-    }
+    if (!t.known) unknown += t.weight;
   }
-  const at = (name: (typeof SENTENCE_FEATURES)[number]): number => SENTENCE_FEATURES.indexOf(name);
+  const ctx = SENTENCE_FEATURES.indexOf('contextCoverage');
   let maxCtx = 0;
-  for (const r of ranked) maxCtx = Math.max(maxCtx, r.features[at('contextCoverage')] ?? 0);
-  return [
-    best?.p ?? 0,
-    best?.features[at('coverage')] ?? 0,
-    best?.features[at('contextCoverage')] ?? 0,
-    maxCtx,
-    best?.features[at('kindMissed')] ?? 0,
-    topic > 0 ? unknown / topic : 0,
-    unknownAny,
-    topic > 0 ? strange / topic : 0,
-    best?.features[at('passageCoverage')] ?? 0,
-    best ? best.p - (second?.p ?? 0) : 0,
-  ];
+  for (const r of ranked) maxCtx = Math.max(maxCtx, r.features[ctx] ?? 0);
+  return [best?.features[ctx] ?? 0, maxCtx, topic > 0 ? unknown / topic : 0];
 }
 
 export interface Decision {

@@ -108,6 +108,13 @@ const answer = z
       .nullable()
       .default(null)
       .describe('Folder of per-collection terms files (<collection>.json: {"groups": [[words that mean the same]]}); null = <dataDir>/terms'),
+    minAnswerProbability: z
+      .number()
+      .min(0)
+      .max(1)
+      .nullable()
+      .default(null)
+      .describe('Answer only when the fitted decision gives at least this probability; null uses the fitted threshold (raise it to abstain more)'),
     modelFile: z
       .string()
       .nullable()

@@ -444,6 +444,11 @@ async function runFit(args: string[]): Promise<number> {
       `  ${f.corpus.padEnd(22)} questions ${String(f.questions).padStart(5)}  never abstaining ${f.correctIfAlwaysAnswering.toFixed(3)}  correct ${f.correct.toFixed(3)}  false abstention ${f.falseAbstention.toFixed(3)}  unanswerable abstained ${f.unanswerableAbstained === null ? '  -  ' : f.unanswerableAbstained.toFixed(3)}`,
     );
     for (const b of f.reliability) lines.push(`      confidence ${b.from.toFixed(1)}-${b.to.toFixed(1)}: ${b.answers} answers, mean ${b.meanConfidence.toFixed(3)}, correct ${b.correct.toFixed(3)}`);
+    for (const t of f.tradeOff) {
+      lines.push(
+        `      at threshold ${t.threshold.toFixed(1)}: correct ${t.correct.toFixed(3)}, false abstention ${t.falseAbstention.toFixed(3)}, unanswerable abstained ${t.unanswerableAbstained === null ? '-' : t.unanswerableAbstained.toFixed(3)}`,
+      );
+    }
   }
   lines.push(`decision threshold (all corpora): ${result.model.decision.threshold}`);
   process.stdout.write(`${lines.join('\n')}\n`);

@@ -253,7 +253,7 @@ describe('answer rules on the offline path', () => {
     expect(known.abstained).toBe(false);
     expect(known.answer).toContain('28 days');
     const unknown = await answerer.answer({ question: 'Is there wifi and a toilet on board?', collection: 'default', explain: true });
-    expect(unknown.features?.unknownAny).toBe(1);
+    expect(unknown.features?.unknownShare).toBeGreaterThan(0);
     expect(unknown.abstained).toBe(true);
   });
 });
