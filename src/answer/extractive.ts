@@ -136,20 +136,27 @@ export async function extractAnswer(question: string, sources: ContextSource[], 
   return { answer, citations, ranked: ranked.slice(0, MAX_RANKED), question: analysis };
 }
 
-/** The best sentence and the next ones close to it in probability, without repeats. */
-export function chooseSentences<T extends { text: string; p: number }>(ranked: T[], maxSentences: number, closeRatio: number): T[] {
+/**
+ * The best sentence and the next ones close to it in probability, without repeats. A further
+ * sentence must share at least one question term (itself or through its headings and the sentence
+ * before it): one that shares none is never part of the answer, however the ranker scored it.
+ */
+export function chooseSentences<T extends { text: string; p: number; features: readonly number[] }>(ranked: T[], maxSentences: number, closeRatio: number): T[] {
   const best = ranked[0];
   if (!best) return [];
   const chosen = [best];
   const seen = new Set([best.text]);
   for (const r of ranked.slice(1)) {
     if (chosen.length >= maxSentences || r.p < closeRatio * best.p) break;
-    if (seen.has(r.text)) continue;
+    if (seen.has(r.text) || !((r.features[CONTEXT_AT] ?? 0) > 0)) continue;
     seen.add(r.text);
     chosen.push(r);
   }
   return chosen;
 }
+
+// Index of the context coverage in the feature vector (see SENTENCE_FEATURES).
+const CONTEXT_AT = SENTENCE_FEATURES.indexOf('contextCoverage');
 
 // Index of the cosine in the feature vector (see SENTENCE_FEATURES).
 const COS_AT = SENTENCE_FEATURES.indexOf('cosine');
