@@ -63,7 +63,8 @@ describe('seed-docs PDF generator', () => {
 
   beforeAll(async () => {
     outDir = await mkdtemp(join(tmpdir(), 'sourcebound-seed-'));
-    await run(process.execPath, [join(seedDir, 'build-pdfs.mjs'), outDir]);
+    // Killed inside the hook's own timeout, so a hung generator fails here, naming the command.
+    await run(process.execPath, [join(seedDir, 'build-pdfs.mjs'), outDir], { timeout: 50_000, killSignal: 'SIGKILL' });
   });
 
   afterAll(async () => {

@@ -82,6 +82,9 @@ export function createJobQueue(deps: {
   };
 
   let worker: Worker | null = null;
+  // Set from the worker's 'exit', listened for from its creation: close() must not wait for an exit that
+  // already happened (a crashed worker), since 'exit' is emitted only once.
+  let workerExited = false;
   let draining = false;
   let closed = false;
 
@@ -105,6 +108,7 @@ export function createJobQueue(deps: {
       if (m.done) finished(m.done);
     });
     worker.on('error', (err) => log.error({ err }, 'job worker crashed'));
+    worker.once('exit', () => (workerExited = true));
     worker.unref();
   }
 
@@ -122,7 +126,7 @@ export function createJobQueue(deps: {
     },
     async close() {
       closed = true;
-      if (worker) {
+      if (worker && !workerExited) {
         worker.postMessage({ stop: true });
         await new Promise<void>((resolve) => {
           const t = setTimeout(() => void worker!.terminate().then(() => resolve()), 30_000);

@@ -1,7 +1,8 @@
 import { afterEach, describe, expect, it } from 'vitest';
 import { CompletionError, createCompletionClient, parseRetryAfter, type CompletionClientOptions } from '../../src/answer/completion.js';
 import type { ChatMessage } from '../../src/answer/types.js';
-import { okReply, startStub, streamReply, type StubReply, type StubServer } from './stub-server.js';
+import { waitFor } from '../fixtures/wait.js';
+import { NEVER, okReply, startStub, streamReply, type StubReply, type StubServer } from './stub-server.js';
 
 const messages: ChatMessage[] = [
   { role: 'system', content: 'Answer from the sources.' },
@@ -40,6 +41,20 @@ async function failure(p: Promise<unknown>): Promise<CompletionError> {
   );
   expect(err).toBeInstanceOf(CompletionError);
   return err as CompletionError;
+}
+
+/**
+ * Starts a call and cancels it once the endpoint has received it (its `n`th request), so the cancel always
+ * lands on a request in flight; returns the call's error. A call that ends before reaching the endpoint
+ * stops the wait and returns its own error for the test to check.
+ */
+async function cancelInFlight(client: ReturnType<typeof createCompletionClient>, stub: StubServer, n: number): Promise<CompletionError> {
+  const ctl = new AbortController();
+  let ended = false;
+  const call = client.complete(messages, ctl.signal).finally(() => (ended = true));
+  await waitFor(() => stub.seen.length >= n || ended, { what: `request ${n} to reach the completion endpoint`, timeoutMs: 10_000 });
+  ctl.abort();
+  return failure(call);
 }
 
 describe('createCompletionClient', () => {
@@ -102,7 +117,8 @@ describe('createCompletionClient', () => {
   });
 
   it('reports a timeout when the server is slower than the per-attempt limit', async () => {
-    const { client, stub } = await setup([{ delayMs: 1500, ...okReply('late') }], { timeoutMs: 100, retries: 1 });
+    // An endpoint that never answers, so the per-attempt limit is what ends each attempt on any machine.
+    const { client, stub } = await setup([{ replyWhen: NEVER, ...okReply('late') }], { timeoutMs: 100, retries: 1 });
     const err = await failure(client.complete(messages));
     expect(err.reason).toBe('timeout');
     expect(stub.seen).toHaveLength(2);
@@ -144,11 +160,11 @@ describe('createCompletionClient', () => {
   });
 
   it('stops at once when the caller cancels', async () => {
-    const { client } = await setup([{ delayMs: 1500, ...okReply('late') }]);
-    const ctl = new AbortController();
-    setTimeout(() => ctl.abort(), 50);
-    const err = await failure(client.complete(messages, ctl.signal));
+    const { client, stub } = await setup([{ replyWhen: NEVER, ...okReply('late') }]);
+    const err = await cancelInFlight(client, stub, 1);
     expect(err.reason).toBe('aborted');
+    // Cancelled, not retried.
+    expect(stub.seen).toHaveLength(1);
   });
 });
 
@@ -201,8 +217,11 @@ describe('createCompletionClient streaming', () => {
   });
 
   it('cuts a stream that stalls longer than the timeout between events', async () => {
-    const { client } = await setup([streamReply(['a', 'b', 'c'], { eventGapMs: 400 })], { timeoutMs: 150, retries: 0 });
-    expect((await failure(client.stream?.(messages, () => undefined) ?? Promise.resolve())).reason).toBe('stream_cut');
+    // After the first event the stream goes quiet for good: only the stall timeout can end it.
+    const { client } = await setup([streamReply(['a', 'b', 'c'], { pauseAfter: 1, resumeWhen: NEVER })], { timeoutMs: 150, retries: 0 });
+    const pieces: string[] = [];
+    expect((await failure(client.stream?.(messages, (t) => pieces.push(t)) ?? Promise.resolve())).reason).toBe('stream_cut');
+    expect(pieces).toEqual(['a']);
   });
 });
 
@@ -224,11 +243,10 @@ describe('createCompletionClient circuit breaker', () => {
   });
 
   it('does not count a caller cancelling as an endpoint failure', async () => {
-    const { client } = await setup([{ delayMs: 1000, ...okReply('late') }], { retries: 0, breaker: { failureThreshold: 1, coolDownMs: 10_000 } });
-    const ctl = new AbortController();
-    setTimeout(() => ctl.abort(), 30);
-    expect((await failure(client.complete(messages, ctl.signal))).reason).toBe('aborted');
-    // The circuit is still closed: the next call reaches the server.
-    expect((await failure(client.complete(messages, AbortSignal.timeout(30)))).reason).toBe('aborted');
+    const { client, stub } = await setup([{ replyWhen: NEVER, ...okReply('late') }], { retries: 0, breaker: { failureThreshold: 1, coolDownMs: 10_000 } });
+    expect((await cancelInFlight(client, stub, 1)).reason).toBe('aborted');
+    // The circuit is still closed: the next call reaches the server (an open circuit would refuse it at once).
+    expect((await cancelInFlight(client, stub, 2)).reason).toBe('aborted');
+    expect(stub.seen).toHaveLength(2);
   });
 });

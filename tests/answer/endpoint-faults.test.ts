@@ -8,7 +8,7 @@ import { createCompletionClient, type CompletionClientOptions } from '../../src/
 import type { AnswerEvent, AnswerReply } from '../../src/answer/types.js';
 import type { SearchHit } from '../../src/types.js';
 import { DOCS, conceptEmbedder, countWords, wholeDoc, type DocFixture } from './fixtures.js';
-import { okReply, startStub, streamReply, type StubReply, type StubServer } from './stub-server.js';
+import { NEVER, okReply, startStub, streamReply, type StubReply, type StubServer } from './stub-server.js';
 
 const NOTICE: DocFixture = {
   id: 'doc-notice',
@@ -43,7 +43,9 @@ async function answererFor(replies: StubReply[], over: Partial<CompletionClientO
     model: 'mvt-test-model',
     temperature: 0,
     maxTokens: 200,
-    timeoutMs: 400,
+    // Generous, so a reply that comes at once is never taken for a slow one on a busy machine; the test of a
+    // slow endpoint sets its own short limit (its endpoint never answers, so only the limit ends the wait).
+    timeoutMs: 5000,
     retries: 1,
     sleep: async (ms) => {
       waits.push(ms);
@@ -99,13 +101,13 @@ describe('answers against a misbehaving completion endpoint', () => {
   });
 
   it.each([
-    ['slow beyond the timeout', [{ delayMs: 1500, ...okReply(GOOD) }], 'completion_timeout'],
+    ['slow beyond the timeout', [{ replyWhen: NEVER, ...okReply(GOOD) }], 'completion_timeout', { timeoutMs: 400 }],
     ['500 on every attempt', [{ status: 500, body: { error: 'overloaded' } }], 'completion_http_500'],
     ['malformed JSON', [{ body: '{"choices": [' }], 'completion_malformed'],
     ['a stream cut mid-way', [{ ...streamReply(['Claims for delay refunds must be made within 28 days of the journey [1]. ', 'Compensation is paid within ', '10 working days [1].']), cutAfter: 2 }], 'completion_stream_cut'],
     ['a stream of events that are not JSON', [{ events: ['{"choices":[{"delta":{"content":"Claims"}}]}', 'garbage', '[DONE]'] }], 'completion_malformed'],
-  ] as [string, StubReply[], string][])('falls back to a correct extractive answer when the endpoint is %s', async (_name, replies, reason) => {
-    const { answerer } = await answererFor(replies);
+  ] as [string, StubReply[], string, Partial<CompletionClientOptions>?][])('falls back to a correct extractive answer when the endpoint is %s', async (_name, replies, reason, over) => {
+    const { answerer } = await answererFor(replies, over);
     const { r, events } = await ask(answerer);
     expect(r.mode).toBe('extractive');
     expect(r.fallbackReason).toBe(reason);

@@ -8,8 +8,12 @@ export interface StubReply {
   headers?: Record<string, string>;
   /** A string is sent as is; anything else as JSON. */
   body?: unknown;
-  /** Wait this long before replying. */
-  delayMs?: number;
+  /**
+   * Reply only once this settles: lets a test hold the endpoint "busy" for exactly as long as it needs (until
+   * a client gave up, a server started shutting down), rather than for a delay that assumes a machine speed.
+   * `NEVER` models an endpoint that never answers.
+   */
+  replyWhen?: Promise<unknown>;
   /**
    * Reply as a server-sent event stream instead: each string is one event's data (send
    * '[DONE]' yourself to end properly). Ignores `body`.
@@ -17,6 +21,10 @@ export interface StubReply {
   events?: string[];
   /** Pause between stream events. */
   eventGapMs?: number;
+  /** After this many events, hold the stream open (sending nothing) until `resumeWhen` settles. */
+  pauseAfter?: number;
+  /** See `pauseAfter`; `NEVER` gives a stream that stalls for good. */
+  resumeWhen?: Promise<unknown>;
   /** Destroy the connection after this many events (a stream cut mid-way). */
   cutAfter?: number;
 }
@@ -26,6 +34,16 @@ export interface SeenRequest {
   url: string;
   headers: IncomingMessage['headers'];
   body: unknown;
+}
+
+/** A promise that never settles: a reply or stream held with it never comes. */
+export const NEVER: Promise<never> = new Promise<never>(() => undefined);
+
+/** A promise the test settles itself, e.g. as a stub's `replyWhen` or `resumeWhen`. */
+export function gate(): { promise: Promise<void>; open(): void } {
+  let open!: () => void;
+  const promise = new Promise<void>((r) => (open = r));
+  return { promise, open };
 }
 
 export interface StubServer {
@@ -50,6 +68,15 @@ export function streamReply(pieces: string[], over: Partial<StubReply> = {}): St
 export async function startStub(replies: StubReply[]): Promise<StubServer> {
   const seen: SeenRequest[] = [];
   let i = 0;
+  // Pending stream timers, cleared on close so none fires into a closed server.
+  const timers = new Set<NodeJS.Timeout>();
+  const later = (fn: () => void, ms: number): void => {
+    const t = setTimeout(() => {
+      timers.delete(t);
+      fn();
+    }, ms);
+    timers.add(t);
+  };
   const server: Server = createServer((req, res) => {
     const chunks: Buffer[] = [];
     req.on('data', (c: Buffer) => chunks.push(c));
@@ -66,10 +93,16 @@ export async function startStub(replies: StubReply[]): Promise<StubServer> {
       const sendEvents = (events: string[]): void => {
         res.writeHead(reply.status ?? 200, { 'content-type': 'text/event-stream', ...reply.headers });
         let k = 0;
+        let paused = false;
         const next = (): void => {
           if (res.destroyed) return;
           if (reply.cutAfter !== undefined && k >= reply.cutAfter) {
             res.destroy();
+            return;
+          }
+          if (!paused && reply.pauseAfter !== undefined && k === reply.pauseAfter && reply.resumeWhen) {
+            paused = true;
+            void reply.resumeWhen.then(next, next);
             return;
           }
           const data = events[k++];
@@ -78,7 +111,7 @@ export async function startStub(replies: StubReply[]): Promise<StubServer> {
             return;
           }
           res.write(`data: ${data}\n\n`);
-          setTimeout(next, reply.eventGapMs ?? 0);
+          later(next, reply.eventGapMs ?? 0);
         };
         next();
       };
@@ -92,17 +125,22 @@ export async function startStub(replies: StubReply[]): Promise<StubServer> {
         res.writeHead(reply.status ?? 200, { 'content-type': 'application/json', ...reply.headers });
         res.end(payload);
       };
-      if (reply.delayMs) setTimeout(send, reply.delayMs);
+      if (reply.replyWhen) void reply.replyWhen.then(send, send);
       else send();
     });
   });
-  await new Promise<void>((resolve) => server.listen(0, '127.0.0.1', resolve));
+  await new Promise<void>((resolve, reject) => {
+    server.once('error', reject);
+    server.listen(0, '127.0.0.1', resolve);
+  });
   const { port } = server.address() as AddressInfo;
   return {
     baseUrl: `http://127.0.0.1:${port}/v1`,
     seen,
     close: () =>
       new Promise<void>((resolve) => {
+        for (const t of timers) clearTimeout(t);
+        timers.clear();
         server.closeAllConnections();
         server.close(() => resolve());
       }),

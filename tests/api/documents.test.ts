@@ -8,6 +8,7 @@ import { createDocumentService, createJobQueue, type JobQueue } from '../../src/
 import { silentLogger } from '../../src/logger.js';
 import { appDeps, type Runtime } from '../../src/runtime.js';
 import { SEED_DIR, tempRuntime } from '../fixtures/runtime.js';
+import { collect, hasExited, withDeadline } from '../fixtures/wait.js';
 
 let rt: Runtime;
 let app: FastifyInstance;
@@ -145,9 +146,8 @@ describe('a 200 MB upload over real HTTP', () => {
     const url = new URL('/v1/collections/uploads/documents', address);
     const before = process.memoryUsage().rss;
     // A separate client process streams 200 MB of multipart body, with and without a Content-Length.
-    const client = (withLength: boolean) =>
-      new Promise<{ status: number; code: string }>((resolve, reject) => {
-        const script = `
+    const client = async (withLength: boolean): Promise<{ status: number; code: string }> => {
+      const script = `
           const http = require('node:http');
           const total = 200 * 1024 * 1024, boundary = 'b0undary';
           const head = Buffer.from('--' + boundary + '\\r\\nContent-Disposition: form-data; name="file"; filename="big.txt"\\r\\n\\r\\n');
@@ -162,18 +162,22 @@ describe('a 200 MB upload over real HTTP', () => {
           req.write(head);
           (function pump() { while (sent < total) { sent += chunk.length; if (!req.write(chunk)) return req.once('drain', pump); } req.end(tail); })();
         `;
-        const p = spawn(process.execPath, ['-e', script], { stdio: ['ignore', 'pipe', 'inherit'] });
-        let out = '';
-        p.stdout.on('data', (d) => (out += String(d)));
-        p.on('exit', () => {
-          try {
-            const r = JSON.parse(out) as { status: number; body: string };
-            resolve({ status: r.status, code: JSON.parse(r.body).error.code });
-          } catch (err) {
-            reject(new Error(`client output: ${out} (${String(err)})`));
-          }
-        });
-      });
+      const p = spawn(process.execPath, ['-e', script], { stdio: ['ignore', 'pipe', 'pipe'] });
+      // Collected from the spawn on; 'close' (not 'exit') means stdout has been read to its end.
+      const out = collect(p);
+      const what = `the upload client (${withLength ? 'with' : 'without'} a Content-Length) to get its reply`;
+      try {
+        await withDeadline(out.closed, { what, timeoutMs: 45_000, detail: () => out.output() });
+      } finally {
+        if (!hasExited(p)) p.kill('SIGKILL');
+      }
+      try {
+        const r = JSON.parse(out.stdout()) as { status: number; body: string };
+        return { status: r.status, code: JSON.parse(r.body).error.code };
+      } catch (err) {
+        throw new Error(`client output: ${out.output()} (${String(err)})`);
+      }
+    };
     const declared = await client(true);
     expect(declared).toEqual({ status: 413, code: 'SB_ERR_UPLOAD_TOO_LARGE' });
     const streamed = await client(false);

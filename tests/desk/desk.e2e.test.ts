@@ -1,11 +1,11 @@
-import { spawnSync, type ChildProcess } from 'node:child_process';
 import { createHash } from 'node:crypto';
 import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { chromium, type Browser, type BrowserContext, type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { CLI, ROOT, startServe } from '../fixtures/serve.js';
+import { CLI, ROOT, startServe, type ServeProcess } from '../fixtures/serve.js';
+import { runSync } from '../fixtures/wait.js';
 
 // The reference desk in a real browser (Debian's Chromium driven by playwright-core) against a real
 // `sourcebound serve` on the demo documents, offline with the hashing embedder, with auth on.
@@ -28,7 +28,7 @@ if (!RUN) {
   console.warn(`desk browser tests skipped: ${CHROMIUM} not found (apt-get install chromium to run them)`);
 }
 
-let child: ChildProcess;
+let server: ServeProcess | undefined;
 let base = '';
 let dataDir = '';
 let browser: Browser;
@@ -47,8 +47,7 @@ beforeAll(async () => {
       auth: { required: true, keys: [{ id: 'desk-staff', sha256: createHash('sha256').update(KEY).digest('hex'), scopes: ['query'], collections: ['*'] }] },
     }),
   );
-  const server = await startServe({ SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_CONFIG: configFile });
-  child = server.child;
+  server = await startServe({ SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_CONFIG: configFile });
   base = server.base;
   browser = await chromium.launch({
     executablePath: CHROMIUM,
@@ -65,7 +64,8 @@ beforeAll(async () => {
 
 afterAll(async () => {
   await browser?.close();
-  if (child && child.exitCode === null) child.kill('SIGKILL');
+  // Gone before its data folder is removed, so it cannot write into the folder while it is being deleted.
+  await server?.stop();
   if (dataDir) rmSync(dataDir, { recursive: true, force: true });
 });
 
@@ -245,7 +245,7 @@ describe.runIf(RUN)('the reference desk', () => {
   it('exports the stored ratings as a question set that `eval answers` reads', () => {
     const out = path.join(dataDir, 'rated.jsonl');
     const env = { ...process.env, SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing' };
-    const ex = spawnSync(process.execPath, [CLI, 'feedback', 'export', '--out', out], { cwd: ROOT, env, encoding: 'utf8' });
+    const ex = runSync(process.execPath, [CLI, 'feedback', 'export', '--out', out], { cwd: ROOT, env });
     expect(ex.status, ex.stderr).toBe(0);
     expect(existsSync(out)).toBe(true);
     const lines = readFileSync(out, 'utf8').trim().split('\n').map((l) => JSON.parse(l) as Record<string, any>);
@@ -256,7 +256,7 @@ describe.runIf(RUN)('the reference desk', () => {
     for (const f of lines[0]!.expect.facts as string[]) expect(firstAnswer).toContain(f);
     expect(lines[0]!.note).toContain('Matches the office notice.');
     expect(lines[1]).toMatchObject({ kind: 'unanswerable', expect: {} });
-    const ev = spawnSync(process.execPath, [CLI, 'eval', 'answers', '--questions', out, '--json'], { cwd: ROOT, env, encoding: 'utf8' });
+    const ev = runSync(process.execPath, [CLI, 'eval', 'answers', '--questions', out, '--json'], { cwd: ROOT, env });
     expect(ev.status, ev.stderr).toBe(0);
     const report = JSON.parse(ev.stdout) as { questions: number; answerable: { total: number; correct: number }; unanswerable: { total: number; abstained: number } };
     expect(report.questions).toBe(2);

@@ -1,9 +1,10 @@
-import { spawn, spawnSync } from 'node:child_process';
+import { spawn } from 'node:child_process';
 import { cpSync, mkdirSync, mkdtempSync, renameSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import Database from 'better-sqlite3';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { collect, hasExited, runSync, waitFor, waitForExit } from '../fixtures/wait.js';
 
 // Crash tests of the nightly re-index, in SQLite's manner: a real `sourcebound reindex` process is killed with
 // SIGKILL at several points of its run (watched through the database, so each kill lands at a known stage);
@@ -29,7 +30,7 @@ const name = (i: number) => `notice-${String(i).padStart(3, '0')}.md`;
 const env = (dataDir: string) => ({ ...process.env, SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_LOG_LEVEL: 'warn' });
 
 function run(dataDir: string, args: string[]): { documents: Record<string, number> } {
-  const r = spawnSync(process.execPath, [CLI, ...args, '--json'], { env: env(dataDir), encoding: 'utf8' });
+  const r = runSync(process.execPath, [CLI, ...args, '--json'], { env: env(dataDir), what: `sourcebound ${args.join(' ')}` });
   if (r.status !== 0) throw new Error(`${args.join(' ')}: ${r.stderr}`);
   return JSON.parse(r.stdout) as { documents: Record<string, number> };
 }
@@ -82,7 +83,7 @@ function state(dataDir: string): State {
 
 /** Top hits for a few queries, in a fresh process, with the vector index size against the chunk count. */
 function search(dataDir: string): { hits: string[][]; indexSize: number; chunks: number } {
-  const r = spawnSync(
+  const r = runSync(
     process.execPath,
     [
       '--input-type=module',
@@ -101,36 +102,38 @@ function search(dataDir: string): { hits: string[][]; indexSize: number; chunks:
       console.log(JSON.stringify({ hits, indexSize: rt.indexes.size('c'), chunks: rt.repo.chunksOfCollection('c').length }));
       rt.close();`,
     ],
-    { encoding: 'utf8' },
+    { what: `a search of ${dataDir}` },
   );
   if (r.status !== 0) throw new Error(r.stderr);
   return JSON.parse(r.stdout.trim().split('\n').pop()!) as { hits: string[][]; indexSize: number; chunks: number };
 }
 
-/** Starts the re-index and SIGKILLs it once `ready` says so (polled on the database), or when it exits. */
-async function killWhen(dataDir: string, args: string[], ready: (db: Database.Database) => boolean): Promise<boolean> {
-  const child = spawn(process.execPath, [CLI, ...args], { env: env(dataDir), stdio: 'ignore' });
-  let exited = false;
-  child.once('exit', () => (exited = true));
+/**
+ * Starts the re-index and SIGKILLs it once `ready` says so (polled on the database); returns false when the
+ * run ended by itself first. Fails within a deadline, naming the kill point, if neither happens.
+ */
+async function killWhen(dataDir: string, args: string[], label: string, ready: (db: Database.Database) => boolean): Promise<boolean> {
+  const child = spawn(process.execPath, [CLI, ...args], { env: env(dataDir), stdio: ['ignore', 'ignore', 'pipe'] });
+  const output = collect(child);
   const db = new Database(path.join(dataDir, 'sourcebound.db'), { readonly: true });
+  let outcome: 'exited' | 'reached';
   try {
-    for (;;) {
-      if (exited) return false;
-      let hit = false;
-      try {
-        hit = ready(db);
-      } catch {
-        /* the writer holds a lock for a moment */
-      }
-      if (hit) break;
-      await new Promise((r) => setTimeout(r, 5));
-    }
+    // The exit is checked before the condition, so a run that finished is never waited on.
+    outcome = await waitFor(() => (hasExited(child) ? 'exited' : ready(db) ? 'reached' : null), {
+      what: `the re-index to reach "${label}"`,
+      timeoutMs: 60_000,
+      intervalMs: 5,
+      retryOnError: true, // the writer holds a lock for a moment
+      detail: () => output.stderr(),
+    });
   } finally {
     db.close();
   }
-  child.kill('SIGKILL');
-  await new Promise((r) => (exited ? r(null) : child.once('exit', r)));
-  return true;
+  if (outcome === 'reached') child.kill('SIGKILL');
+  const exit = await waitForExit(child, { timeoutMs: 30_000, what: `the re-index to exit at "${label}"` });
+  if (exit.signal === 'SIGKILL') return true;
+  expect(exit.code, `the re-index ended by itself before "${label}": ${output.stderr()}`).toBe(0);
+  return false;
 }
 
 const count = (db: Database.Database, sql: string): number => (db.prepare(sql).get() as { n: number }).n;
@@ -148,22 +151,19 @@ describe('killing a re-index mid-run', () => {
     const before = state(base);
 
     // Incremental: after the first changed document, and halfway through the changed ones.
-    // Full: as soon as the shadow has a document, at half, once it holds them all (build done: the kill
-    // lands in the catch-up pass, the index save or the switch), and at a fixed delay for good measure.
+    // Full: as soon as the shadow has a document, at half, at three quarters, and once it holds them all
+    // (build done: the kill lands in the catch-up pass, the index save or the switch). Every point is a stage
+    // the run has reached, seen in its database, so the kills land at the same places on any machine.
     const changedSoFar = (db: Database.Database) =>
       count(db, "SELECT count(*) AS n FROM documents WHERE collection = 'c' AND updated_at >= (SELECT max(started_at) FROM jobs WHERE kind = 'reindex')");
     const files = COUNT - 3 + 10;
-    const after = (ms: number) => () => {
-      const t0 = Date.now();
-      return () => Date.now() - t0 >= ms;
-    };
-    const all: { label: string; args: string[]; ready: () => (db: Database.Database) => boolean }[] = [
-      { label: 'incremental, first change', args: ['reindex'], ready: () => (db) => changedSoFar(db) >= 1 },
-      { label: 'incremental, half the changes', args: ['reindex'], ready: () => (db) => changedSoFar(db) >= 28 },
-      { label: 'full, first shadow document', args: ['reindex', '--full'], ready: () => (db) => shadow(db) >= 1 },
-      { label: 'full, half built', args: ['reindex', '--full'], ready: () => (db) => shadow(db) >= files / 2 },
-      { label: 'full, built', args: ['reindex', '--full'], ready: () => (db) => shadow(db) >= files },
-      ...[900].map((ms) => ({ label: `full, after ${ms} ms`, args: ['reindex', '--full'], ready: after(ms) })),
+    const all: { label: string; args: string[]; ready: (db: Database.Database) => boolean }[] = [
+      { label: 'incremental, first change', args: ['reindex'], ready: (db) => changedSoFar(db) >= 1 },
+      { label: 'incremental, half the changes', args: ['reindex'], ready: (db) => changedSoFar(db) >= 28 },
+      { label: 'full, first shadow document', args: ['reindex', '--full'], ready: (db) => shadow(db) >= 1 },
+      { label: 'full, half built', args: ['reindex', '--full'], ready: (db) => shadow(db) >= files / 2 },
+      { label: 'full, three quarters built', args: ['reindex', '--full'], ready: (db) => shadow(db) >= (files * 3) / 4 },
+      { label: 'full, built', args: ['reindex', '--full'], ready: (db) => shadow(db) >= files },
     ];
     // Each point costs a few process start-ups: `npm test` takes one of each kind, `npm run test:slow` all.
     const points = SLOW ? all : all.filter((p) => ['incremental, half the changes', 'full, half built', 'full, built'].includes(p.label));
@@ -171,7 +171,7 @@ describe('killing a re-index mid-run', () => {
     for (const p of points) {
       const dataDir = path.join(work, p.label.replace(/\W+/g, '-'));
       cpSync(base, dataDir, { recursive: true });
-      const killed = await killWhen(dataDir, p.args, p.ready());
+      const killed = await killWhen(dataDir, p.args, p.label, p.ready);
       const s1 = state(dataDir);
       expect(s1.integrity, p.label).toBe('ok');
       expect(s1.halfIndexed, p.label).toBe(0);

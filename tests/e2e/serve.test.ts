@@ -1,26 +1,26 @@
-import { spawnSync, type ChildProcess } from 'node:child_process';
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { CLI, ROOT, startServe } from '../fixtures/serve.js';
+import { CLI, ROOT, startServe, type ServeProcess } from '../fixtures/serve.js';
+import { runSync } from '../fixtures/wait.js';
 
 // The contract of DESIGN.md, checked from outside: a real `sourcebound serve` process on an empty data
 // folder ingests the demo documents, reports ready, answers with verbatim citations, and stops cleanly.
 
-let child: ChildProcess;
+let server: ServeProcess | undefined;
 let base = '';
 let dataDir = '';
 
 beforeAll(async () => {
   dataDir = mkdtempSync(path.join(tmpdir(), 'sb-e2e-'));
-  const server = await startServe({ SOURCEBOUND_DATA_DIR: dataDir });
-  child = server.child;
+  server = await startServe({ SOURCEBOUND_DATA_DIR: dataDir });
   base = server.base;
 }, 70_000);
 
-afterAll(() => {
-  if (child.exitCode === null) child.kill('SIGKILL');
+afterAll(async () => {
+  // Gone before its data folder is removed, so it cannot write into the folder while it is being deleted.
+  await server?.stop();
   rmSync(dataDir, { recursive: true, force: true });
 });
 
@@ -69,18 +69,17 @@ describe('sourcebound serve on the demo documents', () => {
   });
 
   it('stops cleanly on SIGTERM', async () => {
-    const exited = new Promise<number | null>((r) => child.on('exit', (code) => r(code)));
-    child.kill('SIGTERM');
-    expect(await exited).toBe(0);
+    server!.child.kill('SIGTERM');
+    // Checks for an exit that already happened before listening for one.
+    expect(await server!.exited()).toEqual({ code: 0, signal: null });
   });
 });
 
 describe('the CLI', () => {
   it('prints the effective config with secrets redacted', () => {
-    const r = spawnSync(process.execPath, [CLI, 'config'], {
+    const r = runSync(process.execPath, [CLI, 'config'], {
       cwd: ROOT,
       env: { ...process.env, SOURCEBOUND_COMPLETION_API_KEY: 'sk-should-not-print' },
-      encoding: 'utf8',
     });
     expect(r.status).toBe(0);
     expect(r.stdout).not.toContain('sk-should-not-print');
@@ -88,7 +87,7 @@ describe('the CLI', () => {
   });
 
   it('refuses an invalid PORT with a message naming it, and exits non-zero', () => {
-    const r = spawnSync(process.execPath, [CLI, 'config'], { cwd: ROOT, env: { ...process.env, PORT: 'eighty' }, encoding: 'utf8' });
+    const r = runSync(process.execPath, [CLI, 'config'], { cwd: ROOT, env: { ...process.env, PORT: 'eighty' } });
     expect(r.status).not.toBe(0);
     expect(r.stderr).toContain('PORT');
   });
@@ -97,13 +96,13 @@ describe('the CLI', () => {
     const dir = mkdtempSync(path.join(tmpdir(), 'sb-cli-'));
     try {
       const env = { ...process.env, SOURCEBOUND_DATA_DIR: dir, SOURCEBOUND_EMBEDDER: 'hashing' };
-      const r = spawnSync(process.execPath, [CLI, 'ingest', path.join(ROOT, 'seed-docs'), '--collection', 'demo', '--json'], { cwd: ROOT, env, encoding: 'utf8' });
+      const r = runSync(process.execPath, [CLI, 'ingest', path.join(ROOT, 'seed-docs'), '--collection', 'demo', '--json'], { cwd: ROOT, env });
       expect(r.status, r.stderr).toBe(0);
       const s = JSON.parse(r.stdout);
       expect(s.documents.added).toBeGreaterThanOrEqual(12);
       expect(s.documents.failed).toBe(0);
       expect(s.chunks.embedded).toBeGreaterThan(0);
-      const again = spawnSync(process.execPath, [CLI, 'reindex', '--json'], { cwd: ROOT, env, encoding: 'utf8' });
+      const again = runSync(process.execPath, [CLI, 'reindex', '--json'], { cwd: ROOT, env });
       expect(again.status, again.stderr).toBe(0);
       const s2 = JSON.parse(again.stdout);
       expect(s2.chunks.embedded).toBe(0);
@@ -114,7 +113,7 @@ describe('the CLI', () => {
   });
 
   it('makes an API key whose printed entry matches the key by SHA-256', async () => {
-    const r = spawnSync(process.execPath, [CLI, 'key', 'new', '--id', 'desk', '--scopes', 'query,ingest', '--collections', 'default'], { cwd: ROOT, encoding: 'utf8' });
+    const r = runSync(process.execPath, [CLI, 'key', 'new', '--id', 'desk', '--scopes', 'query,ingest', '--collections', 'default'], { cwd: ROOT });
     expect(r.status).toBe(0);
     const key = /\n  (sb_\S+)\n/.exec(r.stdout)![1]!;
     const entry = JSON.parse(r.stdout.slice(r.stdout.indexOf('{')));
@@ -123,7 +122,7 @@ describe('the CLI', () => {
   });
 
   it('refuses to serve on a non-loopback address without keys', () => {
-    const r = spawnSync(process.execPath, [CLI, 'serve'], { cwd: ROOT, env: { ...process.env, HOST: '0.0.0.0', PORT: '0' }, encoding: 'utf8', timeout: 20_000 });
+    const r = runSync(process.execPath, [CLI, 'serve'], { cwd: ROOT, env: { ...process.env, HOST: '0.0.0.0', PORT: '0' }, timeoutMs: 20_000 });
     expect(r.status).not.toBe(0);
     expect(r.stderr).toMatch(/no API keys/);
   });
@@ -132,9 +131,9 @@ describe('the CLI', () => {
     const dir = mkdtempSync(path.join(tmpdir(), 'sb-backup-'));
     try {
       const env = { ...process.env, SOURCEBOUND_DATA_DIR: dir, SOURCEBOUND_EMBEDDER: 'hashing' };
-      expect(spawnSync(process.execPath, [CLI, 'ingest', path.join(ROOT, 'seed-docs', 'lost-property.md'), '--json'], { cwd: ROOT, env, encoding: 'utf8' }).status).toBe(0);
+      expect(runSync(process.execPath, [CLI, 'ingest', path.join(ROOT, 'seed-docs', 'lost-property.md'), '--json'], { cwd: ROOT, env }).status).toBe(0);
       const dest = path.join(dir, 'copy.db');
-      const r = spawnSync(process.execPath, [CLI, 'backup', dest], { cwd: ROOT, env, encoding: 'utf8' });
+      const r = runSync(process.execPath, [CLI, 'backup', dest], { cwd: ROOT, env });
       expect(r.status, r.stderr).toBe(0);
       const Database = (await import('better-sqlite3')).default;
       const db = new Database(dest, { readonly: true });

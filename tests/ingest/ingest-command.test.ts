@@ -1,11 +1,11 @@
 // `sourcebound ingest --json` as an operator runs it: the compiled CLI (built by the test setup) in a
 // child process, on a folder with one good and two bad files.
-import { spawnSync } from 'node:child_process';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { expect, it } from 'vitest';
 import { ENCRYPTED_MESSAGE } from '../../src/ingest/load-pdf.js';
+import { runSync } from '../fixtures/wait.js';
 import { buildEncryptedPdf } from './pdf-fixture.js';
 
 const ROOT = path.resolve(import.meta.dirname, '..', '..');
@@ -19,7 +19,7 @@ it('prints one JSON summary with each failure and its reason, and exits 1 when a
     writeFileSync(path.join(docs, 'locked.pdf'), buildEncryptedPdf());
     writeFileSync(path.join(docs, 'empty.txt'), '');
     const env = { ...process.env, SOURCEBOUND_DATA_DIR: data, SOURCEBOUND_EMBEDDER: 'hashing' };
-    const r = spawnSync(process.execPath, [CLI, 'ingest', docs, '--collection', 'c', '--json'], { cwd: ROOT, env, encoding: 'utf8' });
+    const r = runSync(process.execPath, [CLI, 'ingest', docs, '--collection', 'c', '--json'], { cwd: ROOT, env });
     expect(r.status, r.stderr).toBe(1);
     const lines = r.stdout.trim().split('\n');
     expect(lines).toHaveLength(1);

@@ -1,4 +1,3 @@
-import { spawnSync } from 'node:child_process';
 import { mkdirSync, mkdtempSync, readFileSync, renameSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
@@ -11,6 +10,7 @@ import { silentLogger } from '../../src/logger.js';
 import { createRuntime, type Runtime } from '../../src/runtime.js';
 import { shadowCollectionName } from '../../src/store/index.js';
 import { deepMerge, SEED_DIR } from '../fixtures/runtime.js';
+import { runSync, withDeadline } from '../fixtures/wait.js';
 
 // The nightly re-index on a folder of 100 invented depot notices of Marrowgate Valley Transit: what it embeds,
 // renames and removes, and the full re-index that builds beside the live index and swaps at the end.
@@ -186,7 +186,8 @@ describe('a full re-index', () => {
     e.hold = new Promise<void>((r) => (release = r));
     const reached = e.reached();
     const run = rt.ingestor.reindex({ collection: 'c', full: true });
-    await reached; // the build is embedding the edited notice: half of the shadow collection exists
+    // The build is embedding the edited notice: half of the shadow collection exists.
+    await withDeadline(reached, { what: 'the full re-index to start embedding the edited notice', timeoutMs: 20_000 });
     expect(rt.repo.getCollection(shadowCollectionName('c'))!.documents).toBeGreaterThan(0);
     expect(rt.repo.listCollections().map((c) => c.name)).toEqual(['c']);
     expect(rt.repo.getCollection('c')).toMatchObject({ documents: before.documents, chunks: before.chunks, generation: before.generation });
@@ -312,16 +313,16 @@ describe('sourcebound reindex on a terminal and with --json', () => {
   const env = () => ({ ...process.env, SOURCEBOUND_DATA_DIR: dataDir, SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_LOG_LEVEL: 'warn' });
 
   it('draws a progress bar on a terminal and prints exactly the documented JSON keys', () => {
-    const ingest = spawnSync(process.execPath, [CLI, 'ingest', docs, '--collection', 'c', '--json'], { env: env(), encoding: 'utf8' });
+    const ingest = runSync(process.execPath, [CLI, 'ingest', docs, '--collection', 'c', '--json'], { env: env() });
     expect(ingest.status, ingest.stderr).toBe(0);
     renameSync(path.join(docs, 'notice-001.md'), path.join(docs, 'notice-001-renamed.md'));
     // util-linux `script` runs the command on a pseudo-terminal, as an operator's shell would.
-    const tty = spawnSync('script', ['-qec', `${JSON.stringify(process.execPath)} ${JSON.stringify(CLI)} reindex`, '/dev/null'], { env: env(), encoding: 'utf8' });
+    const tty = runSync('script', ['-qec', `${JSON.stringify(process.execPath)} ${JSON.stringify(CLI)} reindex`, '/dev/null'], { env: env(), what: 'sourcebound reindex on a pseudo-terminal' });
     expect(tty.status, tty.stderr).toBe(0);
     expect(tty.stdout).toContain('\r\x1b[2K[####################] 100%  files 100/100');
     expect(tty.stdout).toMatch(/documents: 0 added, 0 updated, 1 renamed, 99 unchanged, 0 removed, 0 failed/);
     writeFileSync(path.join(docs, 'notice-002.md'), notice(2, ' (revised)'));
-    const json = spawnSync(process.execPath, [CLI, 'reindex', '--json'], { env: env(), encoding: 'utf8' });
+    const json = runSync(process.execPath, [CLI, 'reindex', '--json'], { env: env() });
     expect(json.status, json.stderr).toBe(0);
     expect(json.stdout).not.toContain('\x1b');
     const s = JSON.parse(json.stdout) as { documents: object; chunks: object; seconds: number };

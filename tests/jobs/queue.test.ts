@@ -1,12 +1,14 @@
-import { spawn } from 'node:child_process';
 import { readdirSync, readFileSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
 import { createDocumentService, createJobQueue, requeueAbandoned, withReindexLock } from '../../src/jobs/index.js';
 import { silentLogger } from '../../src/logger.js';
 import { tempRuntime } from '../fixtures/runtime.js';
+import { runSync, withDeadline } from '../fixtures/wait.js';
 
 const cleanups: (() => void | Promise<void>)[] = [];
+/** The queue's own idle() resolves at once when nothing is pending; the deadline names the wait if a job hangs. */
+const idle = (queue: { idle(): Promise<void> }) => withDeadline(queue.idle(), { what: 'the job queue to finish its jobs', timeoutMs: 20_000 });
 afterEach(async () => {
   for (const c of cleanups.splice(0).reverse()) await c();
 });
@@ -20,7 +22,7 @@ describe('the job queue', () => {
     const docs = createDocumentService(rt, queue);
     const out = await docs.upload('c', 'tram-wifi.md', new TextEncoder().encode('# Wifi\n\nFree wifi is available on every tram in the Brackenfold fleet.'));
     expect(out.status).toBe('queued');
-    await queue.idle();
+    await idle(queue);
     const job = rt.jobs.get(out.status === 'queued' ? out.job.id : '')!;
     expect(job.state).toBe('succeeded');
     const hits = await rt.retriever.search({ query: 'wifi Brackenfold', collection: 'c', k: 3, mode: 'hybrid' });
@@ -38,7 +40,7 @@ describe('the job queue', () => {
       ['night-buses.md', '# Night buses\n\nNight buses leave Marrowgate bus station every 30 minutes after midnight.'],
     ] as const) {
       await docs.upload('c', name, new TextEncoder().encode(text));
-      await queue.idle();
+      await idle(queue);
     }
     expect((await rt.retriever.search({ query: 'wifi Brackenfold', collection: 'c', k: 3, mode: 'dense' }))[0]!.source).toBe('tram-wifi.md');
     const before = rt.repo.chunksOfCollection('c').map((c) => c.id);
@@ -49,7 +51,7 @@ describe('the job queue', () => {
       expect(nice[0]).toBe(0);
     }
     const job = docs.reindex({ collection: 'c', full: true });
-    await queue.idle();
+    await idle(queue);
     expect(rt.jobs.get(job.id)).toMatchObject({ state: 'succeeded', result: { documents: { updated: 2, failed: 0 } } });
     const after = rt.repo.chunksOfCollection('c').map((c) => c.id);
     expect(after.some((id) => before.includes(id))).toBe(false); // every chunk was rebuilt
@@ -89,8 +91,8 @@ describe('the re-index lock', () => {
   it('takes over a stale lock left by a process that died', async () => {
     const { dataDir, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
-    const dead = spawn(process.execPath, ['-e', '0']);
-    await new Promise((r) => dead.on('exit', r));
+    // Run to completion before its pid is used, so the pid belongs to a process that has ended.
+    const dead = runSync(process.execPath, ['-e', '0'], { what: 'a process that exits at once' });
     const { hostname } = await import('node:os');
     writeFileSync(path.join(dataDir, 'reindex.lock'), JSON.stringify({ pid: dead.pid, host: hostname(), since: '2026-01-01T00:00:00Z' }));
     expect(await withReindexLock(dataDir, async () => 'ran')).toBe('ran');

@@ -11,6 +11,7 @@ import { createRetriever } from '../../src/retrieve/retriever.js';
 import { createRepository, openDatabase, type Db, type FtsWeights, type Repository, type VectorIndexes } from '../../src/store/index.js';
 import { tempRuntime } from '../fixtures/runtime.js';
 import { mulberry32 } from '../fixtures/random.js';
+import { waitFor } from '../fixtures/wait.js';
 
 // The in-memory index must rank exactly as the FTS5 path: the reference is SQLite's own FTS5 bm25() through
 // repo.searchFts (itself checked against Robertson and Zaragoza's BM25 in tests/store/bm25.test.ts). Every
@@ -282,13 +283,15 @@ describe('retriever with the in-memory lexical engine', () => {
       const req = { query: 'how long is the refund window for annual passes', collection: t.config.seed.collection, k: 5, mode: 'lexical' as const };
       const first = await t.rt.retriever.search(req);
       expect(calls).toBe(2); // FTS5 answered both passes while the index was building
-      let after = first;
-      for (let i = 0; i < 200; i++) {
-        await new Promise((r) => setTimeout(r, 25));
-        calls = 0;
-        after = await t.rt.retriever.search(req);
-        if (calls === 0) break;
-      }
+      // The index builds in the background: search until one makes no FTS5 query, within a deadline.
+      const after = await waitFor(
+        async () => {
+          calls = 0;
+          const hits = await t.rt.retriever.search(req);
+          return calls === 0 ? hits : null;
+        },
+        { what: 'a lexical search answered by the in-memory index alone (no FTS5 query)', timeoutMs: 20_000, intervalMs: 25 },
+      );
       expect(calls).toBe(0);
       expect(after.map((h) => h.chunkId)).toEqual(first.map((h) => h.chunkId));
       after.forEach((h, i) => expect(h.score).toBeCloseTo(first[i]!.score, 9));
