@@ -14,8 +14,8 @@ import { tempRuntime } from '../fixtures/runtime.js';
 // ratings, and the page itself. Auth on: one key for collection "alpha", one for "beta".
 
 const FIXTURES = path.resolve(import.meta.dirname, '..', 'fixtures', 'ingest');
-const ALPHA_KEY = 'sb_alpha-reader';
-const BETA_KEY = 'sb_beta-reader';
+const ALPHA_KEY = 'sbk_alpha-reader';
+const BETA_KEY = 'sbk_beta-reader';
 const sha = (s: string) => createHash('sha256').update(s).digest('hex');
 
 let rt: Runtime;

@@ -18,7 +18,7 @@ declare const sessionStorage: any;
 declare const navigator: any;
 
 const CHROMIUM = '/usr/bin/chromium';
-const KEY = 'sb_desk-test-key-not-secret';
+const KEY = 'sbk_desk-test-key-not-secret';
 const SHOTS = process.env.SOURCEBOUND_SCREENSHOTS === '1' ? path.join(ROOT, 'docs', 'screenshots') : null;
 // CI installs Debian's Chromium (.ci/run) and must run these tests. On a workstation without it they are
 // reported as skipped, with the reason printed, rather than failing `npm test` for a missing browser.
@@ -109,7 +109,7 @@ describe.runIf(RUN)('the reference desk', () => {
     await page.goto(base);
     const dialog = page.getByRole('dialog', { name: 'API key' });
     await expect.poll(() => dialog.isVisible()).toBe(true);
-    await page.locator('#key-input').fill('sb_wrong');
+    await page.locator('#key-input').fill('sbk_wrong');
     await page.locator('#key-input').press('Enter');
     await expect.poll(() => page.locator('#key-error').textContent()).toContain('not accepted');
     await page.locator('#key-input').fill(KEY);
