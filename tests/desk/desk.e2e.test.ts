@@ -128,6 +128,7 @@ describe.runIf(RUN)('the reference desk', () => {
     firstAnswer = (await page.locator('.claims').textContent()) ?? '';
     expect(await page.locator('#caution-text').isVisible()).toBe(true);
     expect(await page.locator('#caution-text').textContent()).toContain('check the quoted source');
+    expect(await page.locator('#caution-text').textContent()).toContain('It is not legal or medical advice.');
 
     const first = page.locator('.claims button.src').first();
     await first.focus();
@@ -155,6 +156,8 @@ describe.runIf(RUN)('the reference desk', () => {
     expect(firstAnswer).toContain(text.split('\n')[0]!.replace(/\s*\[\d+\]/g, '').trim().slice(0, 40));
     expect(text).toMatch(/\[1\]/);
     expect(text).toMatch(/\nSources:\n\[1\] Lost Property, section "[^"]+"/);
+    // The caution travels with the answer into the ticket.
+    expect(text).toMatch(/\n\nThis answer comes only from the cited documents: [^\n]+ It is not legal or medical advice\. [^\n]+ a licensed professional\.$/);
   });
 
   it('passes the accessibility check at desktop width with an answer and the reader open', async () => {
