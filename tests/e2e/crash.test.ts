@@ -68,10 +68,13 @@ describe('killing an ingest mid-run', () => {
     for (const delayMs of [150, 400, 700, 1000, 1400]) {
       const dataDir = path.join(work, `killed-${delayMs}`);
       const child = spawn(process.execPath, [CLI, 'ingest', docs, '--collection', 'c', '--json'], { env: env(dataDir), stdio: 'ignore' });
+      // Listened for from the start: a whole ingest can finish before the last kill point (it takes about
+      // 1.2-1.5 s here), and a listener attached after 'close' was emitted would wait forever.
+      const closed = new Promise((r) => child.once('close', r));
       await new Promise((r) => setTimeout(r, delayMs));
       const finishedBefore = child.exitCode !== null;
       child.kill('SIGKILL');
-      await new Promise((r) => child.once('exit', r).once('close', r));
+      await closed;
       let s;
       try {
         s = state(dataDir);
