@@ -5,7 +5,7 @@
 import { randomBytes } from 'node:crypto';
 import { existsSync, realpathSync } from 'node:fs';
 import path from 'node:path';
-import { authEnforced, checkAuthConfig, sha256Hex } from './api/auth.js';
+import { authEnforced, checkAuthConfig, newApiKey, sha256Hex } from './api/auth.js';
 import { openDatabase, storePaths } from './store/index.js';
 import { createDocumentService, createJobQueue, requeueAbandoned, withReindexLock } from './jobs/index.js';
 import { parseArgs } from 'node:util';
@@ -313,7 +313,7 @@ async function keyCommand(args: string[]): Promise<number> {
     process.stderr.write(`sourcebound key new: unknown scope ${bad.join(', ')}; use query, ingest, admin\n`);
     return 2;
   }
-  const key = `sb_${randomBytes(24).toString('base64url')}`;
+  const key = newApiKey();
   const entry = {
     id: values.id ?? `key-${randomBytes(3).toString('hex')}`,
     sha256: sha256Hex(key),

@@ -81,7 +81,7 @@ export async function createRuntime(
   const metrics = createMetrics(
     {
       indexSizes: () => repo.listCollections().map((c) => ({ collection: c.name, chunks: c.chunks, documents: c.documents })),
-      jobCounts: () => jobs.counts(),
+      jobCounts: (collections) => jobs.counts(collections),
     },
     { processMetrics: opts.processMetrics ?? true },
   );

@@ -1,4 +1,5 @@
 // Shown with every answer, abstained or not: the service quotes documents, it does not decide.
 export const CAUTION =
-  'This answer is drawn only from the cited documents, so check the quoted source before acting on it. ' +
-  'For legal, medical, safety or HR decisions, ask the responsible staff and follow local rules.';
+  'This answer comes only from the cited documents: check the quoted source before acting on it. ' +
+  'It is not legal or medical advice. ' +
+  'For legal, medical, safety or HR decisions, defer to local rules and to the responsible staff or a licensed professional.';

@@ -3,8 +3,8 @@ import type { AnswerEvent } from '../answer/types.js';
 import type { Config } from '../config/index.js';
 import { SourceboundError } from '../errors.js';
 import type { AnswerResult } from '../types.js';
+import { grantedCollection, keyAccess } from './access.js';
 import type { AnswerRequest, AppDeps } from './app.js';
-import type { Scope } from './auth.js';
 import { answerBody } from './schemas.js';
 import { isSearchMode, parse, withDeadline } from './util.js';
 import { sseFrame } from '../answer/sse.js';
@@ -12,8 +12,6 @@ import { sseFrame } from '../answer/sse.js';
 export interface AnswerRouteContext {
   config: Readonly<Config>;
   deps: AppDeps;
-  /** Readiness, scope and collection checks; throws the coded error. */
-  guard(req: FastifyRequest, scope: Scope, action: string, collection?: string): void;
 }
 
 /** The request the answer stage accepts: the HTTP layer's, plus a listener for progress events. */
@@ -25,7 +23,7 @@ const KEEP_ALIVE_MS = 15_000;
 
 /** POST /v1/answer */
 export function registerAnswerRoute(r: FastifyInstance, ctx: AnswerRouteContext): void {
-  const { config, deps, guard } = ctx;
+  const { config, deps } = ctx;
   const answerSchema = answerBody(config.limits);
   const metrics = deps.metrics;
   const count = (result: AnswerResult): void => {
@@ -33,10 +31,9 @@ export function registerAnswerRoute(r: FastifyInstance, ctx: AnswerRouteContext)
     if (result.fallbackReason) metrics?.answerFallbacks.inc({ reason: result.fallbackReason });
   };
 
-  r.post('/v1/answer', async (req, reply) => {
+  r.post('/v1/answer', { config: { access: keyAccess('query', 'ask questions', { in: 'body', absent: 'default' }) } }, async (req, reply) => {
     const body = parse(answerSchema, req.body);
-    const collection = body.collection ?? config.seed.collection;
-    guard(req, 'query', 'ask questions', collection);
+    const collection = grantedCollection(req);
     const retrievalMode = body.retrieval ?? (isSearchMode(body.mode) ? body.mode : 'hybrid');
     const deadline = AbortSignal.timeout(config.server.requestTimeoutMs);
     const request: StreamingAnswerRequest = {

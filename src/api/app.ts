@@ -1,20 +1,13 @@
-import rateLimit from '@fastify/rate-limit';
-import Fastify, { type FastifyBaseLogger, type FastifyError, type FastifyInstance, type FastifyRequest } from 'fastify';
+import Fastify, { type FastifyBaseLogger, type FastifyError, type FastifyInstance } from 'fastify';
 import type { Config } from '../config/index.js';
 import { SourceboundError, type ErrorCode } from '../errors.js';
 import type { Logger } from '../logger.js';
 import type { AnswerResult, SearchHit, SearchMode } from '../types.js';
 import type { AnswerEvent } from '../answer/index.js';
 import type { RetrieveFilter } from '../retrieve/index.js';
-import {
-  ANONYMOUS,
-  createAuthenticator,
-  mayUseCollection,
-  requireCollection,
-  requireScope,
-  type Principal,
-  type Scope,
-} from './auth.js';
+import { grantedCollection, installAccessControl, keyAccess, PUBLIC } from './access.js';
+import { createAuthenticator, mayUseCollection } from './auth.js';
+import { createRateLimiter } from './rate-limit.js';
 import type { Metrics } from './metrics.js';
 import { registerAnswerRoute } from './answer-route.js';
 import { registerDocumentRoutes } from './documents-route.js';
@@ -54,12 +47,8 @@ export interface AppDeps {
   desk?: DeskService;
   /** Folder of the built desk page (dist/web); the default is found next to the compiled code. */
   deskAssetsDir?: string;
-}
-
-declare module 'fastify' {
-  interface FastifyRequest {
-    principal: Principal;
-  }
+  /** Milliseconds since the epoch, for the rate limiter's windows (tests pass their own). */
+  now?: () => number;
 }
 
 export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstance {
@@ -78,29 +67,15 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
 
   // JSON only: without this, fastify would hand text/plain bodies to the routes as strings.
   app.removeContentTypeParser('text/plain');
-  app.decorateRequest('principal', null as unknown as Principal);
 
-  app.addHook('onRequest', async (req) => {
-    req.principal = ANONYMOUS;
-    const url = req.url;
-    if (url.startsWith('/v1/') || url === '/metrics' || url.startsWith('/metrics?')) {
-      req.principal = auth.authenticate(req.headers.authorization);
-      // Log lines of this request name the key, never the key itself.
-      if (req.principal.keyId) req.log = req.log.child({ keyId: req.principal.keyId });
-    }
-  });
-
-  void app.register(rateLimit, {
-    global: true,
-    hook: 'preHandler',
-    max: limits.rateLimitPerMinute,
-    timeWindow: 60_000,
-    allowList: (req) => !req.url.startsWith('/v1/'),
-    keyGenerator: (req) => (req.principal?.keyId ? `key:${req.principal.keyId}` : `ip:${req.ip}`),
-    errorResponseBuilder: (_req, ctx) => {
-      metrics?.rejected.inc({ reason: 'rate_limited' });
-      return new SourceboundError('SB_ERR_RATE_LIMITED', [Math.ceil(ctx.ttl / 1000)]);
-    },
+  // Before any route is registered, so that every route is recorded and passes through the hooks.
+  installAccessControl(app, {
+    auth,
+    limiter: createRateLimiter({ max: limits.rateLimitPerMinute, windowMs: 60_000, now: deps.now ?? Date.now }),
+    isReady: deps.isReady,
+    defaultCollection: config.seed.collection,
+    logger: deps.logger,
+    ...(metrics ? { metrics } : {}),
   });
 
   // While shutting down, replies to requests still in flight end their connection: a kept-alive socket
@@ -143,36 +118,29 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     });
   });
 
-  const guard = (req: FastifyRequest, scope: Scope, action: string, collection?: string): void => {
-    if (!deps.isReady()) throw new SourceboundError('SB_ERR_NOT_READY');
-    requireScope(req.principal, scope, action);
-    if (collection !== undefined) requireCollection(req.principal, collection);
-  };
-
-  // Routes live in a child plugin registered after the rate limiter, so its hooks apply to them.
+  // Routes live in a child plugin registered after the access hooks, so the hooks apply to all of them.
+  // Each route states who may call it in `config.access` (src/api/access.ts); one that does not is refused.
   void app.register(async (r) => {
-    r.get('/health', async () => ({ status: 'ok', ...deps.health() }));
+    r.get('/health', { config: { access: PUBLIC } }, async () => ({ status: 'ok', ...deps.health() }));
 
-    r.get('/ready', async (_req, reply) => {
+    r.get('/ready', { config: { access: PUBLIC } }, async (_req, reply) => {
       const ready = deps.isReady();
       return reply.status(ready ? 200 : 503).send({ status: ready ? 'ready' : 'loading' });
     });
 
-    r.get('/metrics', async (req, reply) => {
+    // Per-collection series only for what the key may see (all of them for a key holding every collection).
+    r.get('/metrics', { config: { access: keyAccess('admin', 'read metrics', { in: 'own' }, { whileLoading: true }) } }, async (req, reply) => {
       if (!metrics) throw new SourceboundError('SB_ERR_NOT_FOUND', ['GET', '/metrics']);
-      if (auth.enforced) requireScope(req.principal, 'admin', 'read metrics');
-      return reply.header('content-type', metrics.registry.contentType).send(await metrics.registry.metrics());
+      return reply.header('content-type', metrics.contentType).send(await metrics.render(req.principal.collections));
     });
 
-    r.get('/v1/collections', async (req) => {
-      guard(req, 'query', 'list collections');
+    r.get('/v1/collections', { config: { access: keyAccess('query', 'list collections', { in: 'own' }) } }, async (req) => {
       return { collections: deps.collections().filter((c) => mayUseCollection(req.principal, c.name)) };
     });
 
-    r.post('/v1/search', async (req) => {
+    r.post('/v1/search', { config: { access: keyAccess('query', 'search', { in: 'body', absent: 'default' }) } }, async (req) => {
       const body = parse(searchSchema, req.body);
-      const collection = body.collection ?? config.seed.collection;
-      guard(req, 'query', 'search', collection);
+      const collection = grantedCollection(req);
       const results = await withDeadline(
         deps.search({
           query: body.query,
@@ -200,9 +168,9 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
       };
     });
 
-    registerAnswerRoute(r, { config, deps, guard });
-    if (deps.documents) await registerDocumentRoutes(r, { config, documents: deps.documents, guard });
-    if (deps.desk) registerDeskRoutes(r, { config, desk: deps.desk, guard });
+    registerAnswerRoute(r, { config, deps });
+    if (deps.documents) await registerDocumentRoutes(r, { config, documents: deps.documents });
+    if (deps.desk) registerDeskRoutes(r, { config, desk: deps.desk });
     registerDeskAssets(r, deps.deskAssetsDir !== undefined ? { dir: deps.deskAssetsDir } : {});
   });
 

@@ -1,4 +1,4 @@
-import { createHash, timingSafeEqual } from 'node:crypto';
+import { createHash, randomBytes, timingSafeEqual } from 'node:crypto';
 import { isIP } from 'node:net';
 import { SourceboundError } from '../errors.js';
 
@@ -24,6 +24,31 @@ export const ANONYMOUS: Principal = {
   scopes: new Set<Scope>(['query', 'ingest', 'admin']),
   collections: null,
 };
+
+/** Holds nothing: what a request carries until the access hook has decided who it is. */
+export const NOBODY: Principal = {
+  keyId: null,
+  scopes: new Set<Scope>(),
+  collections: new Set<string>(),
+};
+
+/**
+ * The project's own key prefix, so neither people nor leaked-secret scanners mistake a key for another
+ * platform's. Keys made before it began with a prefix used by another widely used platform; they still
+ * work, because a key is recognised by the SHA-256 of the whole string, prefix included.
+ */
+export const KEY_PREFIX = 'sbk_';
+const LEGACY_KEY_PREFIX = 'sb_';
+
+/** A new API key: the prefix and 256 random bits in base64url (43 characters). */
+export function newApiKey(): string {
+  return `${KEY_PREFIX}${randomBytes(32).toString('base64url')}`;
+}
+
+/** True for a key in the format `key new` made before the project had a prefix of its own. */
+export function isLegacyKey(key: string): boolean {
+  return key.startsWith(LEGACY_KEY_PREFIX);
+}
 
 export function isLoopback(host: string): boolean {
   if (host === 'localhost') return true;
@@ -56,8 +81,16 @@ export function sha256Hex(s: string): string {
   return createHash('sha256').update(s, 'utf8').digest('hex');
 }
 
+/** What an Authorization header amounts to, before anything is refused. */
+export type Identity =
+  | { kind: 'none' }
+  | { kind: 'wrong' }
+  | { kind: 'key'; principal: Principal; legacyFormat: boolean };
+
 export interface Authenticator {
   readonly enforced: boolean;
+  /** Who the header names; never throws, so the caller can count the request before it refuses it. */
+  identify(header: string | undefined): Identity;
   /** The principal for an Authorization header; throws 401 when enforced and the key is missing or wrong. */
   authenticate(header: string | undefined): Principal;
 }
@@ -73,23 +106,27 @@ export function createAuthenticator(cfg: { required: boolean; keys: ApiKeyConfig
       collections: k.collections.includes('*') ? null : new Set(k.collections),
     } satisfies Principal,
   }));
+  const identify = (header: string | undefined): Identity => {
+    const m = header ? /^Bearer\s+(\S+)\s*$/i.exec(header) : null;
+    // No bearer key at all (another scheme included); with auth enforced that is refused like a wrong key.
+    if (!m) return { kind: 'none' };
+    const digest = createHash('sha256').update(m[1]!, 'utf8').digest();
+    // Compare against every key in constant time and without an early exit, so timing reveals
+    // neither which key matched nor how much of a digest did.
+    let found: Principal | null = null;
+    for (const k of keys) {
+      if (timingSafeEqual(digest, k.digest)) found = k.principal;
+    }
+    return found ? { kind: 'key', principal: found, legacyFormat: isLegacyKey(m[1]!) } : { kind: 'wrong' };
+  };
   return {
     enforced,
+    identify,
     authenticate(header) {
-      const m = header ? /^Bearer\s+(\S+)\s*$/i.exec(header) : null;
-      if (!m) {
-        if (enforced) throw new SourceboundError('SB_ERR_UNAUTHORIZED');
-        return ANONYMOUS;
-      }
-      const digest = createHash('sha256').update(m[1]!, 'utf8').digest();
-      // Compare against every key in constant time and without an early exit, so timing reveals
-      // neither which key matched nor how much of a digest did.
-      let found: Principal | null = null;
-      for (const k of keys) {
-        if (timingSafeEqual(digest, k.digest)) found = k.principal;
-      }
-      if (!found) throw new SourceboundError('SB_ERR_UNAUTHORIZED');
-      return found;
+      const who = identify(header);
+      if (who.kind === 'key') return who.principal;
+      if (who.kind === 'none' && !enforced) return ANONYMOUS;
+      throw new SourceboundError('SB_ERR_UNAUTHORIZED');
     },
   };
 }

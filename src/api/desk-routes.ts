@@ -1,8 +1,7 @@
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import { z } from 'zod';
 import type { Config } from '../config/index.js';
-import { SourceboundError } from '../errors.js';
-import type { Scope } from './auth.js';
+import { grantedCollection, keyAccess, SIGNED_LINK } from './access.js';
 import type { DeskService } from './desk-service.js';
 import { collectionName, historyTurn } from './schemas.js';
 import { parse } from './util.js';
@@ -10,7 +9,6 @@ import { parse } from './util.js';
 export interface DeskRouteContext {
   config: Readonly<Config>;
   desk: DeskService;
-  guard(req: FastifyRequest, scope: Scope, action: string, collection?: string): void;
 }
 
 const offset = z.coerce.number().int().min(0).max(2 ** 31);
@@ -43,21 +41,19 @@ export function ratingBody(limits: { questionMaxChars: number; historyMaxTurns: 
     .strict();
 }
 
-function params(raw: unknown): { collection: string; id: string } {
-  const p = raw as { collection?: string; id?: string };
-  const c = collectionName.safeParse(p.collection ?? '');
-  if (!c.success) throw new SourceboundError('SB_ERR_VALIDATION', [`collection: ${c.error.issues[0]?.message ?? 'invalid'}`]);
-  return { collection: c.data, id: p.id ?? '' };
+/** The granted collection (from the path) and the document id. */
+function target(req: FastifyRequest): { collection: string; id: string } {
+  return { collection: grantedCollection(req), id: (req.params as { id?: string }).id ?? '' };
 }
 
 /** The desk's reads (passage in context, original file) and its ratings. */
 export function registerDeskRoutes(r: FastifyInstance, ctx: DeskRouteContext): void {
-  const { config, desk, guard } = ctx;
+  const { config, desk } = ctx;
+  const readDocuments = keyAccess('query', 'read documents', { in: 'path' });
   const ratingSchema = ratingBody(config.limits);
 
-  r.get('/v1/collections/:collection/documents/:id/passage', async (req) => {
-    const { collection, id } = params(req.params);
-    guard(req, 'query', 'read documents', collection);
+  r.get('/v1/collections/:collection/documents/:id/passage', { config: { access: readDocuments } }, async (req) => {
+    const { collection, id } = target(req);
     const q = parse(passageQuery, req.query ?? {});
     return desk.passage(collection, id, q.start, q.end);
   });
@@ -76,29 +72,26 @@ export function registerDeskRoutes(r: FastifyInstance, ctx: DeskRouteContext): v
     return reply.send(file.bytes);
   };
 
-  r.get('/v1/collections/:collection/documents/:id/original', async (req, reply) => {
-    const { collection, id } = params(req.params);
-    guard(req, 'query', 'read documents', collection);
+  r.get('/v1/collections/:collection/documents/:id/original', { config: { access: readDocuments } }, async (req, reply) => {
+    const { collection, id } = target(req);
     return sendOriginal(reply, collection, id);
   });
 
-  r.post('/v1/collections/:collection/documents/:id/original-link', async (req) => {
-    const { collection, id } = params(req.params);
-    guard(req, 'query', 'read documents', collection);
+  r.post('/v1/collections/:collection/documents/:id/original-link', { config: { access: readDocuments } }, async (req) => {
+    const { collection, id } = target(req);
     return desk.linkOriginal(collection, id);
   });
 
   // Outside /v1/: the signed token is the credential, so a browser can follow it as a plain link.
-  r.get('/originals', async (req, reply) => {
+  r.get('/originals', { config: { access: SIGNED_LINK } }, async (req, reply) => {
     const link = (req.query as { link?: unknown } | undefined)?.link;
     const { collection, documentId } = desk.redeemLink(typeof link === 'string' ? link : '');
     return sendOriginal(reply, collection, documentId);
   });
 
-  r.post('/v1/ratings', async (req, reply) => {
+  r.post('/v1/ratings', { config: { access: keyAccess('query', 'rate answers', { in: 'body', absent: 'default' }) } }, async (req, reply) => {
     const body = parse(ratingSchema, req.body);
-    const collection = body.collection ?? config.seed.collection;
-    guard(req, 'query', 'rate answers', collection);
+    const collection = grantedCollection(req);
     const saved = desk.ratings.add({
       collection,
       keyId: req.principal.keyId,

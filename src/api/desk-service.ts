@@ -152,6 +152,10 @@ export function createDeskService(deps: { repo: Repository; now?: () => number; 
       const m = /^([A-Za-z0-9_-]{1,2000})\.([A-Za-z0-9_-]{43})$/.exec(token);
       if (!m) return invalid();
       const given = Buffer.from(m[2]!, 'base64url');
+      // 43 base64url characters carry 258 bits for a 256-bit MAC: the last character's two spare bits are
+      // ignored by the decoder, so four spellings decode to the same bytes. Only the one the service
+      // writes is accepted; anything else is a forgery, whatever it decodes to.
+      if (given.toString('base64url') !== m[2]) return invalid();
       const expected = sign(m[1]!);
       if (given.length !== expected.length || !timingSafeEqual(given, expected)) return invalid();
       let claims: { c?: unknown; d?: unknown; e?: unknown };

@@ -7,6 +7,7 @@ import path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import { SourceboundError } from '../errors.js';
+import { PUBLIC } from './access.js';
 
 const TYPES: Record<string, string> = {
   '.html': 'text/html; charset=utf-8',
@@ -81,13 +82,14 @@ export function registerDeskAssets(r: FastifyInstance, opts: { dir?: string } = 
     return reply.send(asset.body);
   };
 
-  r.get('/', async (req, reply) => {
+  // The page and its assets hold no data: public, so a browser can load them before the key is typed.
+  r.get('/', { config: { access: PUBLIC } }, async (req, reply) => {
     const page = get('index.html');
     if (!page) throw new SourceboundError('SB_ERR_NOT_FOUND', ['GET', '/ (the desk page is not built: run `npm run build`)']);
     return send(req, reply, page);
   });
 
-  r.get('/desk/:file', async (req, reply) => {
+  r.get('/desk/:file', { config: { access: PUBLIC } }, async (req, reply) => {
     const name = (req.params as { file: string }).file;
     const asset = name === 'index.html' ? undefined : get(name);
     if (!asset) throw new SourceboundError('SB_ERR_NOT_FOUND', ['GET', `/desk/${name}`]);

@@ -1,10 +1,10 @@
 import multipart from '@fastify/multipart';
-import type { FastifyInstance, FastifyRequest } from 'fastify';
+import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import type { Config } from '../config/index.js';
 import { SourceboundError } from '../errors.js';
 import type { DocumentService, UploadOutcome } from '../jobs/index.js';
-import type { Scope } from './auth.js';
+import { grantedCollection, keyAccess } from './access.js';
 import { mayUseCollection } from './auth.js';
 import { collectionName } from './schemas.js';
 import { parse } from './util.js';
@@ -12,7 +12,6 @@ import { parse } from './util.js';
 export interface DocumentRouteContext {
   config: Readonly<Config>;
   documents: DocumentService;
-  guard(req: FastifyRequest, scope: Scope, action: string, collection?: string): void;
 }
 
 // JSON uploads hold the whole text in memory: keep them modest; files of any allowed size go as multipart.
@@ -28,13 +27,6 @@ const textUpload = z
 
 const reindexBody = z.object({ collection: collectionName.optional(), full: z.boolean().optional() }).strict();
 
-function collectionParam(params: unknown): string {
-  const c = (params as { collection?: string }).collection ?? '';
-  const r = collectionName.safeParse(c);
-  if (!r.success) throw new SourceboundError('SB_ERR_VALIDATION', [`collection: ${r.error.issues[0]?.message ?? 'invalid'}`]);
-  return c;
-}
-
 function reply202(outcome: UploadOutcome): { code: number; body: Record<string, unknown> } {
   if (outcome.status === 'unchanged') {
     return {
@@ -47,13 +39,14 @@ function reply202(outcome: UploadOutcome): { code: number; body: Record<string, 
 
 /** Document API: upload (multipart or JSON), list, get, delete; jobs; re-index. */
 export async function registerDocumentRoutes(r: FastifyInstance, ctx: DocumentRouteContext): Promise<void> {
-  const { config, documents, guard } = ctx;
+  const { config, documents } = ctx;
   const maxBytes = config.limits.documentMaxBytes;
   await r.register(multipart, { limits: { fileSize: maxBytes, files: 1, fields: 10, parts: 12 }, throwFileSizeLimit: true });
 
-  r.post('/v1/collections/:collection/documents', { bodyLimit: Math.min(maxBytes, JSON_UPLOAD_MAX) }, async (req, reply) => {
-    const collection = collectionParam(req.params);
-    guard(req, 'ingest', 'add documents', collection);
+  // The collection is in the path, so the key's right to it is checked before any of the upload is read.
+  const uploadAccess = keyAccess('ingest', 'add documents', { in: 'path' });
+  r.post('/v1/collections/:collection/documents', { bodyLimit: Math.min(maxBytes, JSON_UPLOAD_MAX), config: { access: uploadAccess } }, async (req, reply) => {
+    const collection = grantedCollection(req);
     // Refuse an oversized upload from its declared length, before reading any of it.
     const declared = Number(req.headers['content-length'] ?? 0);
     if (declared > maxBytes + 64 * 1024) throw new SourceboundError('SB_ERR_UPLOAD_TOO_LARGE', [maxBytes]);
@@ -78,41 +71,42 @@ export async function registerDocumentRoutes(r: FastifyInstance, ctx: DocumentRo
     return reply.status(out.code).send(out.body);
   });
 
-  r.get('/v1/collections/:collection/documents', async (req) => {
-    const collection = collectionParam(req.params);
-    guard(req, 'query', 'list documents', collection);
-    return { documents: documents.list(collection) };
+  r.get('/v1/collections/:collection/documents', { config: { access: keyAccess('query', 'list documents', { in: 'path' }) } }, async (req) => {
+    return { documents: documents.list(grantedCollection(req)) };
   });
 
-  r.get('/v1/collections/:collection/documents/:id', async (req) => {
-    const collection = collectionParam(req.params);
-    guard(req, 'query', 'read documents', collection);
-    return documents.get(collection, (req.params as { id: string }).id);
+  r.get('/v1/collections/:collection/documents/:id', { config: { access: keyAccess('query', 'read documents', { in: 'path' }) } }, async (req) => {
+    return documents.get(grantedCollection(req), (req.params as { id: string }).id);
   });
 
-  r.delete('/v1/collections/:collection/documents/:id', async (req) => {
-    const collection = collectionParam(req.params);
-    guard(req, 'ingest', 'delete documents', collection);
+  r.delete('/v1/collections/:collection/documents/:id', { config: { access: keyAccess('ingest', 'delete documents', { in: 'path' }) } }, async (req) => {
     const id = (req.params as { id: string }).id;
-    return { deleted: id, ...documents.remove(collection, id) };
+    return { deleted: id, ...documents.remove(grantedCollection(req), id) };
   });
 
-  r.get('/v1/jobs/:id', async (req) => {
-    guard(req, 'query', 'read jobs');
-    const job = documents.job((req.params as { id: string }).id);
+  // Any scope may follow a job, but only a job of one of the key's collections; a job that spans every
+  // collection (a re-index of all) only with a key that holds every collection. Others look missing.
+  r.get('/v1/jobs/:jobId', { config: { access: keyAccess(['query', 'ingest', 'admin'], 'read jobs', { in: 'own' }) } }, async (req) => {
+    const job = documents.job((req.params as { jobId: string }).jobId);
     const p = req.principal;
-    // Non-admin keys see jobs of their own collections only; others look exactly like missing jobs.
-    const visible = p.scopes.has('admin') || (job.collection !== null && mayUseCollection(p, job.collection) && (p.scopes.has('ingest') || p.scopes.has('query')));
-    if (!visible || (p.collections !== null && job.collection === null && !p.scopes.has('admin'))) {
-      throw new SourceboundError('SB_ERR_UNKNOWN_JOB', [job.id]);
-    }
+    const visible = job.collection === null ? p.collections === null : mayUseCollection(p, job.collection);
+    if (!visible) throw new SourceboundError('SB_ERR_UNKNOWN_JOB', [job.id]);
     return { id: job.id, kind: job.kind, collection: job.collection, state: job.state, attempts: job.attempts, result: job.result, error: job.error, createdAt: job.createdAt, startedAt: job.startedAt, finishedAt: job.finishedAt };
   });
 
-  r.post('/v1/reindex', async (req, reply) => {
+  // A key's collections bound its re-index too: without a collection named, a key limited to one
+  // collection re-indexes that one, and a key limited to several must name one.
+  r.post('/v1/reindex', { config: { access: keyAccess('admin', 're-index', { in: 'body', absent: 'own' }) } }, async (req, reply) => {
     const body = parse(reindexBody, req.body ?? {});
-    guard(req, 'admin', 're-index', body.collection);
-    const job = documents.reindex({ ...(body.collection ? { collection: body.collection } : {}), ...(body.full ? { full: true } : {}) });
+    let collection = req.grantedCollection ?? undefined;
+    const own = req.principal.collections;
+    if (collection === undefined && own !== null) {
+      if (own.size !== 1) {
+        throw new SourceboundError('SB_ERR_VALIDATION', [`collection: this key may re-index only ${[...own].sort().join(', ')}; name one of them`]);
+      }
+      collection = [...own][0]!;
+    }
+    const job = documents.reindex({ ...(collection ? { collection } : {}), ...(body.full ? { full: true } : {}) });
     return reply.status(202).send({ status: 'queued', jobId: job.id, job: `/v1/jobs/${job.id}` });
   });
 }

@@ -4,7 +4,14 @@ import { Counter, Gauge, Histogram, Registry, collectDefaultMetrics } from 'prom
 // library's global one), so that several apps in one test process do not share counters.
 
 export interface Metrics {
+  /** The service-wide series: nothing in them names a collection. */
   readonly registry: Registry;
+  readonly contentType: string;
+  /**
+   * The exposition text: the service-wide series, then the per-collection ones for these collections
+   * only (null = every collection, and then also the jobs that span all collections).
+   */
+  render(collections: ReadonlySet<string> | null): Promise<string>;
   readonly httpRequests: Counter<'method' | 'route' | 'status'>;
   readonly httpDuration: Histogram<'method' | 'route' | 'status'>;
   readonly retrievalDuration: Histogram<'mode'>;
@@ -17,7 +24,8 @@ export interface Metrics {
 
 export interface MetricsSources {
   indexSizes(): { collection: string; chunks: number; documents: number }[];
-  jobCounts(): { state: string; count: number }[];
+  /** Jobs by state; limited to these collections when given (then jobs of no single collection are left out). */
+  jobCounts(collections?: readonly string[]): { state: string; count: number }[];
 }
 
 const LATENCY_BUCKETS = [0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30];
@@ -25,7 +33,7 @@ const LATENCY_BUCKETS = [0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5
 export function createMetrics(sources: MetricsSources, opts: { processMetrics?: boolean } = {}): Metrics {
   const registry = new Registry();
   if (opts.processMetrics ?? true) collectDefaultMetrics({ register: registry, prefix: 'sourcebound_' });
-  const m: Metrics = {
+  const m: Omit<Metrics, 'render' | 'contentType'> = {
     registry,
     httpRequests: new Counter({
       name: 'sourcebound_http_requests_total',
@@ -79,36 +87,25 @@ export function createMetrics(sources: MetricsSources, opts: { processMetrics?: 
       registers: [registry],
     }),
   };
-  new Gauge({
-    name: 'sourcebound_index_chunks',
-    help: 'Chunks indexed per collection',
-    labelNames: ['collection'],
-    registers: [registry],
-    collect() {
-      this.reset();
-      for (const s of sources.indexSizes()) this.set({ collection: s.collection }, s.chunks);
-    },
-  });
-  new Gauge({
-    name: 'sourcebound_index_documents',
-    help: 'Documents per collection',
-    labelNames: ['collection'],
-    registers: [registry],
-    collect() {
-      this.reset();
-      for (const s of sources.indexSizes()) this.set({ collection: s.collection }, s.documents);
-    },
-  });
-  new Gauge({
-    name: 'sourcebound_jobs',
-    help: 'Jobs by state (queued = queue depth)',
-    labelNames: ['state'],
-    registers: [registry],
-    collect() {
-      this.reset();
-      for (const s of ['queued', 'running', 'succeeded', 'failed']) this.set({ state: s }, 0);
-      for (const j of sources.jobCounts()) this.set({ state: j.state }, j.count);
-    },
-  });
-  return m;
+  return { ...m, contentType: registry.contentType, render: (collections) => render(registry, sources, collections) };
+}
+
+/**
+ * Per-collection series are built for each scrape from what the caller may see, in a registry of their
+ * own, so a key limited to some collections never reads another's document, chunk or job counts.
+ */
+async function render(service: Registry, sources: MetricsSources, collections: ReadonlySet<string> | null): Promise<string> {
+  const visible = sources.indexSizes().filter((s) => collections === null || collections.has(s.collection));
+  const jobs = collections === null ? sources.jobCounts() : sources.jobCounts([...collections]);
+  const scoped = new Registry();
+  const chunks = new Gauge({ name: 'sourcebound_index_chunks', help: 'Chunks indexed per collection', labelNames: ['collection'], registers: [scoped] });
+  const documents = new Gauge({ name: 'sourcebound_index_documents', help: 'Documents per collection', labelNames: ['collection'], registers: [scoped] });
+  const jobGauge = new Gauge({ name: 'sourcebound_jobs', help: 'Jobs by state (queued = queue depth)', labelNames: ['state'], registers: [scoped] });
+  for (const s of visible) {
+    chunks.set({ collection: s.collection }, s.chunks);
+    documents.set({ collection: s.collection }, s.documents);
+  }
+  for (const s of ['queued', 'running', 'succeeded', 'failed']) jobGauge.set({ state: s }, 0);
+  for (const j of jobs) jobGauge.set({ state: j.state }, j.count);
+  return `${await service.metrics()}\n${await scoped.metrics()}`;
 }

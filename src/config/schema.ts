@@ -145,14 +145,14 @@ const apiKey = z
   .object({
     id: z.string().regex(/^[A-Za-z0-9._-]{1,64}$/, 'a key id is 1-64 letters, digits, ".", "_" or "-"').describe('Name of the key, shown in logs'),
     sha256: z.string().regex(/^[0-9a-f]{64}$/, 'sha256 must be 64 lower-case hex digits').describe('SHA-256 of the key, in hex; the key itself is never stored'),
-    scopes: z.array(z.enum(['query', 'ingest', 'admin'])).min(1).describe('query: search and answer; ingest: add and delete documents; admin: re-index and jobs'),
-    collections: z.array(z.string().min(1)).min(1).describe('Collections the key may use; ["*"] for all'),
+    scopes: z.array(z.enum(['query', 'ingest', 'admin'])).min(1).describe('query: search, answer, read documents; ingest: add and delete documents; admin: re-index and /metrics (any scope reads its collections\' jobs)'),
+    collections: z.array(z.string().min(1)).min(1).describe('Collections the key may use, re-index and see in /metrics; ["*"] for all'),
   })
   .strict();
 
 const auth = z
   .object({
-    required: z.boolean().default(false).describe('Require an API key on every /v1 route (always on when bound to a non-loopback address)'),
+    required: z.boolean().default(false).describe('Require an API key on every route but /health, /ready and the desk page (always on when bound to a non-loopback address)'),
     keys: z.array(apiKey).default([]).describe('API keys: {id, sha256, scopes, collections}; `sourcebound key new` makes one'),
   })
   .strict()
@@ -160,7 +160,7 @@ const auth = z
 
 const limits = z
   .object({
-    rateLimitPerMinute: z.number().int().min(1).default(600).describe('Requests per minute per API key (or per client address without keys)'),
+    rateLimitPerMinute: z.number().int().min(1).default(600).describe('Requests per minute per API key, or per client address when the key is missing or wrong (refused requests count)'),
     maxConcurrentQueries: z.number().int().min(1).default(8).describe('Query embeddings computed at once'),
     maxQueuedQueries: z.number().int().min(0).default(32).describe('Query embeddings waiting; beyond this requests get 503 with Retry-After'),
     maxConcurrentCompletions: z.number().int().min(1).default(4).describe('Completion-endpoint calls at once'),

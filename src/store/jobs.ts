@@ -24,7 +24,8 @@ export interface Jobs {
   fail(id: string, error: string, result?: unknown): void;
   get(id: string): JobRecord | null;
   /** Number of jobs in each state. */
-  counts(): { state: JobState; count: number }[];
+  /** Jobs by state; only those of these collections when given (jobs of no single collection are then left out). */
+  counts(collections?: readonly string[]): { state: JobState; count: number }[];
   /** Jobs left `running` by a process that died are marked failed so they can be retried. */
   failAbandoned(reason: string): number;
 }
@@ -74,8 +75,14 @@ export function createJobs(db: Db, clock: () => Date = () => new Date()): Jobs {
       const r = db.prepare('SELECT * FROM jobs WHERE id = ?').get(id) as Record<string, unknown> | undefined;
       return r ? toJob(r) : null;
     },
-    counts() {
-      return db.prepare('SELECT state, count(*) AS count FROM jobs GROUP BY state').all() as { state: JobState; count: number }[];
+    counts(collections) {
+      if (collections === undefined) {
+        return db.prepare('SELECT state, count(*) AS count FROM jobs GROUP BY state').all() as { state: JobState; count: number }[];
+      }
+      // json_each binds the list as one parameter, however long it is.
+      return db
+        .prepare('SELECT state, count(*) AS count FROM jobs WHERE collection IN (SELECT value FROM json_each(?)) GROUP BY state')
+        .all(JSON.stringify(collections)) as { state: JobState; count: number }[];
     },
     failAbandoned(reason) {
       return db

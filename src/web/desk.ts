@@ -433,7 +433,7 @@ async function copyForTicket(): Promise<void> {
     document.execCommand('copy');
     area.remove();
   }
-  $('copy-status').textContent = 'Copied: the answer with numbered sources.';
+  $('copy-status').textContent = 'Copied: the answer, its sources and the caution.';
 }
 
 function choose(helpful: boolean): void {

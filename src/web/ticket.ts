@@ -1,5 +1,6 @@
 // "Copy for a ticket": the answer as plain text a member of staff pastes into a reply, its citation
-// markers renumbered 1, 2, 3 ... in order of first use, and numbered footnotes naming each source.
+// markers renumbered 1, 2, 3 ... in order of first use, numbered footnotes naming each source, and the
+// caution that comes with every answer, so it travels with the answer wherever it is pasted.
 
 import type { AnswerDone, Citation } from './types.js';
 
@@ -21,8 +22,10 @@ export function footnote(i: number, c: Pick<Citation, 'title' | 'section' | 'pag
   return `[${i}] ${bits.join(', ')}`;
 }
 
-export function ticketText(a: Pick<AnswerDone, 'answer' | 'abstained' | 'citations'>): string {
+export function ticketText(a: Pick<AnswerDone, 'answer' | 'abstained' | 'citations' | 'caution'>): string {
+  // An abstention states that there is nothing to act on; it is copied as its plain sentence.
   if (a.abstained) return a.answer.trim();
+  const caution = a.caution.trim();
   const byN = new Map(a.citations.map((c) => [c.n, c]));
   const order: number[] = [];
   const body = a.answer.trim().replace(MARKER, (whole, list: string) => {
@@ -35,7 +38,6 @@ export function ticketText(a: Pick<AnswerDone, 'answer' | 'abstained' | 'citatio
     });
     return `[${renumbered.join(', ')}]`;
   });
-  if (order.length === 0) return body;
   const notes = order.map((n, i) => footnote(i + 1, byN.get(n)!));
-  return `${body}\n\nSources:\n${notes.join('\n')}`;
+  return [body, ...(notes.length > 0 ? [`Sources:\n${notes.join('\n')}`] : []), ...(caution ? [caution] : [])].join('\n\n');
 }

@@ -10,9 +10,11 @@ describe('fixed texts', () => {
     expect(isAbstentionReply('Claims must be made within 28 days.')).toBe(false);
   });
 
-  it('keeps the caution short and about checking sources and deferring to responsible staff', () => {
-    expect(CAUTION.split(/(?<=\.)\s+/).length).toBeLessThanOrEqual(2);
-    expect(CAUTION).toMatch(/check/i);
-    expect(CAUTION).toMatch(/legal, medical, safety or HR/);
+  it('keeps the caution short: the cited documents, check the source, not advice, defer to rules, staff and professionals', () => {
+    expect(CAUTION.split(/(?<=\.)\s+/).length).toBeLessThanOrEqual(3);
+    expect(CAUTION).toMatch(/only from the cited documents/);
+    expect(CAUTION).toMatch(/check the quoted source/);
+    expect(CAUTION).toMatch(/not legal or medical advice/);
+    expect(CAUTION).toMatch(/legal, medical, safety or HR decisions, defer to local rules and to the responsible staff or a licensed professional/);
   });
 });

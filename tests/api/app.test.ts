@@ -1,6 +1,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { FastifyInstance } from 'fastify';
 import { buildApp } from '../../src/api/app.js';
+import { CAUTION } from '../../src/answer/caution.js';
 import { appDeps, type Runtime } from '../../src/runtime.js';
 import type { Config } from '../../src/config/index.js';
 import { SEED_DIR, tempRuntime } from '../fixtures/runtime.js';
@@ -87,7 +88,8 @@ describe('POST /v1/answer', () => {
     const body = res.json();
     expect(body.abstained).toBe(false);
     expect(body.mode).toBe('extractive');
-    expect(body.caution).toMatch(/check/i);
+    expect(body.caution).toBe(CAUTION);
+    expect(body.caution).toContain('It is not legal or medical advice.');
     expect(body.citations.length).toBeGreaterThan(0);
     for (const c of body.citations) {
       const text = rt.repo.getDocumentText(c.documentId)!;
@@ -106,7 +108,7 @@ describe('POST /v1/answer', () => {
     expect(body.abstained).toBe(true);
     expect(body.citations).toEqual([]);
     expect(body.answer.length).toBeGreaterThan(10);
-    expect(body.caution).toBeTruthy();
+    expect(body.caution).toBe(CAUTION);
   });
 });
 

@@ -4,11 +4,11 @@ import path from 'node:path';
 import type { FastifyInstance } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { buildApp } from '../../src/api/app.js';
-import { checkAuthConfig, createAuthenticator, isLoopback, sha256Hex } from '../../src/api/auth.js';
+import { checkAuthConfig, createAuthenticator, isLegacyKey, isLoopback, KEY_PREFIX, newApiKey, sha256Hex } from '../../src/api/auth.js';
 import { appDeps, type Runtime } from '../../src/runtime.js';
 import { SEED_DIR, tempRuntime } from '../fixtures/runtime.js';
 
-const KEYS = { reader: 'sb_reader_key_default_only', admin: 'sb_admin_key_everything', ingester: 'sb_ingest_only_key' };
+const KEYS = { reader: 'sbk_reader_key_default_only', admin: 'sbk_admin_key_everything', ingester: 'sbk_ingest_only_key' };
 const keyConfig = [
   { id: 'reader', sha256: sha256Hex(KEYS.reader), scopes: ['query'], collections: ['default'] },
   { id: 'admin', sha256: sha256Hex(KEYS.admin), scopes: ['query', 'ingest', 'admin'], collections: ['*'] },
@@ -121,6 +121,25 @@ describe('a key scoped to one collection never sees another', () => {
   it('lets a key with every collection reach the private one', async () => {
     const res = await call('POST', '/v1/search', KEYS.admin, { query: 'zephyrine', collection: 'private' });
     expect(res.json().results[0].source).toBe('pay-scales.md');
+  });
+});
+
+describe('the key format', () => {
+  it("makes keys with the project's own prefix and 256 random bits", () => {
+    const a = newApiKey();
+    expect(KEY_PREFIX).toBe('sbk_');
+    expect(a).toMatch(/^sbk_[A-Za-z0-9_-]{43}$/);
+    expect(Buffer.from(a.slice(KEY_PREFIX.length), 'base64url')).toHaveLength(32);
+    expect(newApiKey()).not.toBe(a);
+    expect(isLegacyKey(a)).toBe(false);
+  });
+
+  it('still accepts a key with the old prefix, since the stored hash covers the whole key', () => {
+    const old = 'sb_dGhpcy1rZXktd2FzLW1hZGUtYmVmb3JlLXRoZS1jaGFuZ2U';
+    const a = createAuthenticator({ required: true, keys: [{ id: 'old', sha256: sha256Hex(old), scopes: ['query'], collections: ['*'] }] }, '127.0.0.1');
+    expect(isLegacyKey(old)).toBe(true);
+    expect(a.identify(`Bearer ${old}`)).toMatchObject({ kind: 'key', legacyFormat: true, principal: { keyId: 'old' } });
+    expect(a.identify(`Bearer sbk_${old.slice(3)}`)).toEqual({ kind: 'wrong' });
   });
 });
 

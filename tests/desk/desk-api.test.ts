@@ -14,8 +14,8 @@ import { tempRuntime } from '../fixtures/runtime.js';
 // ratings, and the page itself. Auth on: one key for collection "alpha", one for "beta".
 
 const FIXTURES = path.resolve(import.meta.dirname, '..', 'fixtures', 'ingest');
-const ALPHA_KEY = 'sb_alpha-reader';
-const BETA_KEY = 'sb_beta-reader';
+const ALPHA_KEY = 'sbk_alpha-reader';
+const BETA_KEY = 'sbk_beta-reader';
 const sha = (s: string) => createHash('sha256').update(s).digest('hex');
 
 let rt: Runtime;
@@ -124,6 +124,47 @@ describe('original files', () => {
     expect(() => desk.redeemLink(token)).toThrow(expect.objectContaining({ code: 'SB_ERR_LINK_INVALID' }));
     // A link made by another process (another secret) is refused.
     expect(() => createDeskService({ repo: rt.repo }).redeemLink(token)).toThrow(expect.objectContaining({ code: 'SB_ERR_LINK_INVALID' }));
+  });
+
+  it('refuses every one-character change to a link, at either end or in the middle, spellings that decode to the same bytes included', () => {
+    const desk = createDeskService({ repo: rt.repo });
+    const token = desk.linkOriginal('alpha', docId).path.split('link=')[1]!;
+    const [payload, signature] = token.split('.') as [string, string];
+    const ALPHABET = 'ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789-_';
+    const accepted: string[] = [];
+    let tried = 0;
+    const attempt = (forged: string) => {
+      tried++;
+      try {
+        desk.redeemLink(forged);
+        accepted.push(forged);
+      } catch (err) {
+        expect((err as { code?: string }).code).toBe('SB_ERR_LINK_INVALID');
+      }
+    };
+    for (let i = 0; i < signature.length; i++) {
+      for (const c of ALPHABET) if (c !== signature[i]) attempt(`${payload}.${signature.slice(0, i)}${c}${signature.slice(i + 1)}`);
+    }
+    for (let i = 0; i < payload.length; i++) {
+      for (const c of ALPHABET) if (c !== payload[i]) attempt(`${payload.slice(0, i)}${c}${payload.slice(i + 1)}.${signature}`);
+    }
+    expect(accepted).toEqual([]);
+    expect(tried).toBe((signature.length + payload.length) * 63);
+    // The case that made the old check flaky: three other final characters decode to the very same MAC.
+    const same = [...ALPHABET].filter((c) => c !== signature.at(-1) && Buffer.from(signature.slice(0, -1) + c, 'base64url').equals(Buffer.from(signature, 'base64url')));
+    expect(same).toHaveLength(3);
+    expect(desk.redeemLink(token)).toEqual({ collection: 'alpha', documentId: docId });
+  });
+
+  it('refuses a link with a character changed in the middle of its signature over HTTP', async () => {
+    const made = await app.inject({ method: 'POST', url: `/v1/collections/alpha/documents/${docId}/original-link`, headers: auth(ALPHA_KEY) });
+    const link = (made.json() as { path: string }).path;
+    const at = link.indexOf('.') + 20;
+    const forged = `${link.slice(0, at)}${link[at] === 'A' ? 'B' : 'A'}${link.slice(at + 1)}`;
+    const res = await app.inject({ url: forged });
+    expect(res.statusCode).toBe(403);
+    expect(res.json().error.code).toBe('SB_ERR_LINK_INVALID');
+    expect((await app.inject({ url: link })).statusCode).toBe(200);
   });
 
   it('refuses a file changed since it was indexed, and one that is gone', async () => {

@@ -115,7 +115,7 @@ describe('the CLI', () => {
   it('makes an API key whose printed entry matches the key by SHA-256', async () => {
     const r = runSync(process.execPath, [CLI, 'key', 'new', '--id', 'desk', '--scopes', 'query,ingest', '--collections', 'default'], { cwd: ROOT });
     expect(r.status).toBe(0);
-    const key = /\n  (sb_\S+)\n/.exec(r.stdout)![1]!;
+    const key = /\n  (sbk_[A-Za-z0-9_-]{43})\n/.exec(r.stdout)![1]!;
     const entry = JSON.parse(r.stdout.slice(r.stdout.indexOf('{')));
     const { createHash } = await import('node:crypto');
     expect(entry).toEqual({ id: 'desk', sha256: createHash('sha256').update(key).digest('hex'), scopes: ['query', 'ingest'], collections: ['default'] });
