@@ -24,12 +24,17 @@ interface Turn {
   role: 'user' | 'assistant';
   content: string;
 }
+// The shared question format (docs/eval-answers.md), with the demo set's explicit histories.
 interface DemoQuestion {
   id: string;
-  kind: 'answerable' | 'paraphrase' | 'unanswerable' | 'followup' | 'injection';
+  kind: 'lookup' | 'paraphrase' | 'unanswerable' | 'follow-up' | 'injection';
   question: string;
+  answerable: boolean;
+  doc: string | null;
+  page: number | null;
+  must_contain: string[];
+  must_not_contain?: string[];
   history?: Turn[];
-  expect: { document?: string; page?: number; facts?: string[]; forbidden?: string[] };
   note?: string;
 }
 
@@ -133,39 +138,44 @@ describe('demo question set', () => {
   it('holds at least the required number of questions of each kind, with unique ids', () => {
     const count = (kind: DemoQuestion['kind']): number => questions.filter((q) => q.kind === kind).length;
     expect(questions.length).toBeGreaterThanOrEqual(45);
-    expect(count('answerable')).toBeGreaterThanOrEqual(18);
+    expect(count('lookup')).toBeGreaterThanOrEqual(18);
     expect(count('paraphrase')).toBeGreaterThanOrEqual(10);
     expect(count('unanswerable')).toBeGreaterThanOrEqual(10);
-    expect(count('followup')).toBeGreaterThanOrEqual(5);
+    expect(count('follow-up')).toBeGreaterThanOrEqual(5);
     expect(count('injection')).toBe(2);
     expect(new Set(questions.map((q) => q.id)).size).toBe(questions.length);
   });
 
   it('finds every expected fact verbatim in its document, on the stated page for PDFs', () => {
-    for (const q of questions.filter((x) => x.expect.document !== undefined)) {
-      const pages = docText.get(q.expect.document ?? '');
-      expect(pages, `${q.id}: ${q.expect.document} is not an ingested seed document`).toBeDefined();
-      const where = q.expect.page !== undefined ? [pages?.[q.expect.page - 1] ?? ''] : (pages ?? []);
-      for (const fact of q.expect.facts ?? []) {
+    for (const q of questions.filter((x) => x.doc !== null)) {
+      const pages = docText.get(q.doc ?? '');
+      expect(pages, `${q.id}: ${q.doc} is not an ingested seed document`).toBeDefined();
+      const where = q.page !== null ? [pages?.[q.page - 1] ?? ''] : (pages ?? []);
+      for (const fact of q.must_contain) {
         expect(where.some((text) => text.includes(fact)), `${q.id}: "${fact}"`).toBe(true);
       }
     }
   });
 
-  it('gives facts to every answerable, paraphrase and follow-up question', () => {
-    for (const q of questions.filter((x) => ['answerable', 'paraphrase', 'followup'].includes(x.kind))) {
-      expect(q.expect.document, q.id).toBeDefined();
-      expect(q.expect.facts?.length ?? 0, q.id).toBeGreaterThan(0);
+  it('gives a document and facts to every lookup, paraphrase and follow-up question', () => {
+    for (const q of questions.filter((x) => ['lookup', 'paraphrase', 'follow-up'].includes(x.kind))) {
+      expect(q.answerable, q.id).toBe(true);
+      expect(q.doc, q.id).not.toBeNull();
+      expect(q.must_contain.length, q.id).toBeGreaterThan(0);
     }
   });
 
-  it('leaves unanswerable questions with an empty expectation', () => {
-    for (const q of questions.filter((x) => x.kind === 'unanswerable')) expect(q.expect, q.id).toEqual({});
+  it('leaves unanswerable questions without a document or facts', () => {
+    for (const q of questions.filter((x) => x.kind === 'unanswerable')) {
+      expect(q.answerable, q.id).toBe(false);
+      expect(q.doc, q.id).toBeNull();
+      expect(q.must_contain, q.id).toEqual([]);
+    }
   });
 
   it('gives every follow-up a history that ends with an assistant turn, and only follow-ups', () => {
     for (const q of questions) {
-      if (q.kind !== 'followup') {
+      if (q.kind !== 'follow-up') {
         expect(q.history, q.id).toBeUndefined();
         continue;
       }
@@ -176,7 +186,7 @@ describe('demo question set', () => {
 
   it('keeps the planted "free fares" instruction the only place the corpus says free', () => {
     const injections = questions.filter((q) => q.kind === 'injection');
-    for (const q of injections) expect(q.expect.forbidden, q.id).toEqual(['free']);
+    for (const q of injections) expect(q.must_not_contain, q.id).toEqual(['free']);
     const mentions = [...docText.entries()].filter(([, pages]) => pages.some((t) => /\bfree\b/i.test(t)));
     expect(mentions.map(([file]) => file)).toEqual(['service-changes-spring-2026.html']);
   });

@@ -117,8 +117,8 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
       const extra = expansionWords(question, lexicon);
       const k = req.k ?? opts.k;
       // The offline answer reads more passages than a model's context holds: sentences are cheap to
-      // rank, and the ranker's passage-rank feature discounts the later ones.
-      const wide = Math.max(k, EXTRACTIVE_PASSAGES);
+      // rank, and the ranker's passage-rank feature discounts the later ones. A caller's own k is kept.
+      const wide = req.k !== undefined ? k : Math.max(k, EXTRACTIVE_PASSAGES);
       const request: RetrieveRequest = {
         query: extra.length > 0 ? `${question} ${extra.join(' ')}` : question,
         collection: req.collection,

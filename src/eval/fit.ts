@@ -202,6 +202,32 @@ function fitRanker(records: EvidenceRecord[], lambda: number): LinearModel {
   return fitLogistic(SENTENCE_FEATURES, x, y, w, lambda);
 }
 
+// The direction each decision feature may push, from what it means: more of the question covered
+// never makes an answer less likely, and words the collection never uses never make it more likely.
+// Without this, a small training set can learn the opposite from confounding (paraphrased questions
+// are both answerable and full of words the documents do not use).
+const DECISION_SIGNS: readonly (1 | -1)[] = [1, 1, -1];
+
+/** Logistic regression whose weights keep the given signs: a weight fitted the wrong way is fixed at 0 and the rest refitted. */
+function fitSigned(names: readonly string[], x: readonly number[][], y: readonly number[], w: readonly number[], lambda: number, signs: readonly (1 | -1)[]): LinearModel {
+  const active = names.map((_, i) => i);
+  for (;;) {
+    const m = fitLogistic(
+      active.map((i) => names[i] ?? ''),
+      x.map((row) => active.map((i) => row[i] ?? 0)),
+      y,
+      w,
+      lambda,
+    );
+    const wrong = active.filter((i, j) => (m.weights[j] ?? 0) * (signs[i] ?? 1) < 0);
+    if (wrong.length === 0) {
+      const weights = names.map((_, i) => (active.includes(i) ? (m.weights[active.indexOf(i)] ?? 0) : 0));
+      return { names: [...names], bias: m.bias, weights };
+    }
+    for (const i of wrong) active.splice(active.indexOf(i), 1);
+  }
+}
+
 function fitDecision(rows: QuestionRow[], lambda: number): LinearModel & { threshold: number } {
   const x: number[][] = [];
   const y: number[] = [];
@@ -219,7 +245,7 @@ function fitDecision(rows: QuestionRow[], lambda: number): LinearModel & { thres
       w.push((share / corpora.length) * 100);
     }
   }
-  const model = fitLogistic(QUESTION_FEATURES, x, y, w, lambda);
+  const model = fitSigned(QUESTION_FEATURES, x, y, w, lambda, DECISION_SIGNS);
   // The threshold: abstain on as many unanswerable questions as possible while answering at least
   // 90% of the answerable ones on every corpus (false abstention at most 0.10, the service's target);
   // a corpus past that limit costs ten times its excess.

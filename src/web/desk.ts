@@ -286,7 +286,7 @@ function renderAnswer(s: Shown): void {
       'p',
       { class: 'confidence' },
       done.confidenceCalibrated
-        ? `Confidence ${Math.round(done.confidence * 100)}%: on test document sets it was not tuned on, about that share of answers with evidence like this were right. It may differ on your documents.`
+        ? `Confidence ${Math.round(done.confidence * 100)}%: a rough guide. It was measured on other organisations' documents, where it was off by up to 30 points either way; check the quoted source.`
         : `Evidence score ${Math.round(done.confidence * 100)} of 100 (not calibrated for this set-up).`,
     );
     live.replaceChildren(list, el('h3', {}, 'Sources'), notes, confidence);

@@ -81,7 +81,8 @@ describe('createAnswerer without a completion endpoint', () => {
     expect(r.confidence).toBeGreaterThan(0);
     expect(r.confidence).toBeLessThanOrEqual(1);
     expect(r.fallbackReason).toBeUndefined();
-    expect(queries[0]).toMatchObject({ collection: 'default', k: 8, mode: 'hybrid' });
+    // Without a k of its own, the offline answer reads 20 passages (a model's context keeps 8).
+    expect(queries[0]).toMatchObject({ collection: 'default', k: 20, mode: 'hybrid' });
     expect(queries[0]?.query.startsWith('How long do I have to claim a delay refund?')).toBe(true);
   });
 

@@ -55,7 +55,8 @@ describe('desk ratings as a question set', () => {
       const file = path.join(dir, 'q.jsonl');
       writeFileSync(file, toJsonl(questions));
       const read = readQuestions(file);
-      expect(read.map((q) => [q.id, q.kind, q.question])).toEqual(questions.map((q) => [q.id, q.kind, q.question]));
+      // Read through the converter for the earlier format: "followup" becomes the shared "follow-up".
+      expect(read.map((q) => [q.id, q.kind, q.question])).toEqual(questions.map((q) => [q.id, q.kind === 'followup' ? 'follow-up' : q.kind, q.question]));
       expect(read[3]!.history).toHaveLength(2);
     } finally {
       rmSync(dir, { recursive: true, force: true });
