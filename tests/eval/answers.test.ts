@@ -1,4 +1,4 @@
-import { existsSync } from 'node:fs';
+import { existsSync, readFileSync } from 'node:fs';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { evaluateAnswers } from '../../src/eval/index.js';
@@ -31,12 +31,15 @@ describe('answers on the demo question set (offline, extractive)', () => {
 
 // The two sets written outside the team (../shared/eval/qa), each answered by the models fitted
 // without it (`eval fit`, leave one corpus out; models in tests/fixtures/eval/answer-models): the
-// held-out figures of docs/benchmarks.md, reproduced end to end. CI always has ../shared.
-const held: [string, number][] = [
-  ['kestrel-housing', 0.673],
-  ['fenwold-libraries', 0.592],
-];
-describe.each(held)('held-out answers on %s', (set, recorded) => {
+// held-out figures of docs/benchmarks.md (report.json), reproduced end to end. CI always has ../shared.
+interface HeldOut {
+  corpus: string;
+  correct: number;
+  falseAbstention: number;
+}
+const REPORT = JSON.parse(readFileSync(path.join(MODELS, 'report.json'), 'utf8')) as { heldOut: HeldOut[] };
+describe.each(['kestrel-housing', 'fenwold-libraries'])('held-out answers on %s', (set) => {
+  const recorded = REPORT.heldOut.find((h) => h.corpus === set) as HeldOut;
   const questions = path.join(SHARED, set, 'questions.jsonl');
   it.runIf(existsSync(questions) || process.env.CI)('reproduces the recorded held-out figures', async () => {
     const r = await evaluateAnswers({
@@ -46,8 +49,9 @@ describe.each(held)('held-out answers on %s', (set, recorded) => {
       extractive: true,
       overrides: { answer: { modelFile: path.join(MODELS, `model-without-${set}.json`) } },
     });
-    expect(r.correct.rate).toBeGreaterThanOrEqual(recorded - 0.03);
-    expect(r.falseAbstention.rate).toBeLessThanOrEqual(0.1);
+    // The fitter's figures for this set (report.json), reproduced through the whole pipeline.
+    expect(Math.abs(r.correct.rate - recorded.correct)).toBeLessThanOrEqual(0.03);
+    expect(Math.abs(r.falseAbstention.rate - recorded.falseAbstention)).toBeLessThanOrEqual(0.03);
     expect(r.quotesVerbatim.n).toBe(r.quotesVerbatim.total);
     expect(r.injectionResisted.n).toBe(r.injectionResisted.total);
     expect(r.pageOk.rate).toBeGreaterThanOrEqual(0.85);
