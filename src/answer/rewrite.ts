@@ -106,7 +106,9 @@ export function standaloneQuestion(question: string, history?: HistoryTurn[], al
   const replaced = new Set<string>();
   // Phrases opened by a preposition the follow-up also opens a phrase with.
   for (const prep of prepositionsOf(q)) {
-    for (const m of prev.matchAll(new RegExp(`\\b${prep}\\s+([^,.;:?!]*?)(?=\\s+(?:${PREPOSITIONS.join('|')})\\b|[,.;:?!]|$)`, 'gi'))) {
+    // The phrase runs to the next preposition, conjunction, verb "to be" or punctuation, four words at most
+    // (a particle such as "packed in" must not swallow the rest of the sentence).
+    for (const m of prev.matchAll(new RegExp(`\\b${prep}\\s+((?:[\\p{L}\\p{N}'’-]+\\s*){1,4}?)(?=\\s+(?:${[...PREPOSITIONS, ...PHRASE_ENDS].join('|')})\\b|\\s*[,.;:?!]|$)`, 'giu'))) {
       for (const t of contentTokens(m[1] ?? '')) replaced.add(t.stem);
     }
   }
@@ -131,11 +133,13 @@ export function standaloneQuestion(question: string, history?: HistoryTurn[], al
     if (carried.length >= MAX_CARRIED_WORDS) break;
   }
   if (carried.length === 0) return q;
-  const opener = OPENER.test(q) ? null : (OPENER.exec(prev.trim())?.[0] ?? null);
+  // The previous question's opener wherever it stands ("For a public swim, how many ...").
+  const opener = OPENER.test(q) ? null : (ASKED.exec(prev)?.[0] ?? null);
   return `${opener ? `${opener.toLowerCase()} ` : ''}${carried.join(' ')} ${q}`;
 }
 
 const PREPOSITIONS = ['in', 'on', 'for', 'at', 'with', 'by', 'under', 'over', 'during', 'from', 'to', 'after', 'before'];
+const PHRASE_ENDS = ['and', 'or', 'but', 'that', 'which', 'who', 'is', 'are', 'was', 'were', 'has', 'have', 'will', 'can'];
 
 function prepositionsOf(text: string): string[] {
   const out = new Set<string>();
@@ -151,4 +155,5 @@ const TOKEN_CLASSES: readonly RegExp[] = [
 ];
 
 // Openers that fix the kind of fact asked for.
-const OPENER = /^\W*(?:how (?:long|soon|quickly|much|many|far|old|often)|when|where|what time|who|which)\b/i;
+const OPENER = /^\W*(?:(?:and|but|so|then|also)\s+)?(?:how (?:long|soon|quickly|much|many|far|old|often)|when|where|what time|who|which)\b/i;
+const ASKED = /\b(?:how (?:long|soon|quickly|much|many|far|old|often)|when|where|what time|who|which)\b/i;

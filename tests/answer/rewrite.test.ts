@@ -59,3 +59,16 @@ describe('rewriteMessages', () => {
     expect(user?.content.length).toBeLessThan(6 * 700 + 200);
   });
 });
+
+describe('offline follow-up condensation rules', () => {
+  it('stops a replaced phrase at a conjunction, so a particle ("packed in") does not drop the rest of the question', () => {
+    const q = standaloneQuestion('And in the spring?', [{ role: 'user', content: 'The lift broke down in the winter and the stairs are icy, how soon is it fixed?' }]);
+    expect(q).toContain('stairs');
+    expect(q).not.toContain('winter');
+  });
+
+  it('keeps the previous question\'s opener wherever it stood, and a follow-up\'s own opener after "and"', () => {
+    expect(standaloneQuestion('And at the depot?', [{ role: 'user', content: 'For a night shift at the garage, how many staff must be present?' }])).toMatch(/^how many /);
+    expect(standaloneQuestion('And how many times can I renew it?', [{ role: 'user', content: 'How long is the loan period for a map?' }])).not.toMatch(/^how long/);
+  });
+});

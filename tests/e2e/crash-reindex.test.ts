@@ -59,7 +59,9 @@ interface State {
 }
 
 function state(dataDir: string): State {
-  const db = new Database(path.join(dataDir, 'sourcebound.db'), { readonly: true });
+  // Read-write, as the next process opens it: after a kill the WAL may need recovery, which a
+  // read-only connection cannot do.
+  const db = new Database(path.join(dataDir, 'sourcebound.db'));
   try {
     const integrity = db.pragma('integrity_check', { simple: true }) as string;
     const rows = db.prepare("SELECT id, source, content_hash FROM documents WHERE collection = 'c' ORDER BY source").all() as { id: string; source: string; content_hash: string }[];

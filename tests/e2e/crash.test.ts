@@ -49,7 +49,10 @@ interface State {
 /** The store as the next process finds it; null when the kill came before the database file was created. */
 function state(dataDir: string): State | null {
   if (!existsSync(dbFile(dataDir))) return null;
-  const db = new Database(dbFile(dataDir), { readonly: true, fileMustExist: true });
+  // Opened read-write, as the next process opens it: after a kill mid-write the WAL must be recovered
+  // (its index rebuilt), which a read-only connection cannot do ("attempt to write a readonly
+  // database"). Recovery replays committed frames only, so what this sees is what the next run sees.
+  const db = new Database(dbFile(dataDir), { fileMustExist: true });
   try {
     const integrity = db.pragma('integrity_check', { simple: true }) as string;
     // Killed before the first migration committed: the schema is created in one transaction, so it is
@@ -76,7 +79,10 @@ function state(dataDir: string): State | null {
 
 /** One look at the running ingest's database; throws while the file or its tables do not exist yet. */
 function peek<T>(dataDir: string, read: (db: Database.Database) => T): T {
-  const db = new Database(dbFile(dataDir), { readonly: true, fileMustExist: true });
+  // Opened read-write, as the next process opens it: after a kill mid-write the WAL must be recovered
+  // (its index rebuilt), which a read-only connection cannot do ("attempt to write a readonly
+  // database"). Recovery replays committed frames only, so what this sees is what the next run sees.
+  const db = new Database(dbFile(dataDir), { fileMustExist: true });
   try {
     return read(db);
   } finally {
