@@ -21,6 +21,10 @@ export interface QuestionTerm {
   related: string[];
   /** Surface forms of `related`, for query expansion. */
   relatedWords?: string[];
+  /** The collection never uses the term's own wording (some word of each alternative is missing). */
+  outOfVocabulary?: boolean;
+  /** Spelling corrections to words the collection uses (also in `near`), with their surface forms. */
+  corrections?: { stem: string; word: string }[];
   /** True when the collection uses the term (or one of its alternatives); false when unknown there. */
   known: boolean;
 }
@@ -111,18 +115,24 @@ export function questionTerms(question: string, lexicon: Lexicon = {}): Question
       for (let i = s; i < e; i++) taken[i] = true;
       const alts = members.filter((x) => x.group === m.group).map((x) => x.stems);
       const known = !vocab || alts.some((a) => a.every((st) => vocab.df(st) > 0));
-      found.push({ at: s, term: { label: hit[0].toLowerCase(), alts, near: [], related: [], known } });
+      found.push({ at: s, term: { label: hit[0].toLowerCase(), alts, near: [], related: [], known, outOfVocabulary: !known } });
     }
   }
   for (const t of contentTokens(question)) {
     if (taken.slice(t.start, t.end).some(Boolean)) continue;
     const near: string[] = [];
+    const corrections: { stem: string; word: string }[] = [];
     const inVocab = !vocab || vocab.df(t.stem) > 0;
     if (vocab && !inVocab && !/\d/.test(t.word)) {
       // A misspelling of a word the collection uses: the nearest corrections (one distance only).
       const fixes = vocab.corrections(t.word);
       const best = fixes[0]?.distance;
-      for (const f of fixes) if (f.distance === best && f.stem !== t.stem && !near.includes(f.stem)) near.push(f.stem);
+      for (const f of fixes) {
+        if (f.distance === best && f.stem !== t.stem && !near.includes(f.stem)) {
+          near.push(f.stem);
+          corrections.push({ stem: f.stem, word: f.word });
+        }
+      }
     }
     if (lexicon.synonyms && !/\d/.test(t.word)) {
       for (const s of lexicon.synonyms.synonyms(t.word)) {
@@ -146,7 +156,7 @@ export function questionTerms(question: string, lexicon: Lexicon = {}): Question
       }
     }
     const known = inVocab || near.length > 0;
-    found.push({ at: t.start, term: { label: t.word, alts: [[t.stem]], near, related, relatedWords, known } });
+    found.push({ at: t.start, term: { label: t.word, alts: [[t.stem]], near, related, relatedWords, known, outOfVocabulary: !inVocab, corrections } });
   }
   found.sort((a, b) => a.at - b.at);
   const out: QuestionTerm[] = [];
@@ -185,30 +195,21 @@ export function expansionWords(question: string, lexicon: Lexicon = {}): string[
   const have = new Set(tokenize(question).map((t) => t.stem));
   const out: string[] = [];
   const words = surfaceWords(lexicon);
+  const add = (st: string, word: string | undefined): void => {
+    if (!word || have.has(st)) return;
+    have.add(st);
+    out.push(word);
+  };
   for (const term of questionTerms(question, lexicon)) {
-    const singles = term.alts.filter((a) => a.length === 1).map((a) => a[0] as string);
     // WordNet synonyms stay out of the query: a general synonym of a common word drifts too far;
-    // corrections (the term is unknown) and operator alternatives do not.
-    const near = term.alts.length === 1 && term.alts[0]?.length === 1 && lexicon.vocabulary && lexicon.vocabulary.df(term.alts[0][0] ?? '') === 0
-      ? term.near.filter((s) => lexicon.vocabulary?.corrections(term.label).some((c) => c.stem === s))
-      : [];
-    for (const s of [...singles, ...near]) {
-      if (have.has(s)) continue;
-      const word = words.get(s) ?? lexicon.vocabulary?.corrections(term.label).find((c) => c.stem === s)?.word;
-      if (!word) continue;
-      have.add(s);
-      out.push(word);
-    }
+    // operator alternatives and spelling corrections (of a word the collection lacks) do not.
+    for (const alt of term.alts) if (alt.length === 1) add(alt[0] as string, words.get(alt[0] as string));
+    for (const c of term.corrections ?? []) add(c.stem, words.get(c.stem) ?? c.word);
     // A word the collection never uses, and cannot be corrected to one, reaches the collection's
     // passages only through related words it does use (WordNet: "radiator" → "heater"); a few of
     // them, the way query expansion for out-of-vocabulary terms has long been done.
-    if (!term.known || (lexicon.vocabulary && term.alts.every((a) => a.some((st) => lexicon.vocabulary?.df(st) === 0)) && near.length === 0)) {
-      for (const w of (term.relatedWords ?? []).slice(0, RELATED_EXPANSIONS)) {
-        const st = stem(w);
-        if (have.has(st)) continue;
-        have.add(st);
-        out.push(w);
-      }
+    if (term.outOfVocabulary && (term.corrections ?? []).length === 0) {
+      for (const w of (term.relatedWords ?? []).slice(0, RELATED_EXPANSIONS)) add(stem(w), w);
     }
   }
   return out;

@@ -183,12 +183,13 @@ const EVAL_USAGE = `Usage: sourcebound eval retrieval ...   measure retrieval on
 Run each with --help for its options.`;
 
 /** parseArgs, with a one-line message instead of a stack trace for an unknown or malformed option. */
-type OptionSpec = Record<string, { type: 'string' | 'boolean'; short?: string; default?: string | boolean }>;
+type OptionSpec = Record<string, { type: 'string' | 'boolean'; short?: string; default?: string | boolean; multiple?: boolean }>;
+type OptionValues = Record<string, string | boolean | string[] | undefined>;
 
-function parseOptions(command: string, args: string[], options: OptionSpec): { values: Record<string, string | boolean | undefined> } | null {
+function parseOptions(command: string, args: string[], options: OptionSpec): { values: OptionValues } | null {
   try {
     const { values } = parseArgs({ args, options, allowPositionals: false });
-    return { values: values as Record<string, string | boolean | undefined> };
+    return { values: values as OptionValues };
   } catch (err) {
     process.stderr.write(`sourcebound ${command}: ${(err as Error).message.split('\n')[0]}\nRun \`sourcebound ${command} --help\` for the options.\n`);
     return null;
@@ -404,16 +405,14 @@ async function runFit(args: string[]): Promise<number> {
     process.stdout.write(`${FIT_HELP}\n`);
     return 0;
   }
-  let values: { features?: string[]; 'out-dir'?: string; module?: string; json?: boolean };
-  try {
-    values = parseArgs({
-      args,
-      options: { features: { type: 'string', multiple: true }, 'out-dir': { type: 'string' }, module: { type: 'string' }, json: { type: 'boolean' } },
-    }).values;
-  } catch (err) {
-    process.stderr.write(`sourcebound eval fit: ${(err as Error).message.split('\n')[0]}\nRun \`sourcebound eval fit --help\` for the options.\n`);
-    return 2;
-  }
+  const parsed = parseOptions('eval fit', args, {
+    features: { type: 'string', multiple: true },
+    'out-dir': { type: 'string' },
+    module: { type: 'string' },
+    json: { type: 'boolean' },
+  });
+  if (!parsed) return 2;
+  const values = parsed.values as { features?: string[]; 'out-dir'?: string; module?: string; json?: boolean };
   const files = (values.features ?? []).flatMap((f) => f.split(',')).filter(Boolean);
   if (files.length === 0) {
     process.stderr.write('sourcebound eval fit: give at least two --features files\n');

@@ -18,7 +18,7 @@ import {
   type LinearModel,
   type WeighedTerm,
 } from '../answer/evidence.js';
-import { calibrate, fitIsotonic, type IsotonicMap } from '../answer/calibration.js';
+import { fitIsotonic, type IsotonicMap } from '../answer/calibration.js';
 import { squash } from './answers.js';
 
 /** One question's record from a features file. */
@@ -386,5 +386,3 @@ import type { AnswerModel } from './evidence.js';
 export const FITTED_MODEL: AnswerModel = ${JSON.stringify(model, null, 2)};
 `;
 }
-
-export { calibrate };
