@@ -82,7 +82,7 @@ function usableRewrite(reply: string, question: string): string | null {
   return line;
 }
 
-/** Tells whether two words name alternatives of one kind ("car" and "bicycle"); see `standaloneQuestion`. */
+/** Tells whether two words name alternatives of one kind ("tram" and "bus"); see `standaloneQuestion`. */
 export type AlternativeTest = (a: string, b: string) => boolean;
 
 /**

@@ -26,7 +26,7 @@ export interface SynonymSource {
   /**
    * True when the two words name alternatives of one kind: in their commonest noun senses they share
    * a hypernym at most three levels up that is itself specific (at least five levels below the root),
-   * as "car" and "bicycle" share "wheeled vehicle" while "car" and "scissors" share only "artifact".
+   * as "tram" and "bus" share a kind of public transport while "car" and "scissors" share only "artifact".
    */
   alternatives?(a: string, b: string): boolean;
 }
@@ -164,7 +164,7 @@ export function createWordNet(dir: string, opts: { senses?: number; perWord?: nu
     const roots: number[] = [];
     const lemma = baseForms('noun', w).find((f) => offsets('noun', f).length > 0);
     if (lemma) roots.push(...offsets('noun', lemma).slice(0, 3));
-    // A verb reaches its nouns through derivation ("cycle" the verb → "bicycle").
+    // A verb reaches its nouns through derivation (the verb "ride" → the noun "ride").
     const vlemma = baseForms('verb', w).find((f) => offsets('verb', f).length > 0);
     if (vlemma) for (const off of offsets('verb', vlemma).slice(0, 2)) for (const p of pointers('verb', off)) if (p.symbol === '+' && p.pos === 'noun') roots.push(p.offset);
     let level = roots;

@@ -52,7 +52,10 @@ describe('question-set vocabulary', () => {
     if (process.env.CI) expect(available.length).toBe(SETS.length);
   });
 
-  it('has no word or two-word phrase in src/ that occurs only in a question file and in no document', () => {
+  // Which words count as "only in a question" depends on how much text the documents give: with the
+  // demo documents alone, everyday words ("many", "soon") would look question-only. So the check runs
+  // with every set at hand (always in CI) and is reported as skipped otherwise.
+  it.runIf(available.length === SETS.length || process.env.CI)('has no word or two-word phrase in src/ that occurs only in a question file and in no document', () => {
     const docWords = new Set<string>();
     const docPhrases = new Set<string>();
     const qWords = new Set<string>();
