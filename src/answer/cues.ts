@@ -38,7 +38,7 @@ const FACT: Record<AnswerKind, RegExp> = {
     'i',
   ),
   age: /\baged?\s+\d+|\b\d+\s*(?:or|and)\s+(?:over|older|above|under|younger)\b|\b(?:under|over)[\s-]+\d+s?\b|\b\d+[\s-]+(?:years?[\s-]+old|year-olds?)\b|\b\d+\s*(?:to|-|–)\s*\d+\s*(?:years?|year-olds?)\b/i,
-  count: new RegExp(`(?<!^[\\s\\d.]*)\\b${NUMBER_WORD}\\s+(?!of\\b)\\p{L}{3,}|\\bup to\\s+\\d+\\b`, 'iu'),
+  count: new RegExp(`(?<!^[\\s\\d.]*)\\b${NUMBER_WORD}\\s+(?!of\\b)\\p{L}{3,}|\\bup to\\s+\\d+\\b|\\b(?:total|maximum|minimum|limit|most) of\\s+${NUMBER_WORD}\\b`, 'iu'),
   measure: /\b\d+(?:\.\d+)?\s*(?:metres?|meters?|m|cm|mm|km\/h|km|mph|miles?|v|kv|volts?|kg|g|litres?|°c|degrees?)\b/i,
   phone: /(?:\+\d{1,3}[\s-]?)?\(?\b0\d{2,4}\)?[\s-]?\d{3,4}[\s-]?\d{3,4}\b|\b\d{3}[\s-]\d{3}[\s-]\d{4}\b/,
   contact: /[\w.+-]+@[\w-]+(?:\.[\w-]+)+|\bhttps?:\/\/\S+|\bwww\.\S+|\b[\w-]+\.(?:example|org|com|net|gov|uk)(?:\/\S*)?\b/i,

@@ -253,25 +253,47 @@ export function display(quote: string): string {
 // A line of a dotted-leader table ("Adult book overdue ........ 25p per day").
 const LEADER = /\S\s*(?:\.{4,}|…{2,}|_{4,})\s*\S/;
 
-/** Sentence spans, with each line of a multi-line table or leader block as its own record. */
+/** A line of a leader table ("Opening hours ........ 9:00-17:00") or a pipe table ("| a | b |"). */
+function isTableLine(line: string): boolean {
+  return LEADER.test(line) || /^\s*\|.*\|\s*$/.test(line) || /\S\s+\|\s+\S.*\S\s+\|\s+\S/.test(line);
+}
+
+/**
+ * Sentence spans, with each line of a table or leader block as its own record. Table lines are
+ * found before sentence splitting: a leader row's dots look like an ellipsis to UAX #29, which
+ * would otherwise end a "sentence" inside the row and glue its label to the row above.
+ */
 function recordSpans(text: string): SentenceSpan[] {
-  const out: SentenceSpan[] = [];
-  for (const span of splitSentences(text)) {
-    const lines = span.text.split('\n');
-    if (lines.length > 1 && lines.filter((l) => LEADER.test(l) || /^\s*\|.*\|\s*$/.test(l)).length >= Math.ceil(lines.length / 2)) {
-      let at = span.start;
-      for (const line of lines) {
-        const lead = line.length - line.trimStart().length;
-        const body = line.trim();
-        if (body) out.push({ text: body, start: at + lead, end: at + lead + body.length });
-        at += line.length + 1;
-      }
-    } else {
-      out.push(span);
-    }
+  const lines: { text: string; start: number }[] = [];
+  let at = 0;
+  for (const line of text.split('\n')) {
+    lines.push({ text: line, start: at });
+    at += line.length + 1;
   }
+  const table = lines.map((l) => isTableLine(l.text));
+  // A table is two or more table lines in a row; a lone line with dots or bars stays prose.
+  const inTable = table.map((t, i) => t && (table[i - 1] === true || table[i + 1] === true));
+  const out: SentenceSpan[] = [];
+  let proseFrom = 0;
+  const flushProse = (to: number): void => {
+    if (to > proseFrom) {
+      for (const s of splitSentences(text.slice(proseFrom, to))) out.push({ text: s.text, start: s.start + proseFrom, end: s.end + proseFrom });
+    }
+  };
+  lines.forEach((line, i) => {
+    if (!inTable[i]) return;
+    flushProse(line.start);
+    const lead = line.text.length - line.text.trimStart().length;
+    const body = line.text.trim();
+    if (body) out.push({ text: body, start: line.start + lead, end: line.start + lead + body.length });
+    proseFrom = line.start + line.text.length + 1;
+  });
+  flushProse(text.length);
   return out;
 }
+
+// A bulleted or numbered list item as the loaders write it ("- ", "• ", "1. ", "a) ").
+const LIST_ITEM = /^(?:[-*•◦▪]|\d{1,2}[.)]|[a-z][.)])\s/u;
 
 /** Every quotable sentence of the context; planted instructions and the sentences around them are never quotable. */
 export function candidates(sources: ContextSource[]): Candidate[] {
@@ -282,16 +304,23 @@ export function candidates(sources: ContextSource[]): Candidate[] {
     // A planted instruction and the sentences of its block (the false statement it wants repeated).
     const tainted = taintedSentences(source.text, spans);
     let prev: SentenceSpan | null = null;
+    // The sentence that leads into a list ("You do not need our permission to keep:").
+    let leadIn: SentenceSpan | null = null;
     let lastSection: string | null = null;
     for (const [i, span] of spans.entries()) {
       if (isJunkSentence(span.text, headings) || tainted[i]) {
         prev = null;
+        leadIn = null;
         continue;
       }
       const row = LEADER.test(span.text) || span.text.includes('|');
+      const item = LIST_ITEM.test(span.text);
       const section = sectionAt(source, span.start);
       const heading = contentStems(`${section} ${tableHeader(source.text, span)}`);
-      const before = prev && !row ? contentStems(prev.text) : new Set<string>();
+      // A list item's context is its lead-in, not the sibling item before it.
+      const said = item ? leadIn : prev;
+      const before = said && !row ? contentStems(said.text) : new Set<string>();
+      if (!item) leadIn = span;
       const context = new Set([...heading, ...before]);
       out.push({ sourceIndex, span, prev, stems: contentStems(span.text), context, heading, before, first: section !== lastSection, ranges: numericRanges(span.text), row });
       lastSection = section;
@@ -306,6 +335,8 @@ function holdsNumber(t: QuestionTerm, c: Candidate): boolean {
   const only = t.alts.length === 1 && t.alts[0]?.length === 1 ? t.alts[0][0] : undefined;
   if (only === undefined || !/^\d+(?:\.\d+)?$/.test(only)) return false;
   const x = Number(only);
+  // A bare four-digit number from 1000 to 2999 is a year: a date, not a quantity a range bounds.
+  if (/^[12]\d{3}$/.test(only)) return false;
   return c.ranges.some(([lo, hi]) => x >= lo && x <= hi);
 }
 

@@ -122,6 +122,9 @@ export function standaloneQuestion(question: string, history?: HistoryTurn[], al
     if (!have.has(t.stem) || isStopword(t.word)) return;
     for (const n of [prevTokens[i - 1], prevTokens[i + 1]]) if (n && !have.has(n.stem) && n.word.length <= 3) replaced.add(n.stem);
   });
+  // A labelled noun the follow-up names with another label ("Band A" after "Band B").
+  const heads = new Set(followTokens.filter((t) => t.stem.includes(' ')).map((t) => t.stem.split(' ')[0]));
+  for (const t of contentTokens(prev)) if (t.stem.includes(' ') && heads.has(t.stem.split(' ')[0]) && !have.has(t.stem)) replaced.add(t.stem);
   const carried: string[] = [];
   const seen = new Set<string>();
   for (const t of contentTokens(prev)) {

@@ -123,7 +123,7 @@ export function questionTerms(question: string, lexicon: Lexicon = {}): Question
     const near: string[] = [];
     const corrections: { stem: string; word: string }[] = [];
     const inVocab = !vocab || vocab.df(t.stem) > 0;
-    if (vocab && !inVocab && !/\d/.test(t.word)) {
+    if (vocab && !inVocab && !/[\d ]/.test(t.word)) {
       // A misspelling of a word the collection uses: the nearest corrections (one distance only).
       const fixes = vocab.corrections(t.word);
       const best = fixes[0]?.distance;

@@ -7,7 +7,7 @@
 // distance (Damerau 1964; the optimal-string-alignment variant). Lookups cost a few hash probes
 // instead of a scan of the vocabulary.
 
-import { contentTokens, tokenize } from './words.js';
+import { contentTokens, labelTokens, tokenize } from './words.js';
 
 export interface Vocabulary {
   /** Lines (paragraphs, list items, table rows) in the collection. */
@@ -37,7 +37,8 @@ export function buildVocabulary(texts: Iterable<string>): Vocabulary {
       if (!/[\p{L}\p{N}]/u.test(line)) continue;
       lines++;
       const seen = new Set<string>();
-      for (const t of tokenize(line)) {
+      const tokens = tokenize(line);
+      for (const t of [...tokens, ...labelTokens(line, tokens)]) {
         const w = words.get(t.word);
         if (w) w.count++;
         else words.set(t.word, { stem: t.stem, count: 1 });
@@ -50,7 +51,7 @@ export function buildVocabulary(texts: Iterable<string>): Vocabulary {
   }
   const deletes = new Map<string, string[]>();
   for (const word of words.keys()) {
-    if (word.length < MIN_CORRECTABLE || /\d/.test(word)) continue;
+    if (word.length < MIN_CORRECTABLE || /[\d ]/.test(word)) continue;
     for (const d of deleteVariants(word, maxDistance(word.length))) {
       const list = deletes.get(d);
       if (list) list.push(word);

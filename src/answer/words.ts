@@ -48,12 +48,33 @@ export function isStopword(word: string): boolean {
 /** Tokens that carry topic: not function words, and not the quantifier after "how". */
 export function contentTokens(text: string): WordToken[] {
   const all = tokenize(text);
-  return all.filter((t, i) => {
+  const labels = labelTokens(text, all);
+  const words = all.filter((t, i) => {
     if (isStopword(t.word)) return false;
     if (HOW_QUANTIFIERS.has(t.word) && all[i - 1]?.word === 'how') return false;
-    // Single letters are list bullets or initials, not topic.
+    // Single letters are list bullets or initials, not topic, except a capital letter that labels
+    // the noun before it ("Band B", "Form C", "Zone A"), which is what tells rows apart.
     return t.word.length > 1 || /\p{N}/u.test(t.word);
   });
+  return labels.length === 0 ? words : [...words, ...labels].sort((a, b) => a.start - b.start);
+}
+
+/**
+ * A capital letter that labels the noun before it ("Band B", "Form C", "Zone A") as one token
+ * "band b": the pair is what tells rows apart, while the letter alone is a bullet, an initial or
+ * an article. Not "I", and only with a content word straight before it on the same line.
+ */
+export function labelTokens(text: string, all: WordToken[] = tokenize(text)): WordToken[] {
+  const out: WordToken[] = [];
+  for (let i = 1; i < all.length; i++) {
+    const t = all[i]!;
+    const prev = all[i - 1]!;
+    if (t.word.length !== 1 || t.word === 'i' || !/^\p{Lu}$/u.test(text.slice(t.start, t.end))) continue;
+    if (isStopword(prev.word) || prev.word.length < 2 || /\p{N}/u.test(prev.word)) continue;
+    if (!/^[^\S\n]+$/.test(text.slice(prev.end, t.start))) continue;
+    out.push({ word: `${prev.word} ${t.word}`, stem: `${prev.stem} ${t.word}`, start: prev.start, end: t.end });
+  }
+  return out;
 }
 
 /** Distinct content stems of `text`. */

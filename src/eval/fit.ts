@@ -182,24 +182,103 @@ function questionRows(records: EvidenceRecord[], ranker: LinearModel, comp: Comp
   });
 }
 
+/**
+ * The sentence ranker. Its weights are fitted listwise, as a conditional logit over each question's
+ * candidates (McFadden 1974; the softmax ranking loss of Cao et al., ICML 2007): the likelihood that
+ * the candidates holding the answer take the probability mass among that question's sentences. This
+ * is the choice the answerer makes (one question, its sentences), where a pointwise fit would spend
+ * its effort on telling sentences of different questions apart. A softmax is blind to a shared
+ * offset and scale, so a one-feature logistic fit of the listwise score then maps it to a probability
+ * that a sentence holds the answer (Platt 1999), which the composition's ratios read.
+ */
 function fitRanker(records: EvidenceRecord[], lambda: number): LinearModel {
-  const x: number[][] = [];
-  const y: number[] = [];
-  const w: number[] = [];
   const corpora = new Set(records.map((r) => r.corpus));
+  const lists: { x: number[][]; y: boolean[]; w: number }[] = [];
   for (const c of corpora) {
     const qs = records.filter((r) => r.corpus === c && scored(r) && r.explanation.ranked.some((s) => holdsAnswer(r, s)));
     for (const r of qs) {
-      const n = r.explanation.ranked.length;
-      for (const s of r.explanation.ranked) {
-        x.push(s.features);
-        y.push(holdsAnswer(r, s) ? 1 : 0);
-        // Every corpus weighs one in all, shared by its questions, each shared by its sentences.
-        w.push((1 / corpora.size / qs.length / n) * 1000);
-      }
+      const y = r.explanation.ranked.map((s) => holdsAnswer(r, s));
+      // A list with no wrong sentence teaches nothing about choosing.
+      if (y.every(Boolean)) continue;
+      // Every corpus weighs one in all, shared by its questions.
+      lists.push({ x: r.explanation.ranked.map((s) => s.features), y, w: (1 / corpora.size / qs.length) * 1000 });
     }
   }
-  return fitLogistic(SENTENCE_FEATURES, x, y, w, lambda);
+  const beta = fitConditionalLogit(SENTENCE_FEATURES.length, lists, lambda);
+  const score = (f: readonly number[]): number => f.reduce((sum, v, k) => sum + v * (beta[k] ?? 0), 0);
+  const x: number[][] = [];
+  const y: number[] = [];
+  const w: number[] = [];
+  for (const l of lists) {
+    l.x.forEach((f, i) => {
+      x.push([score(f)]);
+      y.push(l.y[i] ? 1 : 0);
+      w.push(l.w / l.x.length);
+    });
+  }
+  const platt = fitLogistic(['score'], x, y, w, 1e-6);
+  const a = platt.weights[0] ?? 0;
+  const round = (v: number): number => Math.round(v * 1e4) / 1e4;
+  return { names: [...SENTENCE_FEATURES], bias: platt.bias, weights: beta.map((b) => round(a * b)) };
+}
+
+/**
+ * L2-regularised conditional logit by Newton's method: each list's candidates compete in a softmax
+ * and the objective is the log of the probability its positive candidates take together.
+ */
+export function fitConditionalLogit(d: number, lists: readonly { x: readonly (readonly number[])[]; y: readonly boolean[]; w: number }[], lambda: number): number[] {
+  const beta = new Array<number>(d).fill(0);
+  for (let iter = 0; iter < 300; iter++) {
+    const g = new Array<number>(d).fill(0);
+    const h = Array.from({ length: d }, () => new Array<number>(d).fill(0));
+    for (const l of lists) {
+      const z = l.x.map((f) => f.reduce((sum, v, k) => sum + v * (beta[k] ?? 0), 0));
+      const top = Math.max(...z);
+      const e = z.map((v) => Math.exp(v - top));
+      // Moments of the features under the softmax over all candidates (p) and over the positives (q).
+      const moments = (keep: (i: number) => boolean, withSecond: boolean): { mean: number[]; second: number[][] } => {
+        let total = 0;
+        const mean = new Array<number>(d).fill(0);
+        const second = Array.from({ length: d }, () => new Array<number>(d).fill(0));
+        l.x.forEach((f, i) => {
+          if (!keep(i)) return;
+          total += e[i]!;
+          for (let j = 0; j < d; j++) {
+            mean[j]! += e[i]! * (f[j] ?? 0);
+            if (withSecond) for (let k = 0; k < d; k++) second[j]![k]! += e[i]! * (f[j] ?? 0) * (f[k] ?? 0);
+          }
+        });
+        for (let j = 0; j < d; j++) {
+          mean[j]! /= total;
+          for (let k = 0; k < d; k++) second[j]![k]! /= total;
+        }
+        return { mean, second };
+      };
+      const all = moments(() => true, true);
+      const pos = moments((i) => l.y[i] === true, false);
+      for (let j = 0; j < d; j++) {
+        g[j]! += l.w * (pos.mean[j]! - all.mean[j]!);
+        for (let k = 0; k < d; k++) {
+          // The negative log-likelihood's Hessian is Cov_p(x) − Cov_q(x); with several positives that
+          // need not be positive definite, so the step uses Cov_p(x) alone, which bounds it from above
+          // and keeps every step a descent (a bound-optimisation step, after Böhning and Lindsay 1988).
+          h[j]![k]! += l.w * (all.second[j]![k]! - all.mean[j]! * all.mean[k]!);
+        }
+      }
+    }
+    for (let j = 0; j < d; j++) {
+      g[j]! -= lambda * (beta[j] ?? 0);
+      h[j]![j]! += lambda;
+    }
+    const step = solve(h, g);
+    let size = 0;
+    for (let j = 0; j < d; j++) {
+      beta[j]! += step[j] ?? 0;
+      size = Math.max(size, Math.abs(step[j] ?? 0));
+    }
+    if (size < 1e-7) break;
+  }
+  return beta;
 }
 
 // The direction each decision feature may push, from what it means: more of the question covered

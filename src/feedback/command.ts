@@ -38,7 +38,7 @@ export async function runFeedbackCommand(args: string[], env: Record<string, str
     text = toJsonl(questions);
     const count = (k: string) => questions.filter((q) => q.kind === k).length;
     summary =
-      `${ratings.length} ratings → ${questions.length} questions (${count('answerable')} answerable, ${count('followup')} follow-up, ` +
+      `${ratings.length} ratings → ${questions.length} questions (${count('answerable')} answerable, ${count('follow-up')} follow-up, ` +
       `${count('unanswerable')} unanswerable); ${skipped.length} skipped\n` +
       skipped.map((s) => `  skipped ${s.id} "${s.question}": ${s.reason}\n`).join('');
   } finally {

@@ -1,9 +1,12 @@
-// Turns desk ratings into a labelled question set in the format `sourcebound eval answers` reads
-// (tests/fixtures/demo-questions.jsonl: {id, kind, question, history?, expect, note?}).
+// Turns desk ratings into a labelled question set in the shared question format that
+// `sourcebound eval answers` reads (docs/eval-answers.md: id, question, answerable, doc, page,
+// section, must_contain[], must_contain_any[], must_not_contain[], follow_up_of, kind, collection),
+// with the earlier turns in `history` and where the label came from in `note`.
 //
 // How a rating becomes a label (docs/api.md, "Ratings"):
-//   helpful, answered        → kind "answerable" ("followup" with history): expect the first cited
-//                              document and the answer's key figures (amounts, durations, times) as facts
+//   helpful, answered        → kind "answerable" ("follow-up" with history): expect the first cited
+//                              document, its page and section, and the answer's key figures
+//                              (amounts, durations, times) in must_contain
 //   helpful, abstained       → kind "unanswerable": staff agree the documents do not say
 //   not helpful, answered    → kind "unanswerable": until someone writes down the right answer, the
 //                              safe expectation is no answer rather than the one staff rejected
@@ -14,10 +17,18 @@ import type { Rating } from './store.js';
 
 export interface ExportedQuestion {
   id: string;
-  kind: 'answerable' | 'followup' | 'unanswerable';
   question: string;
+  answerable: boolean;
+  doc: string | null;
+  page: number | null;
+  section: string | null;
+  must_contain: string[];
+  must_contain_any: string[];
+  must_not_contain: string[];
+  follow_up_of: null;
+  kind: 'answerable' | 'follow-up' | 'unanswerable';
+  collection: string;
   history?: { role: 'user' | 'assistant'; content: string }[];
-  expect: { document?: string; page?: number; facts?: string[] };
   note: string;
 }
 
@@ -65,6 +76,11 @@ export function ratingsToQuestions(ratings: readonly Rating[]): ExportResult {
     const base = {
       id,
       question: r.question,
+      page: null,
+      section: null,
+      must_contain_any: [],
+      follow_up_of: null,
+      collection: r.collection,
       ...(r.history.length > 0 ? { history: r.history } : {}),
     };
     if (r.abstained && !r.helpful) {
@@ -75,19 +91,27 @@ export function ratingsToQuestions(ratings: readonly Rating[]): ExportResult {
       const why = r.abstained
         ? 'Staff agreed the documents do not cover this.'
         : `Staff rated this answer not helpful: "${r.answer.slice(0, 300)}". Expect no answer until the right one is labelled.`;
-      result.questions.push({ ...base, kind: 'unanswerable', expect: {}, note: `From desk rating ${r.id} (${r.createdAt}). ${why}${comment}` });
+      result.questions.push({
+        ...base,
+        answerable: false,
+        doc: null,
+        must_contain: [],
+        must_not_contain: [],
+        kind: 'unanswerable',
+        note: `From desk rating ${r.id} (${r.createdAt}). ${why}${comment}`,
+      });
       continue;
     }
     const first = [...r.sources].sort((a, b) => a.n - b.n)[0];
-    const facts = keyFigures(r.answer);
-    const expect: ExportedQuestion['expect'] = {};
-    if (first) expect.document = first.source;
-    if (first && first.page !== null) expect.page = first.page;
-    if (facts.length > 0) expect.facts = facts;
     result.questions.push({
       ...base,
-      kind: r.history.length > 0 ? 'followup' : 'answerable',
-      expect,
+      answerable: true,
+      doc: first?.source ?? null,
+      page: first?.page ?? null,
+      section: first?.section || null,
+      must_contain: keyFigures(r.answer),
+      must_not_contain: [],
+      kind: r.history.length > 0 ? 'follow-up' : 'answerable',
       note: `From desk rating ${r.id} (${r.createdAt}): staff found this answer helpful.${comment}`,
     });
   }

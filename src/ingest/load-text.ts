@@ -27,6 +27,8 @@ export function titleFromFileName(fileName: string): string {
   return (dot > 0 ? base.slice(0, dot) : base).trim() || base;
 }
 
+/** A row of a leader table: a label, a run of dots or underscores, a value. */
+const LEADER_ROW = /\S\s*(?:\.{4,}|…{2,}|_{4,})\s*\S/;
 const UNDERLINE_1 = /^\s*={3,}\s*$/;
 const UNDERLINE_2 = /^\s*-{3,}\s*$/;
 const NUMBERED_HEADING = /^(\d{1,3}(?:\.\d{1,3})*)\.?\s+(\S.*)$/u;
@@ -101,6 +103,9 @@ function groupToBlocks(lines: string[], isLastGroup: boolean): Block[] {
   if (rest.length === 0) return blocks;
   if (rest.every((l) => l.includes('|'))) {
     blocks.push({ kind: 'table', text: rest.filter((l) => !TABLE_SEPARATOR.test(l)).map(tableRow).join('\n') });
+  } else if (rest.length > 1 && rest.filter((l) => LEADER_ROW.test(l)).length * 2 >= rest.length) {
+    // A leader table ("Opening hours ........ 9:00-17:00"): each line is a row, never reflowed.
+    blocks.push({ kind: 'table', text: rest.map((l) => l.trim()).join('\n') });
   } else if (BULLET.test(rest[0]!)) {
     // Continuation lines of a wrapped item join the item they continue.
     const items: string[] = [];

@@ -250,12 +250,16 @@ describe('answer rules on the offline path', () => {
       lexicon: () => ({ vocabulary }),
       options,
     });
-    const known = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
+    const known = await answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default', explain: true });
     expect(known.abstained).toBe(false);
     expect(known.answer).toContain('28 days');
-    const unknown = await answerer.answer({ question: 'Is there wifi and a toilet on board?', collection: 'default', explain: true });
-    expect(unknown.features?.unknownShare).toBeGreaterThan(0);
+    // Nothing the question names is in the collection. (A question that shares a word, "on board",
+    // can still be answered: the fitted decision weighs coverage, and held out it abstains on few
+    // such near-misses; docs/benchmarks.md#answers.)
+    const unknown = await answerer.answer({ question: 'Is there wifi and a toilet?', collection: 'default', explain: true });
+    expect(unknown.features?.unknownShare).toBeGreaterThan(0.99);
     expect(unknown.abstained).toBe(true);
+    expect(unknown.explanation?.decision ?? 1).toBeLessThan(known.explanation?.decision ?? 0);
   });
 });
 

@@ -28,6 +28,9 @@ describe('answerCue', () => {
     expect(holdsKind('phone', 'Call us on 0100 555 0123 at any time.')).toBe(true);
     expect(holdsKind('contact', 'Write to records@valley.example for a copy.')).toBe(true);
     expect(holdsKind('frequency', 'Band A is reviewed every 3 months.')).toBe(true);
+    // A count stated at the end of a clause ("up to a total of four;").
+    expect(holdsKind('count', '- small pets, such as mice or rats, up to a total of four;')).toBe(true);
+    expect(holdsKind('count', '- small pets, such as mice or rats;')).toBe(false);
     expect(missesKind('count', '1.1 These conditions apply to every journey on a tram.')).toBe(true);
     expect(missesKind('count', 'Each customer may bring one dog.')).toBe(false);
     expect(missesKind('rule', 'Anything at all.')).toBe(false);

@@ -183,9 +183,58 @@ describe('extractAnswer rules', () => {
     expect(r.citations[0]?.quote).toBe('| 30 to 59 minutes | 50% of the single fare |');
   });
 
+  it('reads a list item with its lead-in sentence as context, not with the sibling item before it', async () => {
+    const pets: DocFixture = {
+      id: 'doc-pets',
+      title: 'Animals on board',
+      effectiveDate: null,
+      text: ['Animals on board', 'You do not need a ticket to carry:\n- assistance dogs, on a lead;\n- small animals, such as rabbits or hamsters, in a closed carrier, up to a total of two;\n- fish, in a sealed tank holding no more than 5 litres.'].join('\n\n'),
+    };
+    docsById.set(pets.id, pets);
+    const r = await extractAnswer('How many hamsters can I carry without a ticket?', context([wholeDoc(pets)]), { maxSentences: 3 });
+    const fish = r.ranked.find((c) => c.text.startsWith('- fish'));
+    const dogs = r.ranked.find((c) => c.text.startsWith('- assistance'));
+    // Both siblings share the lead-in's words ("ticket", "carry") and nothing of the hamster item.
+    expect(fish?.features[SENTENCE_FEATURES.indexOf('previousCoverage')]).toBe(dogs?.features[SENTENCE_FEATURES.indexOf('previousCoverage')]);
+    expect(r.citations[0]?.quote).toBe('- small animals, such as rabbits or hamsters, in a closed carrier, up to a total of two;');
+  });
+
+  it('does not read a year in the question as a quantity inside an open range ("5 or more")', async () => {
+    const leave: DocFixture = { id: 'doc-leave', title: 'Leave', effectiveDate: null, text: 'Requests for 5 or more days of leave need 4 weeks of notice.' };
+    const r = await extractAnswer('Who won the cup in 1987?', context([wholeDoc(leave)]), { maxSentences: 1 });
+    expect(feature(r, 'coverage')).toBe(0);
+    const q = await extractAnswer('Can I take 7 days of leave?', context([wholeDoc(leave)]), { maxSentences: 1 });
+    expect(feature(q, 'coverage')).toBeGreaterThan(0.5);
+  });
+
   it('lets a table row borrow its header words, so the fare row answers the fare question', async () => {
     const r = await extractAnswer('What is the adult fare for a Day Rider?', context([wholeDoc(fares)]), { maxSentences: 1 });
     expect(r.citations[0]?.quote).toBe('Day Rider | Zones A–C | £8.40 | £4.20');
     expect(feature(r, 'contextCoverage')).toBeGreaterThan(0.6);
+  });
+
+  it('answers from the row of the zone asked about, not the row sharing more other words', async () => {
+    const zones: DocFixture = {
+      id: 'doc-zones',
+      title: 'Weekly passes',
+      effectiveDate: null,
+      text: ['Weekly passes', 'Zone | Who it suits | Weekly pass', 'Zone A | Riders within the city ring | £21.00', 'Zone D | Riders who pass through the city ring to the outer towns | £34.50'].join('\n\n'),
+    };
+    docsById.set(zones.id, zones);
+    const r = await extractAnswer('How much is a weekly pass in Zone A for riders who pass through the city?', context([wholeDoc(zones)]), { maxSentences: 1 });
+    expect(r.citations[0]?.quote).toBe('Zone A | Riders within the city ring | £21.00');
+  });
+
+  it('reads each line of a leader table as its own record, even where the dots look like an ellipsis', async () => {
+    const hours: DocFixture = {
+      id: 'doc-hours',
+      title: 'Ticket office hours',
+      effectiveDate: null,
+      text: ['Ticket office hours', 'Harbour Street ........ Mon-Fri 07:00-19:00 | Sat 08:00-12:00\nNorth Quay ............ Mon-Fri 08:00-18:00 | Sat 09:00-13:30\nDepot Road ............ Tue, Thu 10:00-16:00 | closed Sat'].join('\n\n'),
+    };
+    docsById.set(hours.id, hours);
+    const r = await extractAnswer('When does the North Quay ticket office close on Saturday?', context([wholeDoc(hours)]), { maxSentences: 1 });
+    expect(r.citations[0]?.quote).toBe('North Quay ............ Mon-Fri 08:00-18:00 | Sat 09:00-13:30');
+    expectVerbatim(r.citations);
   });
 });

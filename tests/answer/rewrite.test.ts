@@ -71,4 +71,12 @@ describe('offline follow-up condensation rules', () => {
     expect(standaloneQuestion('And at the depot?', [{ role: 'user', content: 'For a night shift at the garage, how many staff must be present?' }])).toMatch(/^how many /);
     expect(standaloneQuestion('And how many times can I renew it?', [{ role: 'user', content: 'How long is the loan period for a map?' }])).not.toMatch(/^how long/);
   });
+
+  it('replaces a labelled noun the follow-up names with another label ("Zone A" after "Zone C")', () => {
+    const q = standaloneQuestion('What about Zone A?', [{ role: 'user', content: 'How much is a weekly pass in Zone C for a student?' }]);
+    expect(q).toContain('Zone A');
+    expect(q).not.toContain('Zone C');
+    expect(q).toMatch(/weekly/);
+    expect(q).toMatch(/student/);
+  });
 });

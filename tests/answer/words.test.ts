@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { contentStems, stem } from '../../src/answer/words.js';
+import { contentStems, labelTokens, stem } from '../../src/answer/words.js';
 
 describe('stem', () => {
   it('brings inflected forms of one word together', () => {
@@ -25,5 +25,17 @@ describe('contentStems', () => {
 
   it('keeps "long" when it is not asked as "how long"', () => {
     expect(contentStems('long journeys')).toContain('long');
+  });
+});
+
+describe('labelTokens', () => {
+  it('joins a capital letter to the noun it labels, and only then', () => {
+    expect(labelTokens('Passes for Zone B and Band C (high)').map((t) => t.word)).toEqual(['zone b', 'band c']);
+    // "I" is a pronoun, "A" after a function word is an article, a letter on the next line is a bullet.
+    expect(labelTokens('Can I claim a refund for A delay? Depots\nB')).toEqual([]);
+  });
+
+  it('makes "Zone A" a content term although "a" alone is a function word', () => {
+    expect(contentStems('Is Zone A covered?')).toEqual(new Set([stem('zone'), `${stem('zone')} a`, stem('covered')]));
   });
 });

@@ -41,12 +41,13 @@ describe('desk ratings as a question set', () => {
       ['fb-2', 'answerable'],
       ['fb-3', 'unanswerable'],
       ['fb-4', 'unanswerable'],
-      ['fb-6', 'followup'],
+      ['fb-6', 'follow-up'],
     ]);
-    expect(questions[0]!.expect).toEqual({ document: 'delay-refunds-2026.md', facts: ['28 days'] });
+    expect(questions[0]).toMatchObject({ answerable: true, doc: 'delay-refunds-2026.md', must_contain: ['28 days'], collection: 'default' });
+    expect(questions[1]).toMatchObject({ answerable: false, doc: null, must_contain: [] });
     expect(questions[0]!.note).toContain('Correct after the 2026 change.');
     expect(questions[2]!.note).toContain('Wrong policy.');
-    expect(questions[3]).toMatchObject({ history: [{ role: 'user' }, { role: 'assistant' }], expect: { document: 'bikes.pdf', page: 3, facts: ['£1.50'] } });
+    expect(questions[3]).toMatchObject({ history: [{ role: 'user' }, { role: 'assistant' }], doc: 'bikes.pdf', page: 3, section: 'Bikes', must_contain: ['£1.50'] });
     expect(skipped.map((s) => s.id)).toEqual(['fb-5']);
 
     // What `sourcebound eval answers --questions F` reads back.
@@ -55,8 +56,9 @@ describe('desk ratings as a question set', () => {
       const file = path.join(dir, 'q.jsonl');
       writeFileSync(file, toJsonl(questions));
       const read = readQuestions(file);
-      // Read through the converter for the earlier format: "followup" becomes the shared "follow-up".
-      expect(read.map((q) => [q.id, q.kind, q.question])).toEqual(questions.map((q) => [q.id, q.kind === 'followup' ? 'follow-up' : q.kind, q.question]));
+      // Read as the shared format, labels as written.
+      expect(read.map((q) => [q.id, q.kind, q.question, q.answerable, q.doc, q.mustContain])).toEqual(questions.map((q) => [q.id, q.kind, q.question, q.answerable, q.doc, q.must_contain]));
+      expect(read[0]!.collection).toBe('default');
       expect(read[3]!.history).toHaveLength(2);
     } finally {
       rmSync(dir, { recursive: true, force: true });

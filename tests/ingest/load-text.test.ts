@@ -55,4 +55,10 @@ describe('decodeText', () => {
     const bytes = new Uint8Array([0x43, 0x61, 0x66, 0xe9, 0x20, 0xa3, 0x32]);
     expect(decodeText(bytes)).toBe('Café £2');
   });
+
+  it('keeps a leader table one row per line instead of unwrapping it into a paragraph', () => {
+    const blocks = parseTextBlocks('OFFICE HOURS\nHarbour Street ........ Mon-Fri 07:00-19:00\nNorth Quay ............ Sat 09:00-13:30\n\nStaff unwrap\nthis paragraph.');
+    expect(blocks).toContainEqual({ kind: 'table', text: 'Harbour Street ........ Mon-Fri 07:00-19:00\nNorth Quay ............ Sat 09:00-13:30' });
+    expect(blocks).toContainEqual({ kind: 'paragraph', text: 'Staff unwrap this paragraph.' });
+  });
 });
