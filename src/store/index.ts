@@ -1,5 +1,5 @@
 export type * from './types.js';
-export { SHADOW_PREFIX, shadowCollectionName, isShadowCollection } from './types.js';
+export { SHADOW_PREFIX, shadowCollectionName } from './types.js';
 export { SqliteStore, openStore } from './sqlite/store.js';
 export { openDatabase, migrate, schemaVersion, type Db } from './sqlite/db.js';
 export { MIGRATIONS } from './sqlite/migrations.js';

@@ -7,7 +7,7 @@ import { documentFilterSql } from './document-filter.js';
 import { blobToVector } from './vector-blob.js';
 
 /** A column weight as FTS5's rank function text takes it (a plain decimal, never NaN or an exponent). */
-export const ftsWeightText = (x: number): string => (Number.isFinite(x) && x >= 0 ? x.toFixed(6) : '1.0');
+const ftsWeightText = (x: number): string => (Number.isFinite(x) && x >= 0 ? x.toFixed(6) : '1.0');
 
 /** The stored `[[offset, page], ...]` form; NULL (a chunk stored before page breaks were recorded, or on one page) is none. */
 function parsePageBreaks(raw: unknown): PageBreak[] {

@@ -3,7 +3,7 @@
 // column). Both are sequences of SQLite varints.
 
 /** SQLite's varint (sqlite3GetVarint): 7 bits a byte, high bit = more, the 9th byte whole. */
-export function readVarint(buf: Uint8Array, pos: number): [number, number] {
+function readVarint(buf: Uint8Array, pos: number): [number, number] {
   let v = 0;
   for (let i = 0; i < 8; i++) {
     const byte = buf[pos + i];
@@ -17,7 +17,7 @@ export function readVarint(buf: Uint8Array, pos: number): [number, number] {
 }
 
 /** All varints of a record. */
-export function readVarints(buf: Uint8Array): number[] {
+function readVarints(buf: Uint8Array): number[] {
   const out: number[] = [];
   let pos = 0;
   while (pos < buf.length) {
