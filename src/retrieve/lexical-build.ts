@@ -1,5 +1,5 @@
 // Builds the in-memory lexical index (lexical-memory.ts) from one snapshot of the store's lexical index:
-// statistics, row lengths, each row's collection and the postings, turned into typed arrays. The build is a
+// statistics, row lengths, each row's collection and the postings, copied into typed arrays. The build is a
 // generator that yields between slices, so a background build gives the event loop a turn now and then.
 
 import type { LexicalSnapshot } from '../store/index.js';
