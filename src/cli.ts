@@ -6,16 +6,15 @@ import { randomBytes } from 'node:crypto';
 import { existsSync, realpathSync } from 'node:fs';
 import path from 'node:path';
 import { authEnforced, checkAuthConfig, newApiKey, sha256Hex } from './api/auth.js';
-import { openDatabase, storePaths } from './store/index.js';
-import { createDocumentService, createJobQueue, requeueAbandoned, withReindexLock } from './jobs/index.js';
+import { openStore, storePaths } from './store/index.js';
+import { withReindexLock } from './jobs/index.js';
 import { parseArgs } from 'node:util';
-import { buildApp } from './api/app.js';
 import { configReference, loadConfig, redactConfig, type Config } from './config/index.js';
 import { modelPath, modelPresent, pullModel } from './embed/index.js';
 import { SourceboundError } from './errors.js';
 import { formatProgress, formatSummary, summaryJson, type IngestProgress, type IngestSummary } from './ingest/index.js';
 import { createLogger, type Logger } from './logger.js';
-import { appDeps, createRuntime, ingestAsJob, type Runtime } from './runtime.js';
+import { createRuntime, createServer, ingestAsJob, type Runtime } from './runtime.js';
 import { runEvalCommand } from './eval/command.js';
 import { runFeedbackCommand } from './feedback/index.js';
 
@@ -110,9 +109,7 @@ async function serve(env: Record<string, string | undefined>): Promise<number> {
     `embedder: ${rt.embedderReason}`,
   );
   let ready = false;
-  requeueAbandoned(rt);
-  const queue = createJobQueue({ rt, config: cfg, logger, mode: 'thread' });
-  const app = buildApp(cfg, appDeps(rt, () => ready, createDocumentService(rt, queue)));
+  const { app, queue } = createServer(rt, { isReady: () => ready });
   let closing = false;
   const shutdown = async (signal: string): Promise<void> => {
     if (closing) return;
@@ -339,12 +336,12 @@ async function backup(args: string[], env: Record<string, string | undefined>): 
     process.stderr.write(`sourcebound backup: no database at ${database}\n`);
     return 1;
   }
-  const db = openDatabase(database, { readonly: true });
+  const store = openStore(database, { readonly: true });
   try {
-    // SQLite's online backup API: a consistent snapshot even while the server writes (WAL mode).
-    await db.backup(path.resolve(dest));
+    // A consistent snapshot even while the server writes.
+    await store.backup(path.resolve(dest));
   } finally {
-    db.close();
+    store.close();
   }
   process.stdout.write(`database copied to ${path.resolve(dest)}; index files are rebuilt from it on start-up\n`);
   return 0;

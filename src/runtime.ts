@@ -1,10 +1,15 @@
-// Wires the stages together from a config: store → embedder → indexes → retriever → answerer → ingestor.
-// The CLI's commands and the server share it; tests build it on a temporary data folder.
+// The composition root: wires the stages together from a config (store → embedder → indexes → retriever →
+// answerer → ingestor), and the HTTP app and its job queue over them. Nothing else builds a runtime or an app
+// for real use; the CLI's commands, the job worker thread and the tests all start here. Imports run one way:
+// this file may import any stage, and no stage imports it.
 
 import { createAnswerer, createCompletionClient, createLexiconSource, loadTokenizer, readAnswerModel, type Answerer, type AnswererOptions } from './answer/index.js';
 import path from 'node:path';
-import type { AnswerRequest as HttpAnswerRequest, AppDeps } from './api/app.js';
-import type { Config } from './config/index.js';
+import { existsSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
+import type { FastifyInstance } from 'fastify';
+import { buildApp, type AnswerRequest as HttpAnswerRequest, type AppDeps } from './api/app.js';
+import { PACKAGE_ROOT, type Config } from './config/index.js';
 import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
 import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
@@ -12,27 +17,28 @@ import type { Logger } from './logger.js';
 import { createMetrics, type Metrics } from './api/metrics.js';
 import { createDeskService } from './api/desk-service.js';
 import { createLimiter } from './limiter.js';
-import type { DocumentService } from './jobs/index.js';
+import {
+  abandonedReason,
+  createDocumentService,
+  createJobQueue,
+  ownerGone,
+  requeueAbandoned,
+  thisProcess,
+  type DocumentService,
+  type JobContext,
+  type JobQueue,
+} from './jobs/index.js';
 import type { CompletionClient } from './answer/index.js';
 import { createLexicalMemory, createRetriever, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
-import {
-  createJobs,
-  createRepository,
-  createVectorIndexes,
-  openDatabase,
-  storePaths,
-  type Db,
-  type Jobs,
-  type Repository,
-  type VectorIndexes,
-} from './store/index.js';
+import { createVectorIndexes, openStore, storePaths, type JobStore, type Repository, type Store, type VectorIndexes } from './store/index.js';
 
 export interface Runtime {
   config: Readonly<Config>;
   logger: Logger;
-  db: Db;
+  store: Store;
+  /** The corpus part of the store (the same object). */
   repo: Repository;
-  jobs: Jobs;
+  jobs: JobStore;
   embedder: Embedder;
   embedderReason: string;
   indexes: VectorIndexes;
@@ -50,9 +56,14 @@ export async function createRuntime(
   opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder; processMetrics?: boolean } = {},
 ): Promise<Runtime> {
   const paths = storePaths(config.dataDir);
-  const db = openDatabase(paths.database);
-  const repo = createRepository(db);
-  const jobs = createJobs(db);
+  const store = openStore(paths.database);
+  const repo: Repository = store;
+  const jobs = store.jobs;
+  // Jobs a crashed CLI run or server left `running` would stay so for ever: every command that opens the store
+  // fails those whose process is gone. (The server's own queue jobs are put back in the queue instead: see
+  // createDocumentApi.) A job of a process still running, here or in another process, is left alone.
+  const abandoned = jobs.failAbandoned(ownerGone, abandonedReason);
+  if (abandoned > 0) logger.warn({ jobs: abandoned }, 'jobs left running by a process that ended were marked failed');
   let embedder: Embedder;
   let embedderReason: string;
   if (opts.embedder) {
@@ -108,7 +119,7 @@ export async function createRuntime(
   const lexLog = logger.child({ stage: 'lexical-index' });
   const lexicalIndex =
     config.retrieval.lexicalEngine === 'memory'
-      ? createLexicalMemory(db, {
+      ? createLexicalMemory(store, {
           background: true,
           onBuilt: (i) => lexLog.info(i, 'in-memory lexical index built'),
           onError: (err) => lexLog.warn({ err }, 'in-memory lexical index build failed; FTS5 answers meanwhile'),
@@ -222,7 +233,7 @@ export async function createRuntime(
   return {
     config,
     logger,
-    db,
+    store,
     repo,
     jobs,
     embedder,
@@ -236,7 +247,7 @@ export async function createRuntime(
     close() {
       lexicalIndex?.close();
       indexes.close();
-      if (db.open) db.close();
+      store.close();
     },
   };
 }
@@ -262,7 +273,7 @@ export async function ingestAsJob(
   run: () => Promise<IngestSummary>,
 ): Promise<IngestSummary> {
   const job = rt.jobs.create(kind, collection, payload);
-  rt.jobs.start(job.id);
+  rt.jobs.start(job.id, thisProcess());
   try {
     const summary = await run();
     rt.jobs.succeed(job.id, summary);
@@ -280,7 +291,7 @@ export function appDeps(rt: Runtime, isReady: () => boolean, documents?: Documen
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,
-    desk: createDeskService({ repo: rt.repo }),
+    desk: createDeskService({ repo: rt.repo, ratings: rt.store.ratings }),
     search: (req) => rt.retriever.search(req),
     answer: (req: HttpAnswerRequest) => {
       const answerer = req.style === 'extractive' ? rt.extractiveAnswerer : rt.answerer;
@@ -295,4 +306,48 @@ export function appDeps(rt: Runtime, isReady: () => boolean, documents?: Documen
     collections: () =>
       rt.repo.listCollections().map((c) => ({ name: c.name, documents: c.documents, chunks: c.chunks, embedderId: c.embedderId })),
   };
+}
+
+/** The narrow view of a runtime that jobs and the document API get. */
+export function jobContext(rt: Runtime): JobContext {
+  return {
+    dataDir: rt.config.dataDir,
+    maxUploadBytes: rt.config.limits.documentMaxBytes,
+    store: rt.store,
+    ingestor: rt.ingestor,
+    indexes: rt.indexes,
+    owner: thisProcess(),
+  };
+}
+
+/** dist/job-worker.js beside this file when compiled; from src/ (tests) the compiled copy. */
+function jobWorkerScript(): string {
+  const beside = fileURLToPath(new URL('./job-worker.js', import.meta.url));
+  return existsSync(beside) ? beside : path.join(PACKAGE_ROOT, 'dist', 'job-worker.js');
+}
+
+/**
+ * The document API's back end: a job queue (in a worker thread, or inline on this thread for tests) and the
+ * document service over it. Queue jobs that a server which is gone left running go back to the queue first.
+ */
+export function createDocumentApi(
+  rt: Runtime,
+  mode: 'thread' | 'inline',
+  opts: { onJobDone?: Parameters<typeof createJobQueue>[0]['onJobDone'] } = {},
+): { queue: JobQueue; documents: DocumentService } {
+  const ctx = jobContext(rt);
+  requeueAbandoned(ctx);
+  const queue = createJobQueue({
+    ctx,
+    logger: rt.logger,
+    mode: mode === 'inline' ? 'inline' : { thread: { script: jobWorkerScript(), workerData: { config: JSON.parse(JSON.stringify(rt.config)) as unknown } } },
+    ...(opts.onJobDone ? { onJobDone: opts.onJobDone } : {}),
+  });
+  return { queue, documents: createDocumentService(ctx, queue) };
+}
+
+/** The HTTP app over a runtime, with the document API and its job queue (run in a worker thread). */
+export function createServer(rt: Runtime, opts: { isReady: () => boolean }): { app: FastifyInstance; queue: JobQueue } {
+  const { queue, documents } = createDocumentApi(rt, 'thread');
+  return { app: buildApp(rt.config, appDeps(rt, opts.isReady, documents)), queue };
 }

@@ -110,6 +110,18 @@ export interface DocumentFilter {
   metadata?: Readonly<Record<string, string>>;
 }
 
+/** What a search asks for: the retriever's input, and what the answer stage asks of it. */
+export interface RetrieveRequest {
+  query: string;
+  collection: string;
+  k: number;
+  mode: SearchMode;
+  /** Only these documents (by id and/or metadata values). */
+  filter?: DocumentFilter;
+  /** Overrides the retriever's MMR setting for this request (true = on with the configured or default options). */
+  diversify?: boolean;
+}
+
 export interface Citation {
   n: number;
   documentId: string;

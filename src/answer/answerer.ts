@@ -1,7 +1,7 @@
 // The answer flow: standalone question → retrieve → context → generate or extract → check → reply.
 
 import type { Embedder } from '../embed/types.js';
-import type { AnswerMode, Citation, DocumentFilter, SearchHit, SearchMode } from '../types.js';
+import type { AnswerMode, Citation, DocumentFilter, RetrieveRequest, SearchHit, SearchMode } from '../types.js';
 import { ABSTAIN_TEXT, isAbstentionReply, type AbstainReason } from './abstain.js';
 import { CAUTION } from './caution.js';
 import { createClaimStream } from './claim-stream.js';
@@ -35,14 +35,7 @@ export interface AnswererOptions {
   rewriteWithCompletion?: boolean;
 }
 
-export interface RetrieveRequest {
-  query: string;
-  collection: string;
-  k: number;
-  mode: SearchMode;
-  /** Only these documents (by id and/or metadata values). */
-  filter?: DocumentFilter;
-}
+export type { RetrieveRequest };
 
 export interface AnswererDeps {
   retrieve: (q: RetrieveRequest) => Promise<SearchHit[]>;

@@ -3,6 +3,8 @@
 // classifier scores into accurate multiclass probability estimates", KDD 2002), so that "0.87"
 // means about 87 in 100 such answers were right on corpora the fit did not see.
 
+import { round3 } from '../numbers.js';
+
 /** Knots [minimum raw score of a block, share correct in it], ascending in both. */
 export interface IsotonicMap {
   knots: readonly (readonly [number, number])[];
@@ -58,10 +60,6 @@ export function fitIsotonic(scores: readonly number[], correct: readonly boolean
     }
   }
   return { knots: blocks.map((b) => [b.min, round3(b.sum / b.n)] as const) };
-}
-
-function round3(x: number): number {
-  return Math.round(x * 1000) / 1000;
 }
 
 /** Platt's sigmoid p = 1 / (1 + exp(a·score + b)); reported beside the isotonic fit as a check. */

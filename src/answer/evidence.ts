@@ -6,10 +6,9 @@
 // can be well covered by words yet name a thing the collection never mentions, or be phrased in
 // everyday words yet be answered by a sentence of the right type in the best-retrieved passage.
 
-import type { RankedSentence, QuestionAnalysis } from './extractive.js';
 import { readFileSync } from 'node:fs';
 import { calibrate, type IsotonicMap } from './calibration.js';
-import { isLightTerm } from './terms.js';
+import { isLightTerm, type QuestionTerm } from './terms.js';
 
 /** Features of a candidate sentence, in the order the ranker's weights use. */
 export const SENTENCE_FEATURES = [
@@ -89,12 +88,12 @@ export interface WeighedTerm {
 }
 
 /** The question's terms as the decision sees them. */
-export function weighedTerms(q: Pick<QuestionAnalysis, 'terms' | 'weights'>): WeighedTerm[] {
+export function weighedTerms(q: { terms: readonly QuestionTerm[]; weights: readonly number[] }): WeighedTerm[] {
   return q.terms.map((t, i) => ({ known: t.known, related: t.related.length > 0, light: isLightTerm(t), weight: q.weights[i] ?? 0 }));
 }
 
 /** The question-level features from the ranked candidates (best first) and the question's terms. */
-export function questionFeatures(ranked: readonly Pick<RankedSentence, 'features' | 'p'>[], terms: readonly WeighedTerm[]): number[] {
+export function questionFeatures(ranked: readonly { features: readonly number[]; p: number }[], terms: readonly WeighedTerm[]): number[] {
   const best = ranked[0];
   let topic = 0;
   let unknown = 0;

@@ -18,6 +18,7 @@ import { isJunkSentence, leansBack, splitSentences, tableHeader, type SentenceSp
 import { isLightTerm, questionTerms, relatedIn, termMatch, type Lexicon, type QuestionTerm } from './terms.js';
 import type { ContextSource } from './types.js';
 import { contentStems, tokenize } from './words.js';
+import { dot } from '../numbers.js';
 
 export interface ExtractOptions {
   embedder?: Embedder;
@@ -389,11 +390,4 @@ function toPieces(chosen: Candidate[], sources: ContextSource[]): Piece[] {
     }
   }
   return merged;
-}
-
-function dot(a: Float32Array, b: Float32Array): number {
-  let s = 0;
-  const n = Math.min(a.length, b.length);
-  for (let i = 0; i < n; i++) s += (a[i] ?? 0) * (b[i] ?? 0);
-  return s;
 }

@@ -15,6 +15,7 @@ import { coveredByParts } from './cite.js';
 import { figureStated, figuresIn, statedRanges, type Figure } from './figures.js';
 import { polarityConflicts, polarityOf, type Polarity } from './negation.js';
 import { isPlantedInstruction, taintedSentences } from './planted.js';
+import { round3 } from '../numbers.js';
 import { leansBack, splitSentences, tableHeader } from './sentences.js';
 import type { ContextSource } from './types.js';
 import { contentStems, contentTokens, tokenize } from './words.js';
@@ -365,8 +366,4 @@ function parseList(list: string): number[] {
     .split(/[,;]/)
     .map((x) => Number.parseInt(x.trim(), 10))
     .filter((n) => Number.isFinite(n));
-}
-
-function round3(x: number): number {
-  return Math.round(x * 1000) / 1000;
 }

@@ -4,7 +4,7 @@ import type { Config } from '../config/index.js';
 import { SourceboundError } from '../errors.js';
 import type { AnswerResult } from '../types.js';
 import { grantedCollection, keyAccess } from './access.js';
-import type { AnswerRequest, AppDeps } from './app.js';
+import type { AnswerRequest, AppDeps } from './deps.js';
 import { answerBody } from './schemas.js';
 import { isSearchMode, parse, withDeadline } from './util.js';
 import { sseFrame } from '../answer/sse.js';

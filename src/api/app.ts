@@ -1,55 +1,18 @@
 import Fastify, { type FastifyBaseLogger, type FastifyError, type FastifyInstance } from 'fastify';
 import type { Config } from '../config/index.js';
 import { SourceboundError, type ErrorCode } from '../errors.js';
-import type { Logger } from '../logger.js';
-import type { AnswerResult, SearchHit, SearchMode } from '../types.js';
-import type { AnswerEvent } from '../answer/index.js';
-import type { RetrieveFilter } from '../retrieve/index.js';
 import { grantedCollection, installAccessControl, keyAccess, PUBLIC } from './access.js';
 import { createAuthenticator, mayUseCollection } from './auth.js';
 import { createRateLimiter } from './rate-limit.js';
-import type { Metrics } from './metrics.js';
 import { registerAnswerRoute } from './answer-route.js';
+import type { AnswerRequest, AppDeps } from './deps.js';
 import { registerDocumentRoutes } from './documents-route.js';
 import { registerDeskAssets } from './desk-static.js';
 import { registerDeskRoutes } from './desk-routes.js';
-import type { DeskService } from './desk-service.js';
-import type { DocumentService } from '../jobs/index.js';
 import { searchBody } from './schemas.js';
 import { parse, withDeadline } from './util.js';
 
-export interface AnswerRequest {
-  question: string;
-  collection: string;
-  history?: { role: 'user' | 'assistant'; content: string }[];
-  k?: number;
-  mode?: SearchMode;
-  filter?: RetrieveFilter;
-  /** "extractive" never calls the completion endpoint. */
-  style?: 'auto' | 'extractive';
-  signal?: AbortSignal;
-  /** Progress events for a streamed answer (sources, text deltas, done). */
-  onEvent?: (e: AnswerEvent) => void;
-}
-
-/** What the HTTP layer needs from the rest of the service. Tests pass their own. */
-export interface AppDeps {
-  logger: Logger;
-  search(req: { query: string; collection: string; k: number; mode: SearchMode; filter?: RetrieveFilter }): Promise<SearchHit[]>;
-  answer(req: AnswerRequest): Promise<AnswerResult>;
-  isReady(): boolean;
-  health(): Record<string, unknown>;
-  collections(): { name: string; documents: number; chunks: number; embedderId: string | null }[];
-  metrics?: Metrics;
-  /** The document API; absent in read-only deployments and some tests. */
-  documents?: DocumentService;
-  /** Passages, original files and ratings for the reference desk; absent in some tests. */
-  desk?: DeskService;
-  /** Folder of the built desk page (dist/web); the default is found next to the compiled code. */
-  deskAssetsDir?: string;
-  /** Milliseconds since the epoch, for the rate limiter's windows (tests pass their own). */
-  now?: () => number;
-}
+export type { AnswerRequest, AppDeps };
 
 export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstance {
   const app = Fastify({

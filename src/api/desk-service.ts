@@ -5,8 +5,7 @@ import { createHash, createHmac, randomBytes, timingSafeEqual } from 'node:crypt
 import { readFile, realpath, stat } from 'node:fs/promises';
 import path from 'node:path';
 import { SourceboundError } from '../errors.js';
-import { createRatingStore, type RatingStore } from '../feedback/store.js';
-import type { Repository } from '../store/index.js';
+import type { RatingStore, Repository } from '../store/index.js';
 
 export interface Passage {
   documentId: string;
@@ -65,14 +64,6 @@ const CONTENT_TYPES: Record<string, string> = {
   docx: 'application/vnd.openxmlformats-officedocument.wordprocessingml.document',
 };
 
-interface ChunkSpan {
-  start_offset: number;
-  end_offset: number;
-  heading_path: string;
-  page_start: number | null;
-  page_end: number | null;
-}
-
 const inside = (child: string, parent: string): boolean => child.startsWith(parent.endsWith(path.sep) ? parent : parent + path.sep);
 
 /** Moves a context edge off the middle of a word: forward for a start, back for an end, never past the quote. */
@@ -83,17 +74,17 @@ export function snapToWord(text: string, at: number, dir: 1 | -1, stop: number):
   return mid(p) ? at : p;
 }
 
-export function createDeskService(deps: { repo: Repository; now?: () => number; secret?: Buffer }): DeskService {
+export function createDeskService(deps: {
+  repo: Pick<Repository, 'getDocument' | 'getDocumentText' | 'listSourceRoots' | 'chunkSpans'>;
+  ratings: RatingStore;
+  now?: () => number;
+  secret?: Buffer;
+}): DeskService {
   const { repo } = deps;
   const now = deps.now ?? Date.now;
   // Per process: links die with a restart, which their lifetime makes harmless.
   const secret = deps.secret ?? randomBytes(32);
   const sign = (payload: string): Buffer => createHmac('sha256', secret).update(payload).digest();
-  const db = repo.db;
-  const overlapping = db.prepare(
-    `SELECT start_offset, end_offset, heading_path, page_start, page_end FROM chunks
-     WHERE document_id = ? AND start_offset < ? AND end_offset > ? ORDER BY ordinal`,
-  );
 
   const find = (collection: string, id: string) => {
     const d = repo.getDocument(id);
@@ -103,7 +94,7 @@ export function createDeskService(deps: { repo: Repository; now?: () => number; 
   };
 
   return {
-    ratings: createRatingStore(db),
+    ratings: deps.ratings,
 
     passage(collection, documentId, start, end) {
       const d = find(collection, documentId);
@@ -112,19 +103,19 @@ export function createDeskService(deps: { repo: Repository; now?: () => number; 
         throw new SourceboundError('SB_ERR_VALIDATION', [`start and end must satisfy 0 <= start < end <= ${text.length} (the document's length)`]);
       }
       if (end - start > PASSAGE_MAX_SPAN) throw new SourceboundError('SB_ERR_VALIDATION', [`a passage span is at most ${PASSAGE_MAX_SPAN} characters`]);
-      const chunks = overlapping.all(d.id, end, start) as ChunkSpan[];
+      const chunks = repo.chunkSpans(d.id, start, end);
       const first = chunks[0];
       const last = chunks[chunks.length - 1];
-      const cs = snapToWord(text, Math.floor(Math.max(first ? first.start_offset : 0, start - CONTEXT_MAX, 0)), 1, start);
-      const ce = snapToWord(text, Math.ceil(Math.min(last ? last.end_offset : text.length, end + CONTEXT_MAX, text.length)), -1, end);
-      const pages = chunks.flatMap((c) => [c.page_start, c.page_end]).filter((p): p is number => p !== null);
+      const cs = snapToWord(text, Math.floor(Math.max(first ? first.start : 0, start - CONTEXT_MAX, 0)), 1, start);
+      const ce = snapToWord(text, Math.ceil(Math.min(last ? last.end : text.length, end + CONTEXT_MAX, text.length)), -1, end);
+      const pages = chunks.flatMap((c) => [c.pageStart, c.pageEnd]).filter((p): p is number => p !== null);
       return {
         documentId: d.id,
         source: d.source,
         title: d.title,
         format: d.format,
         effectiveDate: d.effectiveDate,
-        section: first ? (JSON.parse(first.heading_path) as string[]).join(' > ') : '',
+        section: first ? first.headingPath.join(' > ') : '',
         page: pages.length > 0 ? Math.min(...pages) : null,
         pageEnd: pages.length > 0 ? Math.max(...pages) : null,
         start,

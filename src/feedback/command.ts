@@ -5,9 +5,8 @@ import { existsSync, renameSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { parseArgs } from 'node:util';
 import { loadConfig } from '../config/index.js';
-import { openDatabase, storePaths } from '../store/index.js';
+import { openStore, storePaths } from '../store/index.js';
 import { ratingsToQuestions, toJsonl } from './export.js';
-import { createRatingStore } from './store.js';
 
 export interface FeedbackIo {
   stdout: (s: string) => void;
@@ -29,11 +28,11 @@ export async function runFeedbackCommand(args: string[], env: Record<string, str
     io.stderr(`sourcebound feedback export: no database at ${database}\n`);
     return 1;
   }
-  const db = openDatabase(database);
+  const store = openStore(database);
   let text: string;
   let summary: string;
   try {
-    const ratings = createRatingStore(db).list(values.collection ? { collection: values.collection } : {});
+    const ratings = store.ratings.list(values.collection ? { collection: values.collection } : {});
     const { questions, skipped } = ratingsToQuestions(ratings);
     text = toJsonl(questions);
     const count = (k: string) => questions.filter((q) => q.kind === k).length;
@@ -42,7 +41,7 @@ export async function runFeedbackCommand(args: string[], env: Record<string, str
       `${count('unanswerable')} unanswerable); ${skipped.length} skipped\n` +
       skipped.map((s) => `  skipped ${s.id} "${s.question}": ${s.reason}\n`).join('');
   } finally {
-    db.close();
+    store.close();
   }
   if (values.out) {
     const out = path.resolve(values.out);

@@ -13,7 +13,7 @@
 //   not helpful, abstained   → skipped: staff expected an answer, but the rating cannot say which one
 // Only the latest rating of the same question (same collection and earlier turns) counts.
 
-import type { Rating } from './store.js';
+import type { Rating } from '../store/index.js';
 
 export interface ExportedQuestion {
   id: string;

@@ -1,12 +1,12 @@
 export {
   createIngestor,
-  documentId,
   type Ingestor,
   type IngestOptions,
   type IngestProgress,
   type IngestSummary,
   type FileOutcome,
 } from './pipeline.js';
+export { documentId } from './files.js';
 export { formatProgress, formatSummary, summaryJson } from './progress.js';
 export { loadDocument } from './load.js';
 export { detectFormat } from './detect.js';

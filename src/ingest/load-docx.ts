@@ -1,7 +1,6 @@
 import type { LoadedDocument } from '../types.js';
-import { findEffectiveDate, withVersion } from './effective-date.js';
 import { parseHtml } from './load-html.js';
-import { titleFromFileName } from './load-text.js';
+import { unpagedDocument } from './load-text.js';
 
 // Password-protected Word files are not ZIP packages but OLE compound files (the encrypted
 // package sits inside one, MS-OFFCRYPTO 2.3.4), and so is the older binary .doc format.
@@ -43,12 +42,5 @@ export async function loadDocx(bytes: Uint8Array, fileName: string): Promise<Loa
   const text = blocks.map((b) => b.text).join('\n');
   const h1 = blocks.find((b) => b.kind === 'heading' && b.level === 1);
   // The blocks come from the converter's HTML; the document keeps its own format.
-  return {
-    format: 'docx',
-    title: h1?.text ?? titleFromFileName(fileName),
-    blocks,
-    pageCount: null,
-    effectiveDate: findEffectiveDate(text, {}),
-    metadata: withVersion({ source_format: 'docx' }, text),
-  };
+  return unpagedDocument('docx', fileName, blocks, h1?.text, { source_format: 'docx' }, text);
 }

@@ -142,13 +142,27 @@ export function parseTextBlocks(text: string): Block[] {
 export function loadText(bytes: Uint8Array, fileName: string): LoadedDocument {
   const text = decodeText(bytes);
   const blocks = parseTextBlocks(text);
-  const firstHeading = blocks.find((b) => b.kind === 'heading');
+  return unpagedDocument('text', fileName, blocks, blocks.find((b) => b.kind === 'heading')?.text, {}, text);
+}
+
+/**
+ * A document without pages, from its blocks: titled by the given heading (else by its file name), with the
+ * effective date and stated version found in its text.
+ */
+export function unpagedDocument(
+  format: LoadedDocument['format'],
+  fileName: string,
+  blocks: LoadedDocument['blocks'],
+  heading: string | undefined,
+  metadata: Record<string, string>,
+  text: string,
+): LoadedDocument {
   return {
-    format: 'text',
-    title: firstHeading?.text ?? titleFromFileName(fileName),
+    format,
+    title: heading ?? titleFromFileName(fileName),
     blocks,
     pageCount: null,
     effectiveDate: findEffectiveDate(text, {}),
-    metadata: withVersion({}, text),
+    metadata: withVersion(metadata, text),
   };
 }

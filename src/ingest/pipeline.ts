@@ -1,17 +1,22 @@
 import { createHash } from 'node:crypto';
-import { existsSync } from 'node:fs';
-import { readdir, readFile, stat } from 'node:fs/promises';
+import { readFile, stat } from 'node:fs/promises';
 import path from 'node:path';
 import type { Embedder } from '../embed/types.js';
 import { SourceboundError } from '../errors.js';
 import type { Logger } from '../logger.js';
+import { round3 } from '../numbers.js';
 import { shadowCollectionName, type ChunkInput, type DocumentKey, type Repository, type VectorIndexes } from '../store/index.js';
 import type { ChunkDraft, LoadedDocument } from '../types.js';
 import { chunkDocument } from './chunk.js';
 import { detectFormat } from './detect.js';
+import { documentId, walk } from './files.js';
+import { rebuildCollection } from './full-reindex.js';
 import { loadDocument } from './load.js';
 import type { PdfLimits } from './load-pdf.js';
 import { buildNormalisedDocument } from './normalise.js';
+import { addInto, emptySummary, fail, type FileOutcome, type IngestSummary } from './summary.js';
+
+export type { FileOutcome, IngestSummary };
 
 export interface IngestOptions {
   targetTokens: number;
@@ -20,16 +25,6 @@ export interface IngestOptions {
   documentMaxBytes: number;
   /** Page and time bounds on one PDF (defaults: load-pdf.ts). */
   pdf?: PdfLimits;
-}
-
-export type FileOutcome = 'added' | 'updated' | 'renamed' | 'unchanged' | 'failed' | 'skipped';
-
-export interface IngestSummary {
-  documents: { added: number; updated: number; renamed: number; removed: number; unchanged: number; failed: number };
-  chunks: { embedded: number; reused: number; removed: number };
-  failures: { source: string; reason: string }[];
-  skipped: string[];
-  seconds: number;
 }
 
 export interface IngestProgress {
@@ -64,10 +59,6 @@ export interface Ingestor {
   readonly settingsKey: string;
 }
 
-// Extensions looked at in a folder walk; other files are skipped without complaint. A file with no
-// extension is looked at too, and its type is decided from its bytes.
-const CANDIDATE_EXTENSIONS = new Set(['.pdf', '.docx', '.md', '.markdown', '.html', '.htm', '.txt', '.text', '']);
-
 // [CLS] and [SEP] for BERT-family models; countTokens leaves them out.
 const SPECIAL_TOKENS = 2;
 
@@ -91,14 +82,6 @@ export function createIngestor(deps: {
   const maxTokens = Math.max(16, Math.min(options.maxTokens, embedder.maxTokens - 40));
   const targetTokens = Math.min(options.targetTokens, maxTokens);
   const settingsKey = `${embedder.id}|chunk:${targetTokens}/${maxTokens}/${options.overlapTokens}|pipeline:${PIPELINE_VERSION}`;
-
-  const emptySummary = (): IngestSummary => ({
-    documents: { added: 0, updated: 0, renamed: 0, removed: 0, unchanged: 0, failed: 0 },
-    chunks: { embedded: 0, reused: 0, removed: 0 },
-    failures: [],
-    skipped: [],
-    seconds: 0,
-  });
 
   const bindCollection = (collection: string, allowSwitch: boolean): void => {
     repo.ensureCollection(collection);
@@ -299,7 +282,7 @@ export function createIngestor(deps: {
     // and loading it just to find that out would be most of an unchanged re-index's time.
     const d = summary.documents;
     if (d.added + d.updated + d.removed > 0) indexes.sync(opts.collection);
-    summary.seconds = round((performance.now() - started) / 1000);
+    summary.seconds = round3((performance.now() - started) / 1000);
     return summary;
   };
 
@@ -311,127 +294,8 @@ export function createIngestor(deps: {
     return repo.documentKeys(collection).some((d) => d.root !== null && walked.has(d.root) && d.settingsKey !== settingsKey);
   };
 
-  /**
-   * A full re-index: every file of `roots` is processed into a shadow collection while queries keep using the
-   * collection as it is; then the shadow's index file is saved under the collection's name and one transaction
-   * swaps the documents in. A run killed before the swap leaves the shadow behind, and the next run goes on
-   * from it (what it already holds counts as unchanged there).
-   */
-  const rebuild = async (collection: string, roots: readonly string[], resuming: boolean): Promise<IngestSummary> => {
-    const started = performance.now();
-    const shadow = shadowCollectionName(collection);
-    const log = logger.child({ collection });
-    log.info({ roots: roots.length }, resuming ? 'resuming an interrupted full re-index' : 'full re-index: building beside the current index');
-    repo.ensureCollection(shadow);
-    const summary = emptySummary();
-    const failed = new Set<string>();
-    let catchUpFrom = '';
-    // Two passes: the build, then a catch-up that costs one hash per file and takes in what changed while the
-    // build ran (an upload, an edited file). Only the last pass's failures count: the first pass retried them.
-    for (let pass = 0; pass < 2; pass++) {
-      if (pass === 1) catchUpFrom = new Date().toISOString();
-      failed.clear();
-      summary.failures = [];
-      summary.skipped = [];
-      for (const root of roots) {
-        const s = await ingestPath(root, { collection: shadow, removeMissing: true, remember: false, allowEmbedderSwitch: true });
-        summary.chunks.embedded += s.chunks.embedded;
-        summary.chunks.reused += s.chunks.reused;
-        summary.failures.push(...s.failures);
-        summary.skipped.push(...s.skipped);
-        for (const f of s.failures) failed.add(`${path.resolve(root)}\u0000${f.source}`);
-      }
-    }
-    const walked = new Set(roots.map((r) => path.resolve(r)));
-    for (const d of repo.documentKeys(shadow)) {
-      // Built from a folder that has since stopped being a source (or vanished): the collection's copy stays.
-      if (d.root === null || !walked.has(d.root)) repo.deleteDocument(d.id);
-    }
-
-    // Which documents of the collection survive the swap, which shadow documents replace them, and how each
-    // counts. Run twice: once to save the index file ahead of the switch, once inside the switch itself.
-    const plan = () => {
-      const present = (d: DocumentKey): boolean => existsSync(path.join(d.root!, ...d.source.split('/')));
-      const all = repo.documentKeys(shadow);
-      const built = all.filter(present);
-      const gone = all.filter((d) => !present(d));
-      const old = repo.documentKeys(collection);
-      // Changed in the collection after the catch-up pass looked (an upload job in the server): newer than
-      // the shadow's copy.
-      const newer = new Set(old.filter((d) => d.updatedAt >= catchUpFrom && d.settingsKey === settingsKey).map((d) => d.source));
-      const moves = built.filter((d) => !newer.has(d.source));
-      const moving = new Set(moves.map((d) => d.source));
-      const keep = old.filter(
-        (d) =>
-          !moving.has(d.source) &&
-          (newer.has(d.source) ||
-            d.root === null ||
-            !walked.has(d.root) ||
-            // Unreadable now: what was indexed stays, as in an incremental run, while its settings still hold.
-            (failed.has(`${d.root}\u0000${d.source}`) && d.settingsKey === settingsKey)),
-      );
-      const kept = new Set(keep.map((d) => d.id));
-      const drop = old.filter((d) => !kept.has(d.id));
-      const dropBySource = new Map(drop.map((d) => [d.source, d] as const));
-      const renameable = new Map<string, DocumentKey[]>();
-      for (const d of drop) if (!moving.has(d.source)) renameable.set(d.contentHash, [...(renameable.get(d.contentHash) ?? []), d]);
-      const counts = { added: 0, updated: 0, renamed: 0, removed: 0 };
-      for (const d of moves) {
-        if (dropBySource.has(d.source)) counts.updated++;
-        else if (renameable.get(d.contentHash)?.shift()) counts.renamed++;
-        else counts.added++;
-      }
-      counts.removed = drop.length - counts.updated - counts.renamed;
-      const stale = [...gone, ...built.filter((d) => newer.has(d.source))];
-      return { moves, keep, drop, stale, counts };
-    };
-
-    const before = plan();
-    const expected = repo.getCollection(collection)?.generation ?? 0;
-    const next = expected + 1;
-    const rows = [
-      ...repo.chunksOfDocuments(before.moves.map((d) => d.id)),
-      ...repo.chunksOfDocuments(before.keep.map((d) => d.id)),
-    ].sort((a, b) => a.id - b.id);
-    // The new index is on disk under the collection's name before the database switches, so readers swap by
-    // loading one file. Nothing is awaited from here to the commit: in this process no query runs in between.
-    indexes.adopt(shadow, collection, next, rows);
-    let removedChunks = 0;
-    let counts = before.counts;
-    try {
-      repo.transaction(() => {
-        const current = repo.getCollection(collection)?.generation ?? 0;
-        const p = plan();
-        counts = p.counts;
-        for (const d of p.stale) repo.deleteDocument(d.id);
-        for (const d of p.drop) removedChunks += repo.deleteDocument(d.id).length;
-        for (const d of p.moves) repo.moveDocument(d.id, { id: documentId(collection, d.source), collection, source: d.source, root: d.root });
-        // Another writer changed the collection since the index file was saved: a generation the file does not
-        // claim, so every reader checks it against the database (and the sync below saves a matching one).
-        repo.setCollectionState(collection, {
-          embedderId: embedder.id,
-          dimensions: embedder.dimensions,
-          generation: current === expected ? next : current + 1,
-        });
-        repo.dropCollection(shadow);
-      });
-    } catch (err) {
-      // The saved file claims a switch that did not happen: drop it, and the old index is rebuilt from the
-      // stored vectors on the next query.
-      indexes.discard(collection);
-      throw err;
-    }
-    indexes.sync(collection);
-    summary.documents.added = counts.added;
-    summary.documents.updated = counts.updated;
-    summary.documents.renamed = counts.renamed;
-    summary.documents.removed = counts.removed;
-    summary.documents.failed = summary.failures.length;
-    summary.chunks.removed = removedChunks;
-    summary.seconds = round((performance.now() - started) / 1000);
-    log.info({ documents: summary.documents, chunks: summary.chunks, seconds: summary.seconds }, 'full re-index switched in');
-    return summary;
-  };
+  const rebuild = (collection: string, roots: readonly string[], resuming: boolean): Promise<IngestSummary> =>
+    rebuildCollection({ repo, indexes, embedder, settingsKey, logger, ingestPath }, collection, roots, resuming);
 
   return {
     settingsKey,
@@ -459,7 +323,7 @@ export function createIngestor(deps: {
         deps.onProgress?.(progress);
       }
       indexes.sync(collection);
-      summary.seconds = round((performance.now() - started) / 1000);
+      summary.seconds = round3((performance.now() - started) / 1000);
       return summary;
     },
     async reindex(opts) {
@@ -487,43 +351,8 @@ export function createIngestor(deps: {
         }
         addInto(total, s);
       }
-      total.seconds = round((performance.now() - started) / 1000);
+      total.seconds = round3((performance.now() - started) / 1000);
       return total;
     },
   };
-}
-
-function addInto(total: IngestSummary, s: IngestSummary): void {
-  for (const k of Object.keys(total.documents) as (keyof IngestSummary['documents'])[]) total.documents[k] += s.documents[k];
-  for (const k of Object.keys(total.chunks) as (keyof IngestSummary['chunks'])[]) total.chunks[k] += s.chunks[k];
-  total.failures.push(...s.failures);
-  total.skipped.push(...s.skipped);
-}
-
-/** Stable id of a document: the same collection and source always map to the same id. */
-export function documentId(collection: string, source: string): string {
-  return createHash('sha256').update(`${collection}\u0000${source}`).digest('hex').slice(0, 24);
-}
-
-function fail(summary: IngestSummary, source: string, reason: string): FileOutcome {
-  summary.documents.failed++;
-  summary.failures.push({ source, reason });
-  return 'failed';
-}
-
-async function walk(dir: string): Promise<string[]> {
-  const out: string[] = [];
-  const entries = await readdir(dir, { withFileTypes: true });
-  entries.sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
-  for (const e of entries) {
-    if (e.name.startsWith('.') || e.name === 'node_modules') continue;
-    const full = path.join(dir, e.name);
-    if (e.isDirectory()) out.push(...(await walk(full)));
-    else if (e.isFile() && CANDIDATE_EXTENSIONS.has(path.extname(e.name).toLowerCase())) out.push(full);
-  }
-  return out;
-}
-
-function round(x: number): number {
-  return Math.round(x * 1000) / 1000;
 }

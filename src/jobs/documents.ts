@@ -4,8 +4,8 @@ import path from 'node:path';
 import { pipeline } from 'node:stream/promises';
 import type { Readable } from 'node:stream';
 import { SourceboundError } from '../errors.js';
-import type { Runtime } from '../runtime.js';
 import type { DocumentRecord, JobRecord } from '../store/index.js';
+import type { JobContext } from './context.js';
 import type { JobQueue } from './queue.js';
 
 export type UploadOutcome =
@@ -53,9 +53,10 @@ export function checkFileName(name: string): string {
   return n;
 }
 
-export function createDocumentService(rt: Runtime, queue: JobQueue): DocumentService {
-  const uploadsRoot = path.join(rt.config.dataDir, 'uploads');
-  const maxBytes = rt.config.limits.documentMaxBytes;
+export function createDocumentService(ctx: JobContext, queue: JobQueue): DocumentService {
+  const { store } = ctx;
+  const uploadsRoot = path.join(ctx.dataDir, 'uploads');
+  const maxBytes = ctx.maxUploadBytes;
 
   const summary = (d: DocumentRecord): DocumentSummary => ({
     id: d.id,
@@ -66,13 +67,13 @@ export function createDocumentService(rt: Runtime, queue: JobQueue): DocumentSer
     pageCount: d.pageCount,
     effectiveDate: d.effectiveDate,
     contentHash: d.contentHash,
-    chunks: (rt.db.prepare('SELECT count(*) AS n FROM chunks WHERE document_id = ?').get(d.id) as { n: number }).n,
+    chunks: store.countChunks(d.id),
     metadata: d.metadata,
     updatedAt: d.updatedAt,
   });
 
   const find = (collection: string, id: string): DocumentRecord => {
-    const d = rt.repo.getDocument(id);
+    const d = store.getDocument(id);
     if (!d || d.collection !== collection) throw new SourceboundError('SB_ERR_UNKNOWN_DOCUMENT', [id]);
     return d;
   };
@@ -106,41 +107,39 @@ export function createDocumentService(rt: Runtime, queue: JobQueue): DocumentSer
         throw err;
       }
       const contentHash = hash.digest('hex');
-      const same = rt.db
-        .prepare('SELECT id, source FROM documents WHERE collection = ? AND content_hash = ? LIMIT 1')
-        .get(collection, contentHash) as { id: string; source: string } | undefined;
+      const same = store.findDocumentByContent(collection, contentHash);
       if (same) {
         unlinkSync(tmp);
         return { status: 'unchanged', documentId: same.id, source: same.source };
       }
       renameSync(tmp, path.join(folder, name));
-      rt.repo.ensureCollection(collection);
-      rt.repo.addSourceRoot(collection, folder);
+      store.ensureCollection(collection);
+      store.addSourceRoot(collection, folder);
       const job = queue.enqueue({ kind: 'upload', via: 'api', collection, root: folder, source: name });
       return { status: 'queued', job, source: name };
     },
     list(collection) {
-      if (!rt.repo.getCollection(collection)) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [collection]);
-      return rt.repo.listDocuments(collection).map(summary);
+      if (!store.getCollection(collection)) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [collection]);
+      return store.listDocuments(collection).map(summary);
     },
     get(collection, id) {
       return summary(find(collection, id));
     },
     remove(collection, id) {
       const d = find(collection, id);
-      const removed = rt.repo.deleteDocument(d.id);
+      const removed = store.deleteDocument(d.id);
       // An uploaded file goes too, or the next re-index of the upload folder would bring it back.
       if (d.root && d.root === path.join(uploadsRoot, collection)) rmSync(path.join(d.root, d.source), { force: true });
-      rt.indexes.sync(collection);
+      ctx.indexes.sync(collection);
       return { chunksRemoved: removed.length };
     },
     job(id) {
-      const j = rt.jobs.get(id);
+      const j = store.jobs.get(id);
       if (!j) throw new SourceboundError('SB_ERR_UNKNOWN_JOB', [id]);
       return j;
     },
     reindex(opts) {
-      if (opts.collection && !rt.repo.getCollection(opts.collection)) {
+      if (opts.collection && !store.getCollection(opts.collection)) {
         throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [opts.collection]);
       }
       return queue.enqueue({ kind: 'reindex', via: 'api', ...opts });

@@ -1,4 +1,6 @@
-export { createJobQueue, requeueAbandoned, claimNext, runOne, type JobQueue } from './queue.js';
+export { createJobQueue, requeueAbandoned, claimNext, runOne, type JobQueue, type JobThread } from './queue.js';
 export { executeJob, type JobPayload } from './execute.js';
 export { withReindexLock } from './lock.js';
+export { thisProcess, ownerGone, abandonedReason } from './owner.js';
+export type { JobContext } from './context.js';
 export { createDocumentService, checkFileName, type DocumentService, type DocumentSummary, type UploadOutcome } from './documents.js';

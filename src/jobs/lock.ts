@@ -2,6 +2,7 @@ import { hostname } from 'node:os';
 import { mkdirSync, openSync, readFileSync, unlinkSync, writeSync, closeSync } from 'node:fs';
 import path from 'node:path';
 import { SourceboundError } from '../errors.js';
+import { processAlive } from './owner.js';
 
 interface LockInfo {
   pid: number;
@@ -45,7 +46,7 @@ function acquire(file: string): void {
     } catch {
       owner = null; // half-written by a process that died: stale
     }
-    if (owner && owner.host === hostname() && alive(owner.pid)) {
+    if (owner && owner.host === hostname() && processAlive(owner.pid)) {
       throw new SourceboundError('SB_ERR_REINDEX_RUNNING', [String(owner.pid), owner.since]);
     }
     if (owner && owner.host !== hostname()) {
@@ -58,13 +59,4 @@ function acquire(file: string): void {
     }
   }
   throw new SourceboundError('SB_ERR_REINDEX_RUNNING', ['another process', 'just now']);
-}
-
-function alive(pid: number): boolean {
-  try {
-    process.kill(pid, 0);
-    return true;
-  } catch (err) {
-    return (err as NodeJS.ErrnoException).code === 'EPERM';
-  }
 }

@@ -1,13 +1,9 @@
-import { existsSync } from 'node:fs';
-import path from 'node:path';
-import { fileURLToPath } from 'node:url';
 import { Worker } from 'node:worker_threads';
-import type { Config } from '../config/index.js';
-import { PACKAGE_ROOT } from '../config/index.js';
 import type { Logger } from '../logger.js';
-import type { Runtime } from '../runtime.js';
 import type { JobRecord } from '../store/index.js';
+import type { JobContext } from './context.js';
 import { executeJob, type JobPayload } from './execute.js';
+import { ownerGone } from './owner.js';
 
 export interface JobQueue {
   /** Persists a queued job and wakes the runner. */
@@ -17,56 +13,51 @@ export interface JobQueue {
   close(): Promise<void>;
 }
 
-/** Jobs that were `running` when the process that ran them died go back to the queue (up to 3 attempts). */
-export function requeueAbandoned(rt: Runtime): number {
-  const db = rt.db;
-  db.prepare(
-    "UPDATE jobs SET state = 'failed', error = 'gave up after 3 attempts', finished_at = ? WHERE state = 'running' AND json_extract(payload, '$.via') = 'api' AND attempts >= 3",
-  ).run(new Date().toISOString());
-  return db
-    .prepare("UPDATE jobs SET state = 'queued' WHERE state = 'running' AND json_extract(payload, '$.via') = 'api'")
-    .run().changes;
+/** How many times a queued job is tried before it is given up. */
+const MAX_ATTEMPTS = 3;
+
+/** Queue jobs left `running` by a process that is gone go back to the queue (up to 3 attempts). */
+export function requeueAbandoned(ctx: Pick<JobContext, 'store'>): number {
+  return ctx.store.jobs.requeueAbandoned(ownerGone, MAX_ATTEMPTS);
 }
 
-/** Claims the oldest queued job atomically, so two runners never take the same one. */
-export function claimNext(rt: Runtime): JobRecord | null {
-  const row = rt.db
-    .prepare(
-      `UPDATE jobs SET state = 'running', attempts = attempts + 1, started_at = ?
-       WHERE id = (SELECT id FROM jobs WHERE state = 'queued' ORDER BY created_at, rowid LIMIT 1) RETURNING id`,
-    )
-    .get(new Date().toISOString()) as { id: string } | undefined;
-  return row ? rt.jobs.get(row.id) : null;
+/** Claims the oldest queued job for this process atomically, so two runners never take the same one. */
+export function claimNext(ctx: Pick<JobContext, 'store' | 'owner'>): JobRecord | null {
+  return ctx.store.jobs.claimNext(ctx.owner);
 }
 
-export async function runOne(rt: Runtime, job: JobRecord, log: Logger): Promise<void> {
+export async function runOne(ctx: JobContext, job: JobRecord, log: Logger): Promise<void> {
   const jlog = log.child({ jobId: job.id, kind: job.kind });
   try {
-    const summary = await executeJob(rt, job);
-    rt.jobs.succeed(job.id, summary);
+    const summary = await executeJob(ctx, job);
+    ctx.store.jobs.succeed(job.id, summary);
     jlog.info({ documents: summary.documents, failures: summary.failures.length }, 'job succeeded');
   } catch (err) {
-    rt.jobs.fail(job.id, (err as Error).message);
+    ctx.store.jobs.fail(job.id, (err as Error).message);
     jlog.warn({ err: (err as Error).message }, 'job failed');
   }
 }
 
+/** The worker thread that runs jobs: its script (src/job-worker.ts compiled) and the data it starts with. */
+export interface JobThread {
+  script: string | URL;
+  workerData: unknown;
+}
+
 /**
- * Runs queued jobs off the request thread: in a worker thread with its own database connection and
- * embedder (`thread`), or on the main thread (`inline`, for tests and tiny deployments).
+ * Runs queued jobs off the request thread: in a worker thread with its own store connection and embedder
+ * (`thread`), or on the main thread (`inline`, for tests and tiny deployments).
  */
 export function createJobQueue(deps: {
-  rt: Runtime;
-  config: Readonly<Config>;
+  ctx: JobContext;
   logger: Logger;
-  mode: 'thread' | 'inline';
+  mode: { thread: JobThread } | 'inline';
   onJobDone?: (job: JobRecord) => void;
 }): JobQueue {
-  const { rt, logger, mode } = deps;
+  const { ctx, logger, mode } = deps;
   const log = logger.child({ stage: 'jobs' });
   let idleWaiters: (() => void)[] = [];
-  const pending = (): number =>
-    (rt.db.prepare("SELECT count(*) AS n FROM jobs WHERE state IN ('queued', 'running') AND json_extract(payload, '$.via') = 'api'").get() as { n: number }).n;
+  const pending = (): number => ctx.store.jobs.pendingQueued();
   const notifyIdle = (): void => {
     if (pending() > 0) return;
     const w = idleWaiters;
@@ -74,9 +65,9 @@ export function createJobQueue(deps: {
     for (const f of w) f();
   };
   const finished = (id: string): void => {
-    const job = rt.jobs.get(id);
+    const job = ctx.store.jobs.get(id);
     // The worker saved the index file; this thread only brings its memory up to date.
-    if (job?.collection) rt.indexes.sync(job.collection, { persist: false });
+    if (job?.collection) ctx.indexes.sync(job.collection, { persist: false });
     if (job) deps.onJobDone?.(job);
     notifyIdle();
   };
@@ -92,8 +83,8 @@ export function createJobQueue(deps: {
     if (draining) return;
     draining = true;
     try {
-      for (let job = claimNext(rt); job && !closed; job = claimNext(rt)) {
-        await runOne(rt, job, log);
+      for (let job = claimNext(ctx); job && !closed; job = claimNext(ctx)) {
+        await runOne(ctx, job, log);
         finished(job.id);
       }
     } finally {
@@ -102,8 +93,8 @@ export function createJobQueue(deps: {
     }
   };
 
-  if (mode === 'thread') {
-    worker = new Worker(workerScript(), { workerData: { config: JSON.parse(JSON.stringify(deps.config)) } });
+  if (mode !== 'inline') {
+    worker = new Worker(mode.thread.script, { workerData: mode.thread.workerData });
     worker.on('message', (m: { done?: string }) => {
       if (m.done) finished(m.done);
     });
@@ -115,7 +106,7 @@ export function createJobQueue(deps: {
   return {
     enqueue(payload) {
       const collection = payload.kind === 'upload' ? payload.collection : (payload.collection ?? null);
-      const job = rt.jobs.create(payload.kind, collection, payload);
+      const job = ctx.store.jobs.create(payload.kind, collection, payload);
       if (worker) worker.postMessage({ wake: true });
       else void drainInline();
       return job;
@@ -138,11 +129,4 @@ export function createJobQueue(deps: {
       }
     },
   };
-}
-
-/** dist/jobs/worker.js next to this file when compiled; from src/ (tests) use the compiled copy. */
-function workerScript(): string {
-  const here = path.dirname(fileURLToPath(import.meta.url));
-  const beside = path.join(here, 'worker.js');
-  return existsSync(beside) ? beside : path.join(PACKAGE_ROOT, 'dist', 'jobs', 'worker.js');
 }

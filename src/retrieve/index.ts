@@ -9,10 +9,10 @@ export {
   type RetrievalSettings,
   type LexicalEngine,
 } from './retriever.js';
-export { createLexicalMemory, phraseCounts, type LexicalMemory, type LexicalMemoryStats, type PhraseCount } from './lexical-memory.js';
+export { createLexicalMemory, type LexicalMemory, type LexicalMemoryStats } from './lexical-memory.js';
 export { reciprocalRankFusion, type RankedList, type FusedItem } from './rrf.js';
-export { toMatchExpression, toWeightedMatch, contentTerms, termCounts, queryTerms, STOP_WORDS, type WeightedTerm } from './query-text.js';
+export { toWeightedMatch, termCounts, queryTerms, STOP_WORDS, type WeightedTerm } from './query-text.js';
 export { rm3Expand, DEFAULT_RM3, type Rm3Options } from './rm3.js';
 export { mmrSelect, jaccard, DEFAULT_MMR, type MmrOptions, type MmrItem } from './mmr.js';
 export { createWordNet, packagedWordNetDir, type SynonymSource } from './wordnet.js';
-export { allowedChunkIds, type RetrieveFilter } from './filter.js';
+export type { RetrieveFilter } from './filter.js';

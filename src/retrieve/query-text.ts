@@ -2,6 +2,8 @@
 // a double-quoted string (quotes inside doubled), joined with OR, so operators, column filters,
 // parentheses and stray quotes in the question are matched as plain words, not interpreted.
 
+import { gcd } from '../numbers.js';
+
 // Function words that carry no topic. Dropping them keeps OR queries cheap and stops "what is the"
 // from matching every chunk. The first block is the list the service started with; the second adds
 // pronouns, auxiliaries, quantifiers and connectives (written for this project from general English
@@ -31,11 +33,6 @@ export function queryTerms(text: string): string[] {
   return out;
 }
 
-/** Content terms of a query: stop words dropped (all terms kept when nothing else is left), duplicates removed. */
-export function contentTerms(text: string): string[] {
-  return [...termCounts(text).keys()];
-}
-
 /**
  * Content terms with how often each occurs in the query, in first-seen order. Repeats matter in long
  * questions ("... retrieval ... retrieval systems"), as the query-term-frequency factor of BM25.
@@ -53,38 +50,42 @@ export interface WeightedTerm {
   weight: number;
 }
 
+/** One query phrase: a term and how many times its phrase is written (its weight as a whole multiple). */
+export interface PhraseCount {
+  term: string;
+  count: number;
+}
+
 /**
- * An FTS5 MATCH expression for weighted terms. FTS5 has no per-term boost, but its bm25() sums over the
- * phrases of the query, so a phrase written n times counts n times: weights are scaled so the smallest kept
- * one is 1 and rounded to a repeat count, capped at `maxRepeat`. Terms are quoted, so the expression
- * cannot fail to parse.
+ * Weighted terms as whole repeat counts. FTS5 has no per-term boost, but its bm25() sums over the phrases of
+ * the query, so a phrase written n times counts n times: weights are scaled so the heaviest gets `maxRepeat`,
+ * rounded, at least 1. Dividing every count by their greatest common divisor scales all scores by one constant,
+ * so the ranking is the same with fewer phrases (each phrase costs FTS5 work on every matching row): equal
+ * weights, the usual case for a short question, become one copy each. The in-memory engine uses the same
+ * counts as multipliers, so both engines score the same weighted query.
  */
-export function toWeightedMatch(terms: readonly WeightedTerm[], opts: { maxTerms?: number; maxRepeat?: number } = {}): string | null {
+export function phraseCounts(terms: readonly WeightedTerm[], opts: { maxTerms?: number; maxRepeat?: number } = {}): PhraseCount[] {
   const maxTerms = opts.maxTerms ?? 64;
   const maxRepeat = opts.maxRepeat ?? 4;
   const kept = terms.filter((t) => t.weight > 0 && t.term !== '').slice(0, maxTerms);
-  if (kept.length === 0) return null;
+  if (kept.length === 0) return [];
   const top = Math.max(...kept.map((t) => t.weight));
-  // Scale so the heaviest term gets maxRepeat copies; lighter ones keep their share, at least one copy.
   const counts = kept.map((t) => Math.max(1, Math.min(maxRepeat, Math.round((t.weight / top) * maxRepeat))));
-  // Dividing every count by their greatest common divisor scales all scores by one constant, so the
-  // ranking is the same with fewer phrases (each phrase costs FTS5 work on every matching row): equal
-  // weights, the usual case for a short question, become one copy each.
   const g = counts.reduce(gcd);
+  return kept.map((t, i) => ({ term: t.term, count: counts[i]! / g }));
+}
+
+/**
+ * An FTS5 MATCH expression for weighted terms: each term's phrase written as many times as phraseCounts says.
+ * Terms are quoted (quotes inside doubled), so the expression cannot fail to parse.
+ */
+export function toWeightedMatch(terms: readonly WeightedTerm[], opts: { maxTerms?: number; maxRepeat?: number } = {}): string | null {
+  const counts = phraseCounts(terms, opts);
+  if (counts.length === 0) return null;
   const parts: string[] = [];
-  kept.forEach((t, i) => {
-    const quoted = `"${t.term.replace(/"/g, '""')}"`;
-    for (let r = 0; r < counts[i]! / g; r++) parts.push(quoted);
-  });
+  for (const { term, count } of counts) {
+    const quoted = `"${term.replace(/"/g, '""')}"`;
+    for (let r = 0; r < count; r++) parts.push(quoted);
+  }
   return parts.join(' OR ');
-}
-
-/** An FTS5 MATCH expression for the query (each content term once), or null when it has no searchable term. */
-export function toMatchExpression(text: string, maxTerms = 64): string | null {
-  return toWeightedMatch([...termCounts(text).keys()].map((term) => ({ term, weight: 1 })), { maxTerms, maxRepeat: 1 });
-}
-
-function gcd(a: number, b: number): number {
-  while (b) [a, b] = [b, a % b];
-  return a;
 }

@@ -1,11 +1,12 @@
 import type { Embedder } from '../embed/types.js';
 import { SourceboundError } from '../errors.js';
+import { dot } from '../numbers.js';
 import type { Repository, VectorIndexes, FtsWeights, ChunkView } from '../store/index.js';
-import type { SearchHit, SearchMode } from '../types.js';
-import { allowedChunkIds, isEmptyFilter, type RetrieveFilter } from './filter.js';
-import { createLexicalMemory, phraseCounts, type LexicalMemory } from './lexical-memory.js';
+import type { RetrieveRequest, SearchHit } from '../types.js';
+import { isEmptyFilter, type RetrieveFilter } from './filter.js';
+import { createLexicalMemory, type LexicalMemory } from './lexical-memory.js';
 import { DEFAULT_MMR, jaccard, mmrSelect, type MmrOptions } from './mmr.js';
-import { queryTerms, termCounts, toWeightedMatch, type WeightedTerm } from './query-text.js';
+import { phraseCounts, queryTerms, termCounts, toWeightedMatch, type WeightedTerm } from './query-text.js';
 import { DEFAULT_RM3, rm3Expand, type Rm3Options } from './rm3.js';
 import { reciprocalRankFusion } from './rrf.js';
 import type { SynonymSource } from './wordnet.js';
@@ -41,15 +42,7 @@ export interface RetrieverOptions {
 
 export type LexicalEngine = 'fts5' | 'memory';
 
-export interface RetrieveRequest {
-  query: string;
-  collection: string;
-  k: number;
-  mode: SearchMode;
-  filter?: RetrieveFilter;
-  /** Overrides the retriever's MMR setting for this request (true = on with the configured or default options). */
-  diversify?: boolean;
-}
+export type { RetrieveRequest };
 
 export interface Retriever {
   search(req: RetrieveRequest): Promise<SearchHit[]>;
@@ -124,7 +117,7 @@ export function createRetriever(deps: {
   const synonymWeight = options.synonymWeight === undefined ? DEFAULT_TUNING.synonymWeight : options.synonymWeight;
   const mmr = options.mmr === undefined ? DEFAULT_TUNING.mmr : options.mmr;
   const denseFeedback = options.denseFeedback === undefined ? DEFAULT_TUNING.denseFeedback : options.denseFeedback;
-  const memory = (options.lexicalEngine ?? 'fts5') === 'memory' ? (deps.lexicalIndex ?? createLexicalMemory(repo.db)) : null;
+  const memory = (options.lexicalEngine ?? 'fts5') === 'memory' ? (deps.lexicalIndex ?? createLexicalMemory(repo)) : null;
 
   // Rocchio (1971): move the query vector toward the centroid of the top lexical hits, whose stored vectors
   // are at hand, so the dense leg searches near what BM25 already found relevant rather than near the bare
@@ -206,7 +199,7 @@ export function createRetriever(deps: {
       if (wantsDense) indexes.sync(req.collection, { persist: false, generation: col.generation });
       const filter = isEmptyFilter(req.filter) ? undefined : req.filter;
       // One allowed-id set for both legs when the in-memory lexical index filters inside its search too.
-      const allowed = filter && (wantsDense || (memory && req.mode !== 'dense')) ? allowedChunkIds(repo.db, req.collection, filter) : undefined;
+      const allowed = filter && (wantsDense || (memory && req.mode !== 'dense')) ? repo.chunkIdsMatching(req.collection, filter) : undefined;
       const limit = Math.max(req.k, options.candidates);
       const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
       const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed);
@@ -299,11 +292,4 @@ function toHit(v: ChunkView, score: number, ranks: { lexical?: number; dense?: n
   if (v.pageBreaks.length > 0) hit.pageBreaks = v.pageBreaks;
   if (denseScore !== undefined) hit.denseScore = denseScore;
   return hit;
-}
-
-function dot(a: Float32Array, b: Float32Array): number {
-  let s = 0;
-  const n = Math.min(a.length, b.length);
-  for (let i = 0; i < n; i++) s += a[i]! * b[i]!;
-  return s;
 }

@@ -2,7 +2,7 @@ import { closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, re
 import path from 'node:path';
 import { threadId } from 'node:worker_threads';
 import hnswlib from 'hnswlib-node';
-import type { Repository } from './repository.js';
+import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
 
 const { HierarchicalNSW } = hnswlib;
 type Hnsw = InstanceType<typeof HierarchicalNSW>;
@@ -73,7 +73,7 @@ export interface VectorIndexes {
 const SAFE_NAME = /^[A-Za-z0-9._-]+$/;
 
 export function createVectorIndexes(deps: {
-  repo: Repository;
+  repo: Pick<CollectionStore, 'collectionState'> & Pick<ChunkStore, 'chunksOfCollection'> & Pick<VectorStore, 'getVectors'>;
   dir: string;
   embedderId: string;
   dimensions: number;

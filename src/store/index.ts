@@ -1,22 +1,8 @@
-export { openDatabase, migrate, schemaVersion, type Db } from './db.js';
-export { MIGRATIONS } from './migrations.js';
-export {
-  createRepository,
-  shadowCollectionName,
-  SHADOW_PREFIX,
-  vectorToBlob,
-  blobToVector,
-  type Repository,
-  type CollectionRow,
-  type DocumentRecord,
-  type DocumentKey,
-  type ChunkInput,
-  type ChunkRecord,
-  type ChunkView,
-  type NewDocument,
-  type FtsRow,
-  type FtsWeights,
-} from './repository.js';
+export type * from './types.js';
+export { SHADOW_PREFIX, shadowCollectionName } from './types.js';
+export { SqliteStore, openStore } from './sqlite/store.js';
+export { openDatabase, migrate, schemaVersion, type Db } from './sqlite/db.js';
+export { MIGRATIONS } from './sqlite/migrations.js';
+export { ftsColumns } from './fts-columns.js';
 export { createVectorIndexes, type VectorIndexes, type VectorHit, type HnswParams } from './hnsw-index.js';
-export { createJobs, type Jobs, type JobRecord, type JobState } from './jobs.js';
 export { storePaths } from './paths.js';

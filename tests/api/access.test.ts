@@ -9,10 +9,9 @@ import { routeTable, type RouteAccess, type RouteRecord } from '../../src/api/ac
 import { buildApp, type AppDeps } from '../../src/api/app.js';
 import { sha256Hex, type Scope } from '../../src/api/auth.js';
 import type { Config } from '../../src/config/index.js';
-import { createDocumentService, createJobQueue, type JobQueue } from '../../src/jobs/index.js';
-import { silentLogger } from '../../src/logger.js';
-import { appDeps, type Runtime } from '../../src/runtime.js';
-import { tempRuntime } from '../fixtures/runtime.js';
+import type { JobQueue } from '../../src/jobs/index.js';
+import { appDeps, createDocumentApi, type Runtime } from '../../src/runtime.js';
+import { tempRuntime, rawDb } from '../fixtures/runtime.js';
 
 // Access is decided on the route the router matched. These tests walk the app's own route table, so a
 // route added later is probed without editing this file: every route, spelled many ways, by callers
@@ -63,7 +62,7 @@ const agent = new http.Agent({ keepAlive: true, maxSockets: 1 });
 
 const bearer = (key: string | null): Record<string, string> => (key ? { authorization: `Bearer ${key}` } : {});
 const jobCount = (where = '1 = 1', ...args: unknown[]): number =>
-  (rt.db.prepare(`SELECT count(*) AS n FROM jobs WHERE ${where}`).get(...args) as { n: number }).n;
+  (rawDb(rt).prepare(`SELECT count(*) AS n FROM jobs WHERE ${where}`).get(...args) as { n: number }).n;
 
 beforeAll(async () => {
   folder = mkdtempSync(path.join(tmpdir(), 'sb-access-'));
@@ -78,8 +77,9 @@ beforeAll(async () => {
 
   const made = await tempRuntime({ auth: { required: true, keys: keyConfig }, limits: { rateLimitPerMinute: 1_000_000 } });
   ({ rt, config, cleanup } = made);
-  queue = createJobQueue({ rt, config, logger: silentLogger(), mode: 'inline' });
-  deps = { ...appDeps(rt, () => true, createDocumentService(rt, queue)), deskAssetsDir: deskDir };
+  const api = createDocumentApi(rt, 'inline');
+  queue = api.queue;
+  deps = { ...appDeps(rt, () => true, api.documents), deskAssetsDir: deskDir };
   app = buildApp(config, deps);
   // Listening too: inject() parses its URL as a WHATWG URL, which resolves dot segments, so paths with
   // them go over a real socket exactly as written.

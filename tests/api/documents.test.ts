@@ -4,10 +4,9 @@ import path from 'node:path';
 import type { FastifyInstance } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { buildApp } from '../../src/api/app.js';
-import { createDocumentService, createJobQueue, type JobQueue } from '../../src/jobs/index.js';
-import { silentLogger } from '../../src/logger.js';
-import { appDeps, type Runtime } from '../../src/runtime.js';
-import { SEED_DIR, tempRuntime } from '../fixtures/runtime.js';
+import type { JobQueue } from '../../src/jobs/index.js';
+import { appDeps, createDocumentApi, type Runtime } from '../../src/runtime.js';
+import { SEED_DIR, tempRuntime, rawDb } from '../fixtures/runtime.js';
 import { collect, hasExited, withDeadline } from '../fixtures/wait.js';
 
 let rt: Runtime;
@@ -19,8 +18,9 @@ let dataDir: string;
 beforeAll(async () => {
   const made = await tempRuntime();
   ({ rt, cleanup, dataDir } = made);
-  queue = createJobQueue({ rt, config: made.config, logger: silentLogger(), mode: 'inline' });
-  app = buildApp(made.config, appDeps(rt, () => true, createDocumentService(rt, queue)));
+  const api = createDocumentApi(rt, 'inline');
+  queue = api.queue;
+  app = buildApp(made.config, appDeps(rt, () => true, api.documents));
   await app.ready();
 });
 afterAll(async () => {
@@ -62,7 +62,7 @@ describe('the document API', () => {
   });
 
   it('says so and queues nothing when identical content is uploaded again', async () => {
-    const jobsBefore = (rt.db.prepare('SELECT count(*) AS n FROM jobs').get() as { n: number }).n;
+    const jobsBefore = (rawDb(rt).prepare('SELECT count(*) AS n FROM jobs').get() as { n: number }).n;
     const res = await post('/v1/collections/uploads/documents', {
       name: 'night-buses-copy.md',
       text: '# Night buses\n\nNight buses run every 30 minutes between 00:30 and 05:00 on Fridays and Saturdays.',
@@ -70,7 +70,7 @@ describe('the document API', () => {
     });
     expect(res.statusCode).toBe(200);
     expect(res.json()).toMatchObject({ status: 'unchanged', source: 'night-buses.md' });
-    expect((rt.db.prepare('SELECT count(*) AS n FROM jobs').get() as { n: number }).n).toBe(jobsBefore);
+    expect((rawDb(rt).prepare('SELECT count(*) AS n FROM jobs').get() as { n: number }).n).toBe(jobsBefore);
   });
 
   it('accepts a multipart PDF upload and keeps its page numbers', async () => {

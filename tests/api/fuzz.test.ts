@@ -4,9 +4,8 @@ import fc from 'fast-check';
 import type { FastifyInstance } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { buildApp } from '../../src/api/app.js';
-import { createDocumentService, createJobQueue, type JobQueue } from '../../src/jobs/index.js';
-import { silentLogger } from '../../src/logger.js';
-import { appDeps, type Runtime } from '../../src/runtime.js';
+import type { JobQueue } from '../../src/jobs/index.js';
+import { appDeps, createDocumentApi, type Runtime } from '../../src/runtime.js';
 import { SEED_DIR, tempRuntime } from '../fixtures/runtime.js';
 
 // Property-based fuzzing with fast-check: every route gets schema-shaped bodies with hostile values,
@@ -26,8 +25,9 @@ beforeAll(async () => {
   rt = made.rt;
   cleanup = made.cleanup;
   // The whole surface: search and answer, the document API and its jobs (run inline), and the desk's routes.
-  queue = createJobQueue({ rt, config: made.config, logger: silentLogger(), mode: 'inline' });
-  app = buildApp(made.config, appDeps(rt, () => true, createDocumentService(rt, queue)));
+  const api = createDocumentApi(rt, 'inline');
+  queue = api.queue;
+  app = buildApp(made.config, appDeps(rt, () => true, api.documents));
   await rt.ingestor.ingestPath(SEED_DIR, { collection: 'default' });
   docId = rt.repo.listDocuments('default')[0]!.id;
   await app.ready();

@@ -15,9 +15,8 @@ import { latencySummary, rng } from './generate.mjs';
 const ROOT = path.resolve(import.meta.dirname, '..', '..');
 const dist = (p) => import(pathToFileURL(path.join(ROOT, 'dist', p)).href);
 const { loadConfig } = await dist('config/index.js');
-const { createRuntime } = await dist('runtime.js');
+const { createDocumentApi, createRuntime } = await dist('runtime.js');
 const { silentLogger } = await dist('logger.js');
-const { createJobQueue, createDocumentService } = await dist('jobs/index.js');
 
 const median = (xs) => {
   const s = [...xs].sort((a, b) => a - b);
@@ -152,8 +151,7 @@ export async function runReindexBench({ docs = 1000, runs = 5, log = () => {} } 
     const changed = { targetTokens: 120, maxTokens: 200, overlapTokens: 24 };
     const cfg = config(changed);
     rt = await createRuntime(cfg, silentLogger());
-    const queue = createJobQueue({ rt, config: cfg, logger: silentLogger(), mode: 'thread' });
-    const service = createDocumentService(rt, queue);
+    const { queue, documents: service } = createDocumentApi(rt, 'thread');
     const pauseMs = 10;
     // Warm-up: load the index, JIT the query path.
     await timeQueries({ rt, collection: 'policies', min: 20, pauseMs });

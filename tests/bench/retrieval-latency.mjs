@@ -4,7 +4,7 @@
 import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
-import { createRepository, createVectorIndexes, openDatabase } from '../../dist/store/index.js';
+import { createVectorIndexes, openDatabase, SqliteStore } from '../../dist/store/index.js';
 import { createLexicalMemory, createRetriever, retrieverOptions, STOP_WORDS } from '../../dist/retrieve/index.js';
 import { configSchema } from '../../dist/config/schema.js';
 import { clusteredVectors, latencySummary, rng, vocabulary, zipfSampler } from './generate.mjs';
@@ -22,7 +22,7 @@ export function buildBenchStore({ chunks, queries = 500, log = () => {}, keepDir
   const reuse = keepDir !== undefined && existsSync(path.join(dir, 'ready'));
   const db = openDatabase(path.join(dir, 'bench.db'));
   db.pragma('synchronous = OFF');
-  const repo = createRepository(db);
+  const repo = new SqliteStore(db);
   // The most frequent words of real text are function words; put the stop list at the head of the Zipf
   // ranking so the synthetic text has the same shape (the query parser drops them, as it would in use).
   const vocab = [...STOP_WORDS, ...vocabulary(30_000)];
@@ -105,7 +105,7 @@ export async function runLatencyBench({ chunks, queries = 500, log = () => {}, s
     const rss0 = process.memoryUsage().rss;
     const heap0 = process.memoryUsage().heapUsed;
     const t0 = performance.now();
-    lexicalIndex = createLexicalMemory(db);
+    lexicalIndex = createLexicalMemory(repo);
     lexicalIndex.syncNow();
     const seconds = (performance.now() - t0) / 1000;
     globalThis.gc?.();

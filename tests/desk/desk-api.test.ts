@@ -117,17 +117,17 @@ describe('original files', () => {
     expect((await app.inject({ url: '/originals' })).statusCode).toBe(403);
 
     let clock = 1_000_000;
-    const desk = createDeskService({ repo: rt.repo, now: () => clock });
+    const desk = createDeskService({ repo: rt.repo, ratings: rt.store.ratings, now: () => clock });
     const token = desk.linkOriginal('alpha', docId).path.split('link=')[1]!;
     expect(desk.redeemLink(token)).toEqual({ collection: 'alpha', documentId: docId });
     clock += LINK_TTL_MS + 1;
     expect(() => desk.redeemLink(token)).toThrow(expect.objectContaining({ code: 'SB_ERR_LINK_INVALID' }));
     // A link made by another process (another secret) is refused.
-    expect(() => createDeskService({ repo: rt.repo }).redeemLink(token)).toThrow(expect.objectContaining({ code: 'SB_ERR_LINK_INVALID' }));
+    expect(() => createDeskService({ repo: rt.repo, ratings: rt.store.ratings }).redeemLink(token)).toThrow(expect.objectContaining({ code: 'SB_ERR_LINK_INVALID' }));
   });
 
   it('refuses every one-character change to a link, at either end or in the middle, spellings that decode to the same bytes included', () => {
-    const desk = createDeskService({ repo: rt.repo });
+    const desk = createDeskService({ repo: rt.repo, ratings: rt.store.ratings });
     const token = desk.linkOriginal('alpha', docId).path.split('link=')[1]!;
     const [payload, signature] = token.split('.') as [string, string];
     const ALPHABET = 'ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789-_';
@@ -210,7 +210,7 @@ describe('POST /v1/ratings', () => {
   it('stores the rating with the key id', async () => {
     const res = await app.inject({ method: 'POST', url: '/v1/ratings', headers: auth(ALPHA_KEY), payload: rating });
     expect(res.statusCode).toBe(201);
-    const stored = createDeskService({ repo: rt.repo }).ratings.list({ collection: 'alpha' });
+    const stored = createDeskService({ repo: rt.repo, ratings: rt.store.ratings }).ratings.list({ collection: 'alpha' });
     const last = stored[stored.length - 1]!;
     expect(last).toMatchObject({ keyId: 'alpha-staff', question: rating.question, helpful: true, comment: 'Right.', abstained: false });
     expect(last.sources).toEqual([{ n: 1, documentId: 'x', source: 'lost-property.txt', title: 'Lost Property', page: null, section: 'Lost Property', quote: 'kept for 30 days' }]);

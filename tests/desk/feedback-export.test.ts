@@ -3,8 +3,8 @@ import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { readQuestions } from '../../src/eval/answers.js';
-import { createRatingStore, keyFigures, ratingsToQuestions, runFeedbackCommand, toJsonl, type NewRating } from '../../src/feedback/index.js';
-import { openDatabase, storePaths } from '../../src/store/index.js';
+import { keyFigures, ratingsToQuestions, runFeedbackCommand, toJsonl, type NewRating } from '../../src/feedback/index.js';
+import { openStore, storePaths } from '../../src/store/index.js';
 
 const rated = (over: Partial<NewRating> = {}): NewRating => ({
   collection: 'default',
@@ -27,8 +27,8 @@ describe('desk ratings as a question set', () => {
   });
 
   it('maps helpful/not helpful and answered/abstained onto labels, latest rating first', () => {
-    const db = openDatabase(':memory:');
-    const store = createRatingStore(db);
+    const db = openStore(':memory:');
+    const store = db.ratings;
     store.add(rated({ helpful: false }));
     store.add(rated({ comment: 'Correct after the 2026 change.' })); // the same question again: this one counts
     store.add(rated({ question: 'Is there wifi on the trams?', answer: 'The documents do not cover this question.', abstained: true, sources: [] }));
@@ -68,9 +68,9 @@ describe('desk ratings as a question set', () => {
   it('`feedback export --out F` writes the file from the data folder, and names what it skipped', async () => {
     const dir = mkdtempSync(path.join(tmpdir(), 'sb-fb-cli-'));
     try {
-      const db = openDatabase(storePaths(dir).database);
-      createRatingStore(db).add(rated());
-      createRatingStore(db).add(rated({ question: 'What about dogs?', abstained: true, helpful: false, sources: [] }));
+      const db = openStore(storePaths(dir).database);
+      db.ratings.add(rated());
+      db.ratings.add(rated({ question: 'What about dogs?', abstained: true, helpful: false, sources: [] }));
       db.close();
       const out = path.join(dir, 'set.jsonl');
       let err = '';

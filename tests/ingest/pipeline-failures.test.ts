@@ -9,7 +9,7 @@ import { DOCX_OLE_MESSAGE } from '../../src/ingest/load-docx.js';
 import { ENCRYPTED_MESSAGE, NO_TEXT_MESSAGE } from '../../src/ingest/load-pdf.js';
 import { createLogger } from '../../src/logger.js';
 import { createRuntime, ingestAsJob, type Runtime } from '../../src/runtime.js';
-import { deepMerge, SEED_DIR } from '../fixtures/runtime.js';
+import { deepMerge, SEED_DIR, rawDb } from '../fixtures/runtime.js';
 import { buildDocx } from './docx-fixture.js';
 import { buildEncryptedPdf, buildImageOnlyPdf, staffHandbookPdf } from './pdf-fixture.js';
 
@@ -93,7 +93,7 @@ describe('ingesting a folder of deliberately broken files', () => {
     expect(sources).toEqual(['at-limit.txt', 'good.docx', 'good.md', 'good.pdf']);
 
     // The CLI records each ingest as a job; the failures must be readable from the jobs table later.
-    const row = rt.db.prepare("SELECT state, result FROM jobs WHERE kind = 'ingest' ORDER BY created_at DESC LIMIT 1").get() as {
+    const row = rawDb(rt).prepare("SELECT state, result FROM jobs WHERE kind = 'ingest' ORDER BY created_at DESC LIMIT 1").get() as {
       state: string;
       result: string;
     };

@@ -9,7 +9,7 @@ import { documentId } from '../../src/ingest/index.js';
 import { silentLogger } from '../../src/logger.js';
 import { createRuntime, type Runtime } from '../../src/runtime.js';
 import { shadowCollectionName } from '../../src/store/index.js';
-import { deepMerge, SEED_DIR } from '../fixtures/runtime.js';
+import { deepMerge, SEED_DIR, rawDb } from '../fixtures/runtime.js';
 import { runSync, withDeadline } from '../fixtures/wait.js';
 
 // The nightly re-index on a folder of 100 invented depot notices of Marrowgate Valley Transit: what it embeds,
@@ -83,10 +83,10 @@ afterEach(() => {
 });
 
 const hashesOf = (rt: Runtime, docId: string): string[] =>
-  (rt.db.prepare('SELECT chunk_hash AS h FROM chunks WHERE document_id = ? ORDER BY ordinal').all(docId) as { h: string }[]).map((r) => r.h);
+  (rawDb(rt).prepare('SELECT chunk_hash AS h FROM chunks WHERE document_id = ? ORDER BY ordinal').all(docId) as { h: string }[]).map((r) => r.h);
 
 const snapshot = (rt: Runtime) =>
-  rt.db
+  rawDb(rt)
     .prepare('SELECT d.id, d.source, d.content_hash AS hash, group_concat(k.chunk_hash) AS chunks FROM documents d JOIN chunks k ON k.document_id = d.id WHERE d.collection = ? GROUP BY d.id ORDER BY d.source')
     .all('c');
 
@@ -153,7 +153,7 @@ describe('re-indexing a folder of 100 documents', () => {
     const rt = await runtime(e);
     await rt.ingestor.ingestPath(docs, { collection: 'c' });
     const oldId = documentId('c', 'notice-007.md');
-    const chunkIds = rt.db.prepare('SELECT id FROM chunks WHERE document_id = ? ORDER BY id').all(oldId);
+    const chunkIds = rawDb(rt).prepare('SELECT id FROM chunks WHERE document_id = ? ORDER BY id').all(oldId);
     mkdirSync(path.join(docs, 'archive'));
     renameSync(path.join(docs, 'notice-007.md'), path.join(docs, 'archive', 'ramps-2026.md'));
     e.texts.length = 0;
@@ -164,7 +164,7 @@ describe('re-indexing a folder of 100 documents', () => {
     // The same chunk rows, now under the document id of the new path.
     const newId = documentId('c', 'archive/ramps-2026.md');
     expect(rt.repo.getDocument(oldId)).toBeNull();
-    expect(rt.db.prepare('SELECT id FROM chunks WHERE document_id = ? ORDER BY id').all(newId)).toEqual(chunkIds);
+    expect(rawDb(rt).prepare('SELECT id FROM chunks WHERE document_id = ? ORDER BY id').all(newId)).toEqual(chunkIds);
     const reply = await rt.answerer.answer({ question: 'Which route do staff report accessible ramps faults on for notice 7?', collection: 'c', mode: 'hybrid' });
     expect(reply.abstained).toBe(false);
     expect(reply.citations.length).toBeGreaterThan(0);
@@ -197,7 +197,7 @@ describe('a full re-index', () => {
     }
     expect(rt.indexes.size('c')).toBe(before.chunks);
     // The shadow's chunks stay out of the FTS table, which every query's BM25 runs over, until the switch.
-    expect(rt.db.prepare('SELECT count(*) AS n FROM chunks_fts').get()).toEqual({ n: before.chunks });
+    expect(rawDb(rt).prepare('SELECT count(*) AS n FROM chunks_fts').get()).toEqual({ n: before.chunks });
     e.hold = null;
     release();
     const s = await run;
@@ -209,8 +209,8 @@ describe('a full re-index', () => {
     // Document ids are those of their paths, and the vector index holds exactly the collection's chunks.
     for (const d of rt.repo.listDocuments('c')) expect(d.id).toBe(documentId('c', d.source));
     expect(rt.indexes.size('c')).toBe(rt.repo.chunksOfCollection('c').length);
-    expect(rt.db.prepare('SELECT count(*) AS n FROM documents').get()).toEqual({ n: 100 });
-    expect(rt.db.prepare('SELECT count(*) AS n FROM chunks_fts').get()).toEqual({ n: rt.repo.getCollection('c')!.chunks });
+    expect(rawDb(rt).prepare('SELECT count(*) AS n FROM documents').get()).toEqual({ n: 100 });
+    expect(rawDb(rt).prepare('SELECT count(*) AS n FROM chunks_fts').get()).toEqual({ n: rt.repo.getCollection('c')!.chunks });
   });
 
   it('ends in the same documents and chunks as an incremental run, with renames and deletions counted', async () => {
@@ -281,7 +281,7 @@ describe('a full re-index', () => {
       writeFileSync(path.join(part, name), readFileSync(path.join(docs, name)));
     }
     await rt.ingestor.ingestPath(part, { collection: shadowCollectionName('c'), remember: false, allowEmbedderSwitch: true });
-    rt.db.prepare('UPDATE documents SET root = ? WHERE collection = ?').run(docs, shadowCollectionName('c'));
+    rawDb(rt).prepare('UPDATE documents SET root = ? WHERE collection = ?').run(docs, shadowCollectionName('c'));
     const e = countingEmbedder();
     const rt2 = await runtime(e);
     const s = await rt2.ingestor.reindex({ collection: 'c' }); // no --full: the shadow says a full run is owed

@@ -1,9 +1,11 @@
 import { readdirSync, readFileSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
-import { createDocumentService, createJobQueue, requeueAbandoned, withReindexLock } from '../../src/jobs/index.js';
+import { hostname } from 'node:os';
+import { requeueAbandoned, thisProcess, withReindexLock } from '../../src/jobs/index.js';
 import { silentLogger } from '../../src/logger.js';
-import { tempRuntime } from '../fixtures/runtime.js';
+import { createDocumentApi, createRuntime, jobContext } from '../../src/runtime.js';
+import { tempRuntime, rawDb } from '../fixtures/runtime.js';
 import { runSync, withDeadline } from '../fixtures/wait.js';
 
 const cleanups: (() => void | Promise<void>)[] = [];
@@ -15,11 +17,10 @@ afterEach(async () => {
 
 describe('the job queue', () => {
   it('runs an upload in a worker thread, and the main thread then finds the document', async () => {
-    const { rt, config, cleanup } = await tempRuntime();
+    const { rt, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
-    const queue = createJobQueue({ rt, config, logger: silentLogger(), mode: 'thread' });
+    const { queue, documents: docs } = createDocumentApi(rt, 'thread');
     cleanups.push(() => queue.close());
-    const docs = createDocumentService(rt, queue);
     const out = await docs.upload('c', 'tram-wifi.md', new TextEncoder().encode('# Wifi\n\nFree wifi is available on every tram in the Brackenfold fleet.'));
     expect(out.status).toBe('queued');
     await idle(queue);
@@ -30,11 +31,10 @@ describe('the job queue', () => {
   });
 
   it('runs a full re-index in the worker thread at low priority, and the main thread switches to the new index', async () => {
-    const { rt, config, cleanup } = await tempRuntime();
+    const { rt, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
-    const queue = createJobQueue({ rt, config, logger: silentLogger(), mode: 'thread' });
+    const { queue, documents: docs } = createDocumentApi(rt, 'thread');
     cleanups.push(() => queue.close());
-    const docs = createDocumentService(rt, queue);
     for (const [name, text] of [
       ['tram-wifi.md', '# Wifi\n\nFree wifi is available on every tram in the Brackenfold fleet.'],
       ['night-buses.md', '# Night buses\n\nNight buses leave Marrowgate bus station every 30 minutes after midnight.'],
@@ -64,15 +64,47 @@ describe('the job queue', () => {
   it('puts jobs left running by a dead process back in the queue, and gives up after 3 attempts', async () => {
     const { rt, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
+    const gone = { pid: deadPid(), host: hostname() };
     const a = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
     const b = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
+    const live = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' }); // held by this process, still running
     const cli = rt.jobs.create('ingest', 'c', { path: '/x' }); // a CLI run: not the queue's to resume
-    for (const j of [a, b, cli]) rt.jobs.start(j.id);
-    rt.db.prepare('UPDATE jobs SET attempts = 3 WHERE id = ?').run(b.id);
-    expect(requeueAbandoned(rt)).toBe(1);
+    for (const j of [a, b, cli]) rt.jobs.start(j.id, gone);
+    rt.jobs.start(live.id, thisProcess());
+    rawDb(rt).prepare('UPDATE jobs SET attempts = 3 WHERE id = ?').run(b.id);
+    expect(requeueAbandoned(jobContext(rt))).toBe(1);
     expect(rt.jobs.get(a.id)!.state).toBe('queued');
-    expect(rt.jobs.get(b.id)!.state).toBe('failed');
+    expect(rt.jobs.get(b.id)).toMatchObject({ state: 'failed', error: 'gave up after 3 attempts' });
+    expect(rt.jobs.get(live.id)!.state).toBe('running');
     expect(rt.jobs.get(cli.id)!.state).toBe('running');
+  });
+
+  it('fails, when a command opens the store, a job left running by a process that is gone, and leaves a live one alone', async () => {
+    const { rt, config, cleanup } = await tempRuntime();
+    cleanups.push(cleanup);
+    const gone = { pid: deadPid(), host: hostname() };
+    // As a crashed `sourcebound ingest` leaves its job: running, held by a process that no longer exists.
+    const crashed = rt.jobs.create('ingest', 'c', { path: '/docs' });
+    rt.jobs.start(crashed.id, gone);
+    const running = rt.jobs.create('ingest', 'c', { path: '/other' });
+    rt.jobs.start(running.id, thisProcess());
+    const remote = rt.jobs.create('reindex', 'c', {});
+    rt.jobs.start(remote.id, { pid: gone.pid, host: `not-${hostname()}` }); // another host's: cannot be checked
+    const legacy = rt.jobs.create('reindex', 'c', {});
+    rt.jobs.start(legacy.id, gone);
+    rawDb(rt).prepare('UPDATE jobs SET owner_pid = NULL, owner_host = NULL WHERE id = ?').run(legacy.id); // written before owners
+    const queued = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
+    rt.jobs.start(queued.id, gone); // the queue's: put back by the server, not failed
+    expect(rt.jobs.get(crashed.id)!.state).toBe('running');
+
+    const again = await createRuntime(config, silentLogger());
+    cleanups.push(() => again.close());
+    expect(again.jobs.get(crashed.id)).toMatchObject({ state: 'failed', error: `abandoned: process ${gone.pid} on ${gone.host} ended before the job finished` });
+    expect(again.jobs.get(crashed.id)!.finishedAt).not.toBeNull();
+    expect(again.jobs.get(legacy.id)).toMatchObject({ state: 'failed', error: 'abandoned: the process that ran it ended before the job finished' });
+    expect(again.jobs.get(running.id)!.state).toBe('running');
+    expect(again.jobs.get(remote.id)!.state).toBe('running');
+    expect(again.jobs.get(queued.id)!.state).toBe('running');
   });
 });
 
@@ -98,3 +130,8 @@ describe('the re-index lock', () => {
     expect(await withReindexLock(dataDir, async () => 'ran')).toBe('ran');
   });
 });
+
+/** The pid of a process that has ended: run to completion before its pid is used. */
+function deadPid(): number {
+  return runSync(process.execPath, ['-e', '0'], { what: 'a process that exits at once' }).pid!;
+}

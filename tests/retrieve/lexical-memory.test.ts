@@ -3,12 +3,11 @@ import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import type { Embedder } from '../../src/embed/types.js';
-import { allowedChunkIds } from '../../src/retrieve/filter.js';
-import { createLexicalMemory, phraseCounts, type LexicalMemory } from '../../src/retrieve/lexical-memory.js';
-import { toWeightedMatch, type WeightedTerm } from '../../src/retrieve/query-text.js';
+import { createLexicalMemory, type LexicalMemory } from '../../src/retrieve/lexical-memory.js';
+import { phraseCounts, toWeightedMatch, type WeightedTerm } from '../../src/retrieve/query-text.js';
 import { DEFAULT_RM3 } from '../../src/retrieve/rm3.js';
 import { createRetriever } from '../../src/retrieve/retriever.js';
-import { createRepository, openDatabase, type Db, type FtsWeights, type Repository, type VectorIndexes } from '../../src/store/index.js';
+import { openStore, type FtsWeights, type Repository, type SqliteStore, type VectorIndexes } from '../../src/store/index.js';
 import { tempRuntime } from '../fixtures/runtime.js';
 import { mulberry32 } from '../fixtures/random.js';
 import { waitFor } from '../fixtures/wait.js';
@@ -117,25 +116,23 @@ describe('phrase counts', () => {
 });
 
 describe('in-memory BM25 index against FTS5', () => {
-  let db: Db;
-  let repo: Repository;
+  let repo: SqliteStore;
   let mem: LexicalMemory;
 
   beforeEach(() => {
-    db = openDatabase(':memory:');
-    repo = createRepository(db);
+    repo = openStore(':memory:');
     for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
-    mem = createLexicalMemory(db);
+    mem = createLexicalMemory(repo);
   });
   afterEach(() => {
     mem.close();
-    db.close();
+    repo.close();
   });
 
   const compare = (collection: string, terms: WeightedTerm[], maxRepeat: number, limit: number, w: FtsWeights, filter?: { documentIds?: string[]; metadata?: Record<string, string> }): void => {
     const match = toWeightedMatch(terms, { maxRepeat });
     const want = match ? repo.searchFts(collection, match, limit, w, filter) : [];
-    const allowed = filter ? allowedChunkIds(db, collection, filter) : undefined;
+    const allowed = filter ? repo.chunkIdsMatching(collection, filter) : undefined;
     expectSameRanking(mem.search(collection, phraseCounts(terms, { maxRepeat }), limit, w, allowed), want, limit);
   };
 
@@ -211,9 +208,8 @@ describe('retriever with the in-memory lexical engine', () => {
   const noIndexes = {} as VectorIndexes;
 
   it('returns the same lexical hits as the FTS5 engine, with RM3 on and off, with filters', async () => {
-    const db = openDatabase(':memory:');
+    const repo = openStore(':memory:');
     try {
-      const repo = createRepository(db);
       for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
       generate(repo, 21, 300);
       const rand = mulberry32(7);
@@ -236,16 +232,15 @@ describe('retriever with the in-memory lexical engine', () => {
         }
       }
     } finally {
-      db.close();
+      repo.close();
     }
   });
 
   it('builds in the background on a second connection and never answers from a half-built index', async () => {
     const dir = mkdtempSync(path.join(tmpdir(), 'sb-lexmem-'));
-    const db = openDatabase(path.join(dir, 'store.db'));
-    const mem = createLexicalMemory(db, { background: true, minRebuildGapMs: 0 });
+    const repo = openStore(path.join(dir, 'store.db'));
+    const mem = createLexicalMemory(repo, { background: true, minRebuildGapMs: 0 });
     try {
-      const repo = createRepository(db);
       for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
       generate(repo, 5, 200);
       const q = phraseCounts([{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }], { maxRepeat: 6 });
@@ -265,7 +260,7 @@ describe('retriever with the in-memory lexical engine', () => {
       expect(mem.stats().builds).toBe(2);
     } finally {
       mem.close();
-      db.close();
+      repo.close();
       rmSync(dir, { recursive: true, force: true });
     }
   });

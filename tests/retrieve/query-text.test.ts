@@ -1,7 +1,11 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { createRepository, openDatabase } from '../../src/store/index.js';
-import { contentTerms, termCounts, toMatchExpression, toWeightedMatch } from '../../src/retrieve/query-text.js';
+import { openDatabase, SqliteStore } from '../../src/store/index.js';
+import { termCounts, toWeightedMatch } from '../../src/retrieve/query-text.js';
+
+/** The content terms of a question, each once, as one FTS5 expression (as the retriever builds it, repeats aside). */
+const contentTerms = (text: string): string[] => [...termCounts(text).keys()];
+const toMatchExpression = (text: string): string | null => toWeightedMatch(contentTerms(text).map((term) => ({ term, weight: 1 })), { maxRepeat: 1 });
 
 describe('query text to FTS5', () => {
   it('drops stop words and keeps the content words', () => {
@@ -18,7 +22,7 @@ describe('query text to FTS5', () => {
 
   it('never yields an expression FTS5 rejects, whatever the user types (property test)', () => {
     const db = openDatabase(':memory:');
-    const repo = createRepository(db);
+    const repo = new SqliteStore(db);
     repo.ensureCollection('c');
     fc.assert(
       fc.property(fc.string({ unit: 'binary', maxLength: 200 }), (text) => {
@@ -43,7 +47,7 @@ describe('weighted FTS5 expressions', () => {
 
   it('repeating a phrase doubles its BM25 contribution in FTS5, which is what carries the weight', () => {
     const db = openDatabase(':memory:');
-    const repo = createRepository(db);
+    const repo = new SqliteStore(db);
     repo.ensureCollection('c');
     const text = 'tram fare';
     repo.replaceDocument(

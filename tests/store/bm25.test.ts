@@ -1,6 +1,5 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { createRepository, openDatabase, type Db, type Repository } from '../../src/store/index.js';
-import { ftsColumns } from '../../src/store/repository.js';
+import { ftsColumns, openDatabase, SqliteStore, type Db, type Repository } from '../../src/store/index.js';
 
 // BM25 as published by Robertson and Zaragoza, "The Probabilistic Relevance Framework: BM25 and
 // Beyond" (Foundations and Trends in IR, 2009), eq. 3.15 with the Robertson/Sparck Jones idf without
@@ -53,7 +52,7 @@ describe('FTS5 BM25 against the published formula', () => {
 
   beforeEach(() => {
     db = openDatabase(':memory:');
-    repo = createRepository(db);
+    repo = new SqliteStore(db);
     repo.ensureCollection('c');
     corpus.forEach((text, i) => {
       repo.replaceDocument(
@@ -129,7 +128,7 @@ describe('FTS columns of a chunk', () => {
 
   it('weights a title match by the title column weight (FTS5 multiplies tf by the column weight)', () => {
     const db = openDatabase(':memory:');
-    const repo = createRepository(db);
+    const repo = new SqliteStore(db);
     repo.ensureCollection('c');
     const add = (id: string, title: string, text: string): void => {
       repo.replaceDocument(

@@ -1,5 +1,5 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { createRepository, openDatabase, type Db, type Repository } from '../../src/store/index.js';
+import { openDatabase, SqliteStore, type Db, type Repository } from '../../src/store/index.js';
 import { toWeightedMatch } from '../../src/retrieve/query-text.js';
 import { mulberry32 } from '../fixtures/random.js';
 
@@ -25,7 +25,7 @@ describe('searchFts ranks in FTS5 before joining', () => {
   let repo: Repository;
   beforeEach(() => {
     db = openDatabase(':memory:');
-    repo = createRepository(db);
+    repo = new SqliteStore(db);
   });
   afterEach(() => db.close());
 

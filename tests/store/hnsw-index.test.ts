@@ -3,7 +3,7 @@ import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { createRepository, createVectorIndexes, openDatabase, type Db, type Repository } from '../../src/store/index.js';
+import { createVectorIndexes, openDatabase, SqliteStore, type Db, type Repository } from '../../src/store/index.js';
 
 const DIMS = 8;
 const params = { m: 8, efConstruction: 64, efSearch: 64 };
@@ -40,7 +40,7 @@ describe('vector index files', () => {
   beforeEach(() => {
     dir = mkdtempSync(path.join(tmpdir(), 'sb-hnsw-'));
     db = openDatabase(path.join(dir, 'db.sqlite'));
-    repo = createRepository(db);
+    repo = new SqliteStore(db);
     repo.ensureCollection('c');
   });
   afterEach(() => {

@@ -2,7 +2,7 @@
 // before they were recorded.
 import Database from 'better-sqlite3';
 import { describe, expect, it } from 'vitest';
-import { MIGRATIONS, createRepository, migrate, openDatabase } from '../../src/store/index.js';
+import { MIGRATIONS, migrate, openDatabase, SqliteStore } from '../../src/store/index.js';
 
 const DOC = {
   collection: 'c',
@@ -21,7 +21,7 @@ const DOC = {
 
 describe('chunk page breaks in the store', () => {
   it('reads back the page breaks a chunk was written with, and none for a chunk on one page', () => {
-    const repo = createRepository(openDatabase(':memory:'));
+    const repo = new SqliteStore(openDatabase(':memory:'));
     repo.ensureCollection('c');
     const { chunkIds } = repo.replaceDocument(
       { ...DOC, id: 'd1' },
@@ -57,7 +57,7 @@ describe('chunk page breaks in the store', () => {
     );
     expect(migrate(db)).toBe(MIGRATIONS.length);
     expect(db.prepare('SELECT page_breaks FROM chunks WHERE id = ?').pluck().get(id)).toBeNull();
-    const view = createRepository(db).chunkViews([id]).get(id);
+    const view = new SqliteStore(db).chunkViews([id]).get(id);
     expect(view).toMatchObject({ pageStart: 1, pageEnd: 2, pageBreaks: [], text: DOC.text });
   });
 });

@@ -1,11 +1,12 @@
-// The job worker thread: its own database connection, embedder and indexes, so ingestion never blocks
-// the event loop that serves queries. It claims queued jobs one at a time until told to stop.
+// The job worker thread, started by the job queue (src/jobs/queue.ts, wired in src/runtime.ts): its own store
+// connection, embedder and indexes, so ingestion never blocks the event loop that serves queries. It claims
+// queued jobs one at a time until told to stop.
 import { platform, setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
-import type { Config } from '../config/index.js';
-import { createLogger } from '../logger.js';
-import { createRuntime } from '../runtime.js';
-import { claimNext, runOne } from './queue.js';
+import type { Config } from './config/index.js';
+import { claimNext, runOne } from './jobs/index.js';
+import { createLogger } from './logger.js';
+import { createRuntime, jobContext } from './runtime.js';
 
 const config = (workerData as { config: Config }).config;
 // On Linux a nice value belongs to one thread, so this lowers only the job thread: when ingest and queries
@@ -20,6 +21,7 @@ if (platform() === 'linux') {
 }
 const logger = createLogger(config.logLevel).child({ thread: 'jobs' });
 const rt = await createRuntime(config, logger, { processMetrics: false });
+const ctx = jobContext(rt);
 let stopping = false;
 let running = false;
 let wakeAgain = false;
@@ -33,8 +35,8 @@ async function drain(): Promise<void> {
   try {
     do {
       wakeAgain = false;
-      for (let job = claimNext(rt); job && !stopping; job = claimNext(rt)) {
-        await runOne(rt, job, logger);
+      for (let job = claimNext(ctx); job && !stopping; job = claimNext(ctx)) {
+        await runOne(ctx, job, logger);
         parentPort?.postMessage({ done: job.id });
       }
     } while (wakeAgain && !stopping);

@@ -1,42 +1,8 @@
 // Ratings of answers given at the reference desk: what was asked, what the service said, which
 // sources it cited, and whether the member of staff found it helpful.
 
-import type { Db } from '../store/index.js';
-
-export interface RatedSource {
-  n: number;
-  documentId: string;
-  source: string;
-  title: string;
-  page: number | null;
-  section: string;
-  quote: string;
-}
-
-export interface NewRating {
-  collection: string;
-  keyId: string | null;
-  question: string;
-  /** The standalone question the service answered, when it rewrote a follow-up. */
-  answeredQuestion: string | null;
-  history: { role: 'user' | 'assistant'; content: string }[];
-  answer: string;
-  abstained: boolean;
-  sources: RatedSource[];
-  helpful: boolean;
-  comment: string | null;
-}
-
-export interface Rating extends NewRating {
-  id: number;
-  createdAt: string;
-}
-
-export interface RatingStore {
-  add(r: NewRating): Rating;
-  /** Oldest first; narrowed to one collection when given. */
-  list(opts?: { collection?: string }): Rating[];
-}
+import type { NewRating, RatedSource, Rating, RatingStore } from '../types.js';
+import type { Db } from './db.js';
 
 interface Row {
   id: number;
@@ -68,7 +34,7 @@ const fromRow = (r: Row): Rating => ({
   createdAt: r.created_at,
 });
 
-export function createRatingStore(db: Db, now: () => Date = () => new Date()): RatingStore {
+export function sqliteRatings(db: Db, now: () => Date = () => new Date()): RatingStore {
   const insert = db.prepare(
     `INSERT INTO answer_ratings (collection, key_id, question, answered_question, history, answer, abstained, sources, helpful, comment, created_at)
      VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,

@@ -88,7 +88,7 @@ export const MIGRATIONS: readonly string[] = [
   );
   CREATE INDEX jobs_by_state ON jobs(state, created_at);
   `,
-  // 2: re-fill the FTS columns without repeating the title (see ftsColumns in repository.ts). SQL cannot run
+  // 2: re-fill the FTS columns without repeating the title (see ftsColumns in fts-columns.ts). SQL cannot run
   // that function, so this covers the shape every loader produces: the path's first heading dropped when it
   // is the title, and the chunk's own heading line (the path's last entry) cut from the start of the body.
   // Chunks written from now on go through ftsColumns itself.
@@ -132,5 +132,11 @@ export const MIGRATIONS: readonly string[] = [
   // (the pipeline version changed with this migration, so the next re-index does that).
   `
   ALTER TABLE chunks ADD COLUMN page_breaks TEXT;
+  `,
+  // 5: the process that holds a running job (its lease), so that a job whose process is gone can be told from
+  // one still running in another process (a CLI ingest beside the server). NULL for rows written before.
+  `
+  ALTER TABLE jobs ADD COLUMN owner_pid INTEGER;
+  ALTER TABLE jobs ADD COLUMN owner_host TEXT;
   `,
 ];

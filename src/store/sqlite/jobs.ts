@@ -1,0 +1,107 @@
+// Jobs and their leases in SQLite. A running job records the process holding it, so a job whose process is gone
+// (a crashed server or CLI run) can be told from one still running elsewhere.
+
+import { randomUUID } from 'node:crypto';
+import type { JobOwner, JobRecord, JobState, JobStore } from '../types.js';
+import type { Db } from './db.js';
+
+/** Jobs the server's queue runs (uploads and re-indexes through the API); others are CLI runs and seeds. */
+const QUEUED_KIND = "json_extract(payload, '$.via') = 'api'";
+
+const ownerOf = (r: Record<string, unknown>): JobOwner | null =>
+  typeof r.owner_pid === 'number' && typeof r.owner_host === 'string' ? { pid: r.owner_pid, host: r.owner_host } : null;
+
+const toJob = (r: Record<string, unknown>): JobRecord => ({
+  id: r.id as string,
+  kind: r.kind as string,
+  collection: (r.collection as string | null) ?? null,
+  state: r.state as JobState,
+  attempts: r.attempts as number,
+  payload: JSON.parse(r.payload as string) as unknown,
+  result: r.result ? (JSON.parse(r.result as string) as unknown) : null,
+  error: (r.error as string | null) ?? null,
+  createdAt: r.created_at as string,
+  startedAt: (r.started_at as string | null) ?? null,
+  finishedAt: (r.finished_at as string | null) ?? null,
+  owner: ownerOf(r),
+});
+
+export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobStore {
+  const iso = (): string => clock().toISOString();
+  const st = {
+    insert: db.prepare('INSERT INTO jobs (id, kind, collection, state, payload, created_at) VALUES (?, ?, ?, ?, ?, ?)'),
+    start: db.prepare("UPDATE jobs SET state = 'running', attempts = attempts + 1, started_at = ?, owner_pid = ?, owner_host = ? WHERE id = ?"),
+    succeed: db.prepare("UPDATE jobs SET state = 'succeeded', result = ?, error = NULL, finished_at = ? WHERE id = ?"),
+    fail: db.prepare("UPDATE jobs SET state = 'failed', error = ?, result = ?, finished_at = ? WHERE id = ?"),
+    get: db.prepare('SELECT * FROM jobs WHERE id = ?'),
+    counts: db.prepare('SELECT state, count(*) AS count FROM jobs GROUP BY state'),
+    // json_each binds the list as one parameter, however long it is.
+    countsOf: db.prepare('SELECT state, count(*) AS count FROM jobs WHERE collection IN (SELECT value FROM json_each(?)) GROUP BY state'),
+    pending: db.prepare(`SELECT count(*) FROM jobs WHERE state IN ('queued', 'running') AND ${QUEUED_KIND}`).pluck(),
+    claim: db.prepare(`
+      UPDATE jobs SET state = 'running', attempts = attempts + 1, started_at = ?, owner_pid = ?, owner_host = ?
+      WHERE id = (SELECT id FROM jobs WHERE state = 'queued' ORDER BY created_at, rowid LIMIT 1) RETURNING id`),
+    running: db.prepare(`SELECT id, attempts, owner_pid, owner_host FROM jobs WHERE state = 'running' AND coalesce(${QUEUED_KIND}, 0) = ?`),
+    requeue: db.prepare("UPDATE jobs SET state = 'queued' WHERE id = ? AND state = 'running'"),
+    abandon: db.prepare("UPDATE jobs SET state = 'failed', error = ?, finished_at = ? WHERE id = ? AND state = 'running'"),
+  };
+  /** Running jobs of the queue (`queued` true) or not, whose owner is gone. */
+  const abandoned = (queued: boolean, isGone: (o: JobOwner | null) => boolean) =>
+    (st.running.all(queued ? 1 : 0) as Record<string, unknown>[])
+      .map((r) => ({ id: r.id as string, attempts: r.attempts as number, owner: ownerOf(r) }))
+      .filter((r) => isGone(r.owner));
+
+  const jobs: JobStore = {
+    create(kind, collection, payload = {}) {
+      const id = randomUUID();
+      st.insert.run(id, kind, collection, 'queued', JSON.stringify(payload), iso());
+      return jobs.get(id)!;
+    },
+    start(id, owner) {
+      st.start.run(iso(), owner.pid, owner.host, id);
+    },
+    succeed(id, result) {
+      st.succeed.run(JSON.stringify(result), iso(), id);
+    },
+    fail(id, error, result) {
+      st.fail.run(error, result === undefined ? null : JSON.stringify(result), iso(), id);
+    },
+    get(id) {
+      const r = st.get.get(id) as Record<string, unknown> | undefined;
+      return r ? toJob(r) : null;
+    },
+    counts(collections) {
+      const rows = collections === undefined ? st.counts.all() : st.countsOf.all(JSON.stringify(collections));
+      return rows as { state: JobState; count: number }[];
+    },
+    pendingQueued() {
+      return st.pending.get() as number;
+    },
+    claimNext(owner) {
+      const row = st.claim.get(iso(), owner.pid, owner.host) as { id: string } | undefined;
+      return row ? jobs.get(row.id) : null;
+    },
+    requeueAbandoned(isGone, maxAttempts) {
+      return db
+        .transaction(() => {
+          let requeued = 0;
+          for (const j of abandoned(true, isGone)) {
+            if (j.attempts >= maxAttempts) st.abandon.run(`gave up after ${maxAttempts} attempts`, iso(), j.id);
+            else requeued += st.requeue.run(j.id).changes;
+          }
+          return requeued;
+        })
+        .immediate();
+    },
+    failAbandoned(isGone, reason) {
+      return db
+        .transaction(() => {
+          let failed = 0;
+          for (const j of abandoned(false, isGone)) failed += st.abandon.run(reason(j.owner), iso(), j.id).changes;
+          return failed;
+        })
+        .immediate();
+    },
+  };
+  return jobs;
+}

@@ -1,0 +1,48 @@
+// The SQLite implementation of the store: one database file (WAL mode) holds collections, documents, chunks,
+// their FTS5 rows and vectors, jobs and ratings (docs/architecture.md, "Storage").
+
+import type { JobStore, RatingStore, Repository, Store } from '../types.js';
+import { sqliteChunks, sqliteFtsSearch } from './chunks.js';
+import { sqliteCollections, sqliteDocuments } from './corpus.js';
+import { openDatabase, type Db } from './db.js';
+import { sqliteJobs } from './jobs.js';
+import { sqliteLexical } from './lexical.js';
+import { sqliteRatings } from './ratings.js';
+
+// The corpus methods are built per part (corpus.ts, chunks.ts, lexical.ts) and installed on the instance.
+export interface SqliteStore extends Repository {}
+
+export class SqliteStore implements Store {
+  readonly jobs: JobStore;
+  readonly ratings: RatingStore;
+
+  /** Takes over an open connection (see openDatabase); `close()` closes it. */
+  constructor(readonly db: Db) {
+    const collections = sqliteCollections(db);
+    const corpus: Repository = {
+      ...collections,
+      ...sqliteDocuments(db, (c) => collections.bumpGeneration(c)),
+      ...sqliteChunks(db),
+      ...sqliteLexical(db),
+      searchFts: sqliteFtsSearch(db, (c) => collections.collectionState(c) !== null),
+    };
+    Object.assign(this, corpus);
+    this.jobs = sqliteJobs(db);
+    this.ratings = sqliteRatings(db);
+  }
+
+  async backup(file: string): Promise<void> {
+    // SQLite's online backup API: a consistent snapshot even while another connection writes (WAL mode).
+    await this.db.backup(file);
+  }
+
+  close(): void {
+    if (this.db.open) this.db.close();
+  }
+}
+
+/** Opens (creating and migrating if needed) the store in `file`, or in memory for ':memory:'. */
+export function openStore(file: string, opts: { readonly?: boolean } = {}): SqliteStore {
+  return new SqliteStore(openDatabase(file, opts));
+}
+
