@@ -3,7 +3,7 @@
 import { platform, setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
 import type { Config } from '../config/index.js';
-import { createLogger } from '../logger.js';
+import { configuredLogger } from '../logger.js';
 import { createRuntime } from '../runtime.js';
 import { claimNext, runOne } from './queue.js';
 
@@ -18,7 +18,7 @@ if (platform() === 'linux') {
     /* not permitted: jobs run at normal priority */
   }
 }
-const logger = createLogger(config.logLevel).child({ thread: 'jobs' });
+const logger = configuredLogger(config).child({ thread: 'jobs' });
 const rt = await createRuntime(config, logger, { processMetrics: false });
 let stopping = false;
 let running = false;
