@@ -15,6 +15,7 @@ import { registerDeskAssets } from './desk-static.js';
 import { registerDeskRoutes } from './desk-routes.js';
 import type { DeskService } from './desk-service.js';
 import type { DocumentService } from '../jobs/index.js';
+import { registerOpenApiRoute } from './openapi.js';
 import { searchBody } from './schemas.js';
 import { parse, withDeadline } from './util.js';
 
@@ -172,6 +173,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     if (deps.documents) await registerDocumentRoutes(r, { config, documents: deps.documents });
     if (deps.desk) registerDeskRoutes(r, { config, desk: deps.desk });
     registerDeskAssets(r, deps.deskAssetsDir !== undefined ? { dir: deps.deskAssetsDir } : {});
+    registerOpenApiRoute(r, app, config);
   });
 
   return app;
