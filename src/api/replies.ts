@@ -40,9 +40,8 @@ export const claim = z.object({
   reason: z.enum(['citation', 'planted', 'overlap', 'figure', 'polarity']).optional().describe('the check an unsupported sentence failed'),
 });
 
-/** A numbered context passage: the `sources` event of a streamed answer, and what an abstention offers. */
-export const sourceSummary = z.object({
-  n: z.number().int().min(1),
+/** Where a passage stands: its document, and the pages and section it spans. */
+const passageOf = {
   documentId: z.string(),
   source: z.string(),
   title: z.string(),
@@ -50,9 +49,10 @@ export const sourceSummary = z.object({
   pageEnd: z.number().int().nullable(),
   section: z.string(),
   effectiveDate: z.string().nullable(),
-  version: z.string().nullable().optional(),
-  text: z.string(),
-});
+};
+
+/** A numbered context passage: the `sources` event of a streamed answer, and what an abstention offers. */
+export const sourceSummary = z.object({ n: z.number().int().min(1), ...passageOf, version: z.string().nullable().optional(), text: z.string() });
 
 /** POST /v1/answer: the JSON reply, and the `done` event of a streamed one. */
 export const answerReply = z.object({
@@ -79,19 +79,7 @@ export const streamErrorEvent = z.object({ error: z.object({ code: z.string(), m
 
 export const searchReply = z.object({
   results: z.array(
-    z.object({
-      chunkId: z.number().int(),
-      documentId: z.string(),
-      source: z.string(),
-      title: z.string(),
-      page: z.number().int().nullable(),
-      pageEnd: z.number().int().nullable(),
-      section: z.string(),
-      effectiveDate: z.string().nullable(),
-      version: z.string().nullable(),
-      text: z.string(),
-      score: z.number(),
-    }),
+    z.object({ chunkId: z.number().int(), ...passageOf, version: z.string().nullable(), text: z.string(), score: z.number() }),
   ),
 });
 
