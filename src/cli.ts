@@ -4,8 +4,7 @@
 // error; a problem is one line, and the exit status says what happened (EXIT in src/cli/context.ts).
 
 import { realpathSync } from 'node:fs';
-import { createContext, EXIT, type CliIo, type Env } from './cli/context.js';
-import { CliError } from './cli/context.js';
+import { CliError, createContext, EXIT, type CliIo, type Env } from './cli/context.js';
 import { buildProgram, commandPath, isCommanderError } from './cli/program.js';
 import { SourceboundError } from './errors.js';
 import type { LogFormat } from './logger.js';
@@ -14,7 +13,10 @@ const processIo: CliIo = {
   out: (text) => void process.stdout.write(text),
   err: (text) => void process.stderr.write(text),
   errIsTTY: Boolean(process.stderr.isTTY),
-  errColumns: process.stderr.columns ?? 0,
+  // Read at each use: a terminal can be resized while a command runs.
+  get errColumns() {
+    return process.stderr.columns ?? 0;
+  },
 };
 
 export async function main(argv: string[], env: Env, io: CliIo = processIo): Promise<number> {
