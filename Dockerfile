@@ -29,6 +29,7 @@ ENV NODE_ENV=production \
     HOST=0.0.0.0 \
     PORT=8080 \
     SOURCEBOUND_DATA_DIR=/data \
+    SOURCEBOUND_LOG_FORMAT=json \
     SOURCEBOUND_MODEL_DIR=/app/models
 WORKDIR /app
 COPY --from=build /app/node_modules ./node_modules

@@ -5,7 +5,7 @@ import { platform, setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
 import type { Config } from './config/index.js';
 import { claimNext, runOne } from './jobs/index.js';
-import { createLogger } from './logger.js';
+import { configuredLogger } from './logger.js';
 import { createRuntime, jobContext } from './runtime.js';
 
 const config = (workerData as { config: Config }).config;
@@ -19,7 +19,7 @@ if (platform() === 'linux') {
     /* not permitted: jobs run at normal priority */
   }
 }
-const logger = createLogger(config.logLevel).child({ thread: 'jobs' });
+const logger = configuredLogger(config).child({ thread: 'jobs' });
 const rt = await createRuntime(config, logger, { processMetrics: false });
 const ctx = jobContext(rt);
 let stopping = false;

@@ -9,6 +9,7 @@ import type { AnswerRequest, AppDeps } from './deps.js';
 import { registerDocumentRoutes } from './documents-route.js';
 import { registerDeskAssets } from './desk-static.js';
 import { registerDeskRoutes } from './desk-routes.js';
+import { registerOpenApiRoute } from './openapi.js';
 import { searchBody } from './schemas.js';
 import { parse, withDeadline } from './util.js';
 
@@ -135,6 +136,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     if (deps.documents) await registerDocumentRoutes(r, { config, documents: deps.documents });
     if (deps.desk) registerDeskRoutes(r, { config, desk: deps.desk });
     registerDeskAssets(r, deps.deskAssetsDir !== undefined ? { dir: deps.deskAssetsDir } : {});
+    registerOpenApiRoute(r, app, config);
   });
 
   return app;

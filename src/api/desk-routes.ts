@@ -1,44 +1,13 @@
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
-import { z } from 'zod';
 import type { Config } from '../config/index.js';
 import { grantedCollection, keyAccess, SIGNED_LINK } from './access.js';
 import type { DeskService } from './desk-service.js';
-import { collectionName, historyTurn } from './schemas.js';
+import { passageQuery, ratingBody } from './schemas.js';
 import { parse } from './util.js';
 
 export interface DeskRouteContext {
   config: Readonly<Config>;
   desk: DeskService;
-}
-
-const offset = z.coerce.number().int().min(0).max(2 ** 31);
-const passageQuery = z.object({ start: offset, end: offset }).strict();
-
-// What a client sends of each citation; other citation fields are accepted and dropped.
-const ratedSource = z.object({
-  n: z.number().int().min(1).max(1000),
-  documentId: z.string().min(1).max(200),
-  source: z.string().max(1000),
-  title: z.string().max(1000),
-  page: z.number().int().min(1).nullable(),
-  section: z.string().max(2000),
-  quote: z.string().max(10_000),
-});
-
-export function ratingBody(limits: { questionMaxChars: number; historyMaxTurns: number }) {
-  return z
-    .object({
-      collection: collectionName.optional(),
-      question: z.string().trim().min(1, 'question must not be empty').max(limits.questionMaxChars),
-      answeredQuestion: z.string().trim().max(limits.questionMaxChars).optional(),
-      history: z.array(historyTurn).max(limits.historyMaxTurns).optional(),
-      answer: z.string().max(20_000),
-      abstained: z.boolean(),
-      sources: z.array(ratedSource).max(100).optional(),
-      helpful: z.boolean(),
-      comment: z.string().trim().max(2_000).optional(),
-    })
-    .strict();
 }
 
 /** The granted collection (from the path) and the document id. */

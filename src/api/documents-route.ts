@@ -1,12 +1,11 @@
 import multipart from '@fastify/multipart';
 import type { FastifyInstance } from 'fastify';
-import { z } from 'zod';
 import type { Config } from '../config/index.js';
 import { SourceboundError } from '../errors.js';
 import type { DocumentService, UploadOutcome } from '../jobs/index.js';
 import { grantedCollection, keyAccess } from './access.js';
 import { mayUseCollection } from './auth.js';
-import { collectionName } from './schemas.js';
+import { reindexBody, textUpload } from './schemas.js';
 import { parse } from './util.js';
 
 export interface DocumentRouteContext {
@@ -16,16 +15,6 @@ export interface DocumentRouteContext {
 
 // JSON uploads hold the whole text in memory: keep them modest; files of any allowed size go as multipart.
 const JSON_UPLOAD_MAX = 10 * 1024 * 1024;
-
-const textUpload = z
-  .object({
-    name: z.string().min(1).max(200),
-    text: z.string().min(1, 'text must not be empty'),
-    metadata: z.record(z.string().regex(/^[A-Za-z][A-Za-z0-9_-]{0,40}$/), z.string().max(500)).optional(),
-  })
-  .strict();
-
-const reindexBody = z.object({ collection: collectionName.optional(), full: z.boolean().optional() }).strict();
 
 function reply202(outcome: UploadOutcome): { code: number; body: Record<string, unknown> } {
   if (outcome.status === 'unchanged') {

@@ -1,6 +1,8 @@
 import { z } from 'zod';
 
-// One schema per body: validation, TypeScript types and the OpenAPI description all come from here.
+// One schema per request body and query: validation, TypeScript types and the OpenAPI description
+// (src/api/openapi.ts) all come from here; the replies' schemas are in replies.ts. This file imports
+// nothing but zod: the desk page takes its types from it (type-only, so the page carries no zod).
 
 export const COLLECTION_NAME = /^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$/;
 
@@ -53,6 +55,48 @@ export function answerBody(limits: { questionMaxChars: number; kMax: number; his
       filter: searchFilter.optional(),
       // Server-sent events (sources, delta, done) instead of one JSON reply.
       stream: z.boolean().optional(),
+    })
+    .strict();
+}
+
+/** A text document sent as JSON (files of any allowed type go as multipart). */
+export const textUpload = z
+  .object({
+    name: z.string().min(1).max(200),
+    text: z.string().min(1, 'text must not be empty'),
+    metadata: z.record(z.string().regex(/^[A-Za-z][A-Za-z0-9_-]{0,40}$/), z.string().max(500)).optional(),
+  })
+  .strict();
+
+export const reindexBody = z.object({ collection: collectionName.optional(), full: z.boolean().optional() }).strict();
+
+const offset = z.coerce.number().int().min(0).max(2 ** 31);
+/** The span of a passage, in characters of the document's text. */
+export const passageQuery = z.object({ start: offset, end: offset }).strict();
+
+// What a client sends of each citation; other citation fields are accepted and dropped.
+export const ratedSource = z.object({
+  n: z.number().int().min(1).max(1000),
+  documentId: z.string().min(1).max(200),
+  source: z.string().max(1000),
+  title: z.string().max(1000),
+  page: z.number().int().min(1).nullable(),
+  section: z.string().max(2000),
+  quote: z.string().max(10_000),
+});
+
+export function ratingBody(limits: { questionMaxChars: number; historyMaxTurns: number }) {
+  return z
+    .object({
+      collection: collectionName.optional(),
+      question: z.string().trim().min(1, 'question must not be empty').max(limits.questionMaxChars),
+      answeredQuestion: z.string().trim().max(limits.questionMaxChars).optional(),
+      history: z.array(historyTurn).max(limits.historyMaxTurns).optional(),
+      answer: z.string().max(20_000),
+      abstained: z.boolean(),
+      sources: z.array(ratedSource).max(100).optional(),
+      helpful: z.boolean(),
+      comment: z.string().trim().max(2_000).optional(),
     })
     .strict();
 }

@@ -22,6 +22,7 @@ export const ENV_BINDINGS: readonly EnvBinding[] = [
   { name: 'HOST', path: ['server', 'host'], kind: 'string' },
   { name: 'SOURCEBOUND_DATA_DIR', path: ['dataDir'], kind: 'string' },
   { name: 'SOURCEBOUND_LOG_LEVEL', path: ['logLevel'], kind: 'string' },
+  { name: 'SOURCEBOUND_LOG_FORMAT', path: ['logFormat'], kind: 'string' },
   { name: 'SOURCEBOUND_EMBEDDER', path: ['embedding', 'provider'], kind: 'string' },
   { name: 'SOURCEBOUND_MODEL', path: ['embedding', 'model'], kind: 'string' },
   { name: 'SOURCEBOUND_MODEL_DIR', path: ['embedding', 'modelDir'], kind: 'string' },

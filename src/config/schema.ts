@@ -182,6 +182,10 @@ export const configSchema = z
       .enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'])
       .default('info')
       .describe('Log level'),
+    logFormat: z
+      .enum(['text', 'json'])
+      .default('text')
+      .describe('Log lines on stderr: "text" for people, "json" (one object a line) for log collectors; `--log` overrides'),
     server,
     seed,
     embedding,

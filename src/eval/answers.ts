@@ -13,7 +13,7 @@ import { tmpdir } from 'node:os';
 import path from 'node:path';
 import type { AnswerExplanation, HistoryTurn } from '../answer/index.js';
 import { loadConfig } from '../config/index.js';
-import { createLogger } from '../logger.js';
+import { configuredLogger } from '../logger.js';
 import { createRuntime } from '../runtime.js';
 import type { AnswerResult, Citation } from '../types.js';
 import { readJsonl } from './data.js';
@@ -296,7 +296,7 @@ export async function evaluateAnswers(opts: EvaluateAnswersOptions): Promise<Ans
   const folders = collectionFolders(questions, opts.docs);
   const dataDir = mkdtempSync(path.join(tmpdir(), 'sourcebound-answers-'));
   const config = loadConfig({ env: opts.env, overrides: { ...(opts.overrides ?? {}), dataDir, seed: { ingestOnEmpty: false } } });
-  const logger = createLogger(config.logLevel === 'info' ? 'warn' : config.logLevel, process.stderr as never);
+  const logger = configuredLogger(config, { quiet: true });
   const rt = await createRuntime(config, logger, { processMetrics: false });
   try {
     for (const [collection, dir] of folders) await rt.ingestor.ingestPath(dir, { collection, remember: false });

@@ -3,7 +3,6 @@
 
 import { existsSync, renameSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
-import { parseArgs } from 'node:util';
 import { loadConfig } from '../config/index.js';
 import { openStore, storePaths } from '../store/index.js';
 import { ratingsToQuestions, toJsonl } from './export.js';
@@ -15,13 +14,12 @@ export interface FeedbackIo {
 
 const defaultIo: FeedbackIo = { stdout: (s) => process.stdout.write(s), stderr: (s) => process.stderr.write(s) };
 
-export async function runFeedbackCommand(args: string[], env: Record<string, string | undefined>, io: FeedbackIo = defaultIo): Promise<number> {
-  const [sub, ...rest] = args;
-  if (sub !== 'export') {
-    io.stderr('sourcebound feedback: use `feedback export [--out F] [--collection C]`\n');
-    return 2;
-  }
-  const { values } = parseArgs({ args: rest, options: { out: { type: 'string', short: 'o' }, collection: { type: 'string', short: 'c' } } });
+/** `values` are the command's options, as the command line read them. */
+export async function exportFeedback(
+  values: { out?: string; collection?: string },
+  env: Record<string, string | undefined>,
+  io: FeedbackIo = defaultIo,
+): Promise<number> {
   const cfg = loadConfig({ env });
   const { database } = storePaths(cfg.dataDir);
   if (!existsSync(database)) {

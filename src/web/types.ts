@@ -1,73 +1,21 @@
-// The shapes the desk reads from the service (docs/api.md). Kept here, free of DOM and Node types,
-// so the unit tests and the page share them.
+// The shapes the desk reads from and sends to the service, taken from the API's own zod schemas
+// (src/api/replies.ts, src/api/schemas.ts). Type-only imports: the compiled page carries no zod.
 
-export interface Citation {
-  n: number;
-  documentId: string;
-  source: string;
-  title: string;
-  page: number | null;
-  section: string;
-  quote: string;
-  start: number;
-  end: number;
-  effectiveDate: string | null;
-  version?: string | null;
-}
+import type { z } from 'zod';
+import type { answerReply, citation, claim, collectionsReply, deltaEvent, originalLink, passage, sourcesEvent, sourceSummary, streamErrorEvent } from '../api/replies.js';
+import type { historyTurn, ratingBody } from '../api/schemas.js';
 
-export interface Claim {
-  text: string;
-  sources: number[];
-  supported: boolean;
-  support?: number;
-  /** Why an unsupported claim failed its check (see docs/api.md). */
-  reason?: 'citation' | 'planted' | 'overlap' | 'figure' | 'polarity';
-}
-
+export type Citation = z.infer<typeof citation>;
+export type Claim = z.infer<typeof claim>;
 /** A numbered context passage (the `sources` event): what abstentions offer as the closest passages. */
-export interface SourceSummary {
-  n: number;
-  documentId: string;
-  source: string;
-  title: string;
-  page: number | null;
-  pageEnd: number | null;
-  section: string;
-  effectiveDate: string | null;
-  version?: string | null;
-  text: string;
-}
-
+export type SourceSummary = z.infer<typeof sourceSummary>;
 /** The `done` event: the whole answer. */
-export interface AnswerDone {
-  answer: string;
-  abstained: boolean;
-  mode: string;
-  citations: Citation[];
-  claims?: Claim[];
-  confidence: number;
-  confidenceCalibrated?: boolean;
-  caution: string;
-  question: string;
-  rewrittenBy?: string;
-  abstainReason?: string;
-}
-
-export interface Passage {
-  documentId: string;
-  source: string;
-  title: string;
-  format: string;
-  effectiveDate: string | null;
-  section: string;
-  page: number | null;
-  pageEnd: number | null;
-  before: string;
-  quote: string;
-  after: string;
-}
-
-export interface Turn {
-  role: 'user' | 'assistant';
-  content: string;
-}
+export type AnswerDone = z.infer<typeof answerReply>;
+export type Passage = z.infer<typeof passage>;
+export type Turn = z.infer<typeof historyTurn>;
+export type SourcesEvent = z.infer<typeof sourcesEvent>;
+export type DeltaEvent = z.infer<typeof deltaEvent>;
+export type StreamErrorEvent = z.infer<typeof streamErrorEvent>;
+export type Collections = z.infer<typeof collectionsReply>;
+export type OriginalLink = z.infer<typeof originalLink>;
+export type RatingRequest = z.input<ReturnType<typeof ratingBody>>;

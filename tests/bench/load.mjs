@@ -60,10 +60,10 @@ rt.close();
 
 const configFile = path.join(work, 'config.json');
 writeFileSync(configFile, JSON.stringify({ limits: { rateLimitPerMinute: 10_000_000 }, seed: { ingestOnEmpty: false } }));
-const server = spawn(process.execPath, [path.join(ROOT, 'dist', 'cli.js'), 'serve'], {
+const server = spawn(process.execPath, [path.join(ROOT, 'dist', 'cli.js'), 'serve', '--log', 'json'], {
   // The server logs at info, as deployed (the ready line is read from it; request logs are drained).
   env: { ...process.env, ...env, SOURCEBOUND_LOG_LEVEL: 'info', PORT: '0', SOURCEBOUND_CONFIG: configFile },
-  stdio: ['ignore', 'pipe', 'inherit'],
+  stdio: ['ignore', 'inherit', 'pipe'],
 });
 // Never leave the server behind, whatever way this script ends.
 process.on('exit', () => server.kill('SIGKILL'));
@@ -71,7 +71,7 @@ for (const sig of ['SIGINT', 'SIGTERM']) process.on(sig, () => process.exit(130)
 const base = await new Promise((resolve, reject) => {
   let out = '';
   let ready = false;
-  server.stdout.on('data', (d) => {
+  server.stderr.on('data', (d) => {
     if (ready) return; // request logs after start-up are read and dropped
     out += d;
     const m = /"msg":"ready on (http:\/\/[^"]+)"/.exec(out);

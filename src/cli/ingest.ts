@@ -1,0 +1,84 @@
+// `sourcebound ingest` and `sourcebound reindex`: a summary on standard output (text, or one JSON object
+// with --json), a progress bar on standard error when it is a terminal, and exit 1 when a document failed.
+
+import type { Config } from '../config/index.js';
+import { formatProgress, formatSummary, summaryJson, type IngestProgress, type IngestSummary } from '../ingest/index.js';
+import { withReindexLock } from '../jobs/index.js';
+import { createRuntime, ingestAsJob, type Runtime } from '../runtime.js';
+import { EXIT, type CliContext } from './context.js';
+
+export interface IngestOptions {
+  collection?: string;
+  full?: boolean;
+  json?: boolean;
+}
+
+export async function ingest(ctx: CliContext, paths: string[], opts: IngestOptions): Promise<number> {
+  const cfg = ctx.config();
+  const collection = opts.collection ?? cfg.seed.collection;
+  return withRuntime(ctx, cfg, opts, async (rt) => {
+    const total = emptySummary();
+    for (const p of paths) {
+      const s = await ingestAsJob(rt, 'ingest', collection, { path: p }, () =>
+        rt.ingestor.ingestPath(p, { collection, force: opts.full ?? false }),
+      );
+      addSummary(total, s);
+    }
+    return total;
+  });
+}
+
+export async function reindex(ctx: CliContext, opts: IngestOptions): Promise<number> {
+  const cfg = ctx.config();
+  return withRuntime(ctx, cfg, opts, async (rt) => {
+    const what: { collection?: string; full?: boolean } = { full: opts.full ?? false };
+    if (opts.collection) what.collection = opts.collection;
+    return ingestAsJob(rt, 'reindex', opts.collection ?? null, what, () => withReindexLock(cfg.dataDir, () => rt.ingestor.reindex(what)));
+  });
+}
+
+/** Runs `work` on a runtime that draws progress on a terminal, then prints its summary. */
+async function withRuntime(
+  ctx: CliContext,
+  cfg: Readonly<Config>,
+  opts: IngestOptions,
+  work: (rt: Runtime) => Promise<IngestSummary>,
+): Promise<number> {
+  const json = opts.json ?? false;
+  const { io } = ctx;
+  const tty = io.errIsTTY && !json;
+  const started = performance.now();
+  const onProgress = (p: IngestProgress): void => {
+    if (!tty) return;
+    // A pseudo-terminal with no size set reports 0 columns: treat it as unknown.
+    io.err(`\r\x1b[2K${formatProgress(p, (performance.now() - started) / 1000, io.errColumns || 100)}`);
+  };
+  const rt = await createRuntime(cfg, ctx.logger(cfg, json), { onProgress });
+  if (!rt.embedder.semantic && !json) io.err(`note: ${rt.embedderReason}\n`);
+  try {
+    const s = await work(rt);
+    if (tty) io.err('\r\x1b[2K');
+    io.out(`${json ? summaryJson(s) : formatSummary(s)}\n`);
+    return s.documents.failed > 0 ? EXIT.failed : EXIT.ok;
+  } finally {
+    rt.close();
+  }
+}
+
+function emptySummary(): IngestSummary {
+  return {
+    documents: { added: 0, updated: 0, renamed: 0, removed: 0, unchanged: 0, failed: 0 },
+    chunks: { embedded: 0, reused: 0, removed: 0 },
+    failures: [],
+    skipped: [],
+    seconds: 0,
+  };
+}
+
+function addSummary(total: IngestSummary, s: IngestSummary): void {
+  for (const k of Object.keys(total.documents) as (keyof IngestSummary['documents'])[]) total.documents[k] += s.documents[k];
+  for (const k of Object.keys(total.chunks) as (keyof IngestSummary['chunks'])[]) total.chunks[k] += s.chunks[k];
+  total.failures.push(...s.failures);
+  total.skipped.push(...s.skipped);
+  total.seconds = Math.round((total.seconds + s.seconds) * 1000) / 1000;
+}

@@ -1,0 +1,79 @@
+// `sourcebound serve`: the HTTP service. Listens, seeds an empty store, loads the vector indexes, and shuts
+// down cleanly on SIGTERM or SIGINT.
+
+import { authEnforced, checkAuthConfig } from '../api/auth.js';
+import { createRuntime, createServer, ingestAsJob, type Runtime } from '../runtime.js';
+import { EXIT, type CliContext } from './context.js';
+
+export async function serve(ctx: CliContext): Promise<number> {
+  const cfg = ctx.config();
+  checkAuthConfig(cfg.auth, cfg.server.host);
+  const logger = ctx.logger(cfg);
+  const rt = await createRuntime(cfg, logger);
+  logger.info(
+    { auth: authEnforced(cfg.auth, cfg.server.host) ? `required (${cfg.auth.keys.length} keys)` : 'off (loopback only)' },
+    'access control',
+  );
+  const level = rt.embedder.semantic ? 'info' : 'warn';
+  logger[level](
+    { embedder: rt.embedder.id, semantic: rt.embedder.semantic, dimensions: rt.embedder.dimensions },
+    `embedder: ${rt.embedderReason}`,
+  );
+  let ready = false;
+  const { app, queue } = createServer(rt, { isReady: () => ready });
+  let closing = false;
+  const shutdown = async (signal: string): Promise<void> => {
+    if (closing) return;
+    closing = true;
+    logger.info({ signal }, 'shutting down: finishing in-flight requests');
+    try {
+      await app.close();
+      await queue.close();
+    } finally {
+      rt.close();
+      logger.info('stopped');
+      process.exit(EXIT.ok);
+    }
+  };
+  process.on('SIGTERM', () => void shutdown('SIGTERM'));
+  process.on('SIGINT', () => void shutdown('SIGINT'));
+  await app.listen({ host: cfg.server.host, port: cfg.server.port });
+  try {
+    await prepare(rt);
+  } catch (err) {
+    logger.fatal({ err }, 'start-up failed');
+    await app.close();
+    rt.close();
+    return EXIT.failed;
+  }
+  ready = true;
+  const cols = rt.repo.listCollections();
+  logger.info(
+    { collections: cols.map((c) => ({ name: c.name, documents: c.documents, chunks: c.chunks })) },
+    `ready on http://${cfg.server.host}:${(app.server.address() as { port: number }).port}`,
+  );
+  return new Promise<number>(() => undefined); // runs until a signal
+}
+
+/** Seeds an empty store with the demo folder, then loads (or rebuilds) every collection's vector index. */
+async function prepare(rt: Runtime): Promise<void> {
+  const { config: cfg, logger } = rt;
+  if (cfg.seed.ingestOnEmpty && rt.repo.countDocuments() === 0) {
+    logger.info({ path: cfg.seed.path, collection: cfg.seed.collection }, 'empty store: ingesting the seed folder');
+    const s = await ingestAsJob(rt, 'ingest', cfg.seed.collection, { path: cfg.seed.path, reason: 'seed' }, () =>
+      rt.ingestor.ingestPath(cfg.seed.path, { collection: cfg.seed.collection }),
+    );
+    logger.info({ documents: s.documents, chunks: s.chunks, seconds: s.seconds }, 'seed folder ingested');
+  }
+  for (const c of rt.repo.listCollections()) {
+    if (c.embedderId && c.embedderId !== rt.embedder.id) {
+      logger.error(
+        { collection: c.name, indexedWith: c.embedderId, running: rt.embedder.id },
+        'collection was indexed with another embedder: dense and hybrid search are refused until `sourcebound reindex --full`',
+      );
+      continue;
+    }
+    const r = rt.indexes.sync(c.name);
+    logger.info({ collection: c.name, vectors: r.size, rebuilt: r.rebuilt }, 'vector index loaded');
+  }
+}
