@@ -57,44 +57,56 @@ export interface NormalisedDocument {
   blocks: PlacedBlock[];
 }
 
-/** A chunk produced by the chunker, before it is stored. */
-export interface ChunkDraft {
-  ordinal: number;
-  /** Exactly normalised.text.slice(start, end). */
-  text: string;
+/** Where a chunk lies in its document: offsets, headings and pages. */
+export interface ChunkPlace {
   start: number;
   end: number;
   headingPath: string[];
   /** The page of the chunk's first character. */
   pageStart: number | null;
   pageEnd: number | null;
+}
+
+/** A chunk's text with its place and the pages that begin inside it. */
+export interface PlacedChunkText extends ChunkPlace {
+  /** Exactly the document's normalised text sliced at [start, end). */
+  text: string;
   /** Pages that begin after the chunk's first character, in document offsets (empty when it sits on one page). */
   pageBreaks: PageBreak[];
+}
+
+/** A chunk produced by the chunker, before it is stored. */
+export interface ChunkDraft extends PlacedChunkText {
+  ordinal: number;
   /** Tokens of `text` in the embedder's tokenizer. */
   tokenCount: number;
+}
+
+/** A passage's document and where in it: shared by search hits, context sources and source summaries. */
+export interface PassagePlace {
+  documentId: string;
+  source: string;
+  title: string;
+  page: number | null;
+  pageEnd: number | null;
+  section: string;
+  effectiveDate: string | null;
+  /** The document's stated version or issue ("Issue 4", "v2.1"), when it states one. */
+  version?: string | null;
 }
 
 /** Counts tokens the way the active embedder's tokenizer does. */
 export type TokenCounter = (text: string) => number;
 
 /** A retrieval hit as returned by the retriever and /v1/search. */
-export interface SearchHit {
+export interface SearchHit extends PassagePlace {
   chunkId: number;
-  documentId: string;
-  source: string;
-  title: string;
-  page: number | null;
-  pageEnd: number | null;
   /** Pages that begin inside the chunk after `page`, in document offsets; absent when none are recorded. */
   pageBreaks?: PageBreak[];
-  section: string;
   headingPath: string[];
   text: string;
   start: number;
   end: number;
-  effectiveDate: string | null;
-  /** The document's stated version or issue, when it states one. */
-  version?: string | null;
   score: number;
   /** Per-leg ranks (1-based) where the chunk appeared, for explanation and calibration. */
   ranks: { lexical?: number; dense?: number };
@@ -151,4 +163,15 @@ export interface AnswerResult {
   fallbackReason?: string;
   question: string;
   timings: Record<string, number>;
+}
+
+/** The labels every question of a labelled set carries (docs/eval-answers.md). */
+export interface QuestionLabel {
+  id: string;
+  question: string;
+  answerable: boolean;
+  /** Path of the document holding the answer, as written in the set (compared by file name). */
+  doc: string | null;
+  page: number | null;
+  section: string | null;
 }

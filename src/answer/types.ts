@@ -1,6 +1,6 @@
 // Shapes used inside the answer stage and by its callers.
 
-import type { AnswerResult, Citation, PageBreak } from '../types.js';
+import type { AnswerResult, Citation, PageBreak, PassagePlace } from '../types.js';
 
 /** One original retrieval chunk inside a (possibly merged) context source. */
 export interface SourcePart {
@@ -15,20 +15,12 @@ export interface SourcePart {
 }
 
 /** A numbered passage placed in the context window. `text` is an exact slice of the document. */
-export interface ContextSource {
+export interface ContextSource extends PassagePlace {
   /** 1-based number the model cites as [n]. */
   n: number;
-  documentId: string;
-  source: string;
-  title: string;
-  page: number | null;
-  pageEnd: number | null;
-  section: string;
   text: string;
   start: number;
   end: number;
-  effectiveDate: string | null;
-  version?: string | null;
   /** Best fused retrieval score among the merged chunks. */
   score: number;
   denseScore?: number;
@@ -110,16 +102,8 @@ export interface AnswerExplanation {
 }
 
 /** A context source as shown to clients while the answer is produced. */
-export interface SourceSummary {
+export interface SourceSummary extends PassagePlace {
   n: number;
-  documentId: string;
-  source: string;
-  title: string;
-  page: number | null;
-  pageEnd: number | null;
-  section: string;
-  effectiveDate: string | null;
-  version?: string | null;
   text: string;
 }
 

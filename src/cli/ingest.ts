@@ -2,7 +2,7 @@
 // with --json), a progress bar on standard error when it is a terminal, and exit 1 when a document failed.
 
 import type { Config } from '../config/index.js';
-import { formatProgress, formatSummary, summaryJson, type IngestProgress, type IngestSummary } from '../ingest/index.js';
+import { addInto, emptySummary, formatProgress, formatSummary, summaryJson, type IngestProgress, type IngestSummary } from '../ingest/index.js';
 import { withReindexLock } from '../jobs/index.js';
 import { createRuntime, ingestAsJob, type Runtime } from '../runtime.js';
 import { EXIT, type CliContext } from './context.js';
@@ -65,20 +65,7 @@ async function withRuntime(
   }
 }
 
-function emptySummary(): IngestSummary {
-  return {
-    documents: { added: 0, updated: 0, renamed: 0, removed: 0, unchanged: 0, failed: 0 },
-    chunks: { embedded: 0, reused: 0, removed: 0 },
-    failures: [],
-    skipped: [],
-    seconds: 0,
-  };
-}
-
 function addSummary(total: IngestSummary, s: IngestSummary): void {
-  for (const k of Object.keys(total.documents) as (keyof IngestSummary['documents'])[]) total.documents[k] += s.documents[k];
-  for (const k of Object.keys(total.chunks) as (keyof IngestSummary['chunks'])[]) total.chunks[k] += s.chunks[k];
-  total.failures.push(...s.failures);
-  total.skipped.push(...s.skipped);
+  addInto(total, s);
   total.seconds = Math.round((total.seconds + s.seconds) * 1000) / 1000;
 }

@@ -15,17 +15,10 @@ import type { AnswerExplanation, HistoryTurn } from '../answer/index.js';
 import { loadConfig } from '../config/index.js';
 import { configuredLogger } from '../logger.js';
 import { createRuntime } from '../runtime.js';
-import type { AnswerResult, Citation } from '../types.js';
+import type { AnswerResult, Citation, QuestionLabel } from '../types.js';
 import { readJsonl } from './data.js';
 
-export interface LabelledQuestion {
-  id: string;
-  question: string;
-  answerable: boolean;
-  /** Path of the document holding the answer, as written in the set (compared by file name). */
-  doc: string | null;
-  page: number | null;
-  section: string | null;
+export interface LabelledQuestion extends QuestionLabel {
   mustContain: string[];
   mustContainAny: string[];
   mustNotContain: string[];

@@ -14,14 +14,10 @@
 // Only the latest rating of the same question (same collection and earlier turns) counts.
 
 import type { Rating } from '../store/index.js';
+import type { QuestionLabel } from '../types.js';
 
-export interface ExportedQuestion {
-  id: string;
-  question: string;
-  answerable: boolean;
-  doc: string | null;
-  page: number | null;
-  section: string | null;
+/** A line of the shared question format (the JSONL keys are snake_case). */
+export interface ExportedQuestion extends QuestionLabel {
   must_contain: string[];
   must_contain_any: string[];
   must_not_contain: string[];

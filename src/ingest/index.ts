@@ -7,6 +7,7 @@ export {
   type FileOutcome,
 } from './pipeline.js';
 export { documentId } from './files.js';
+export { addInto, emptySummary } from './summary.js';
 export { formatProgress, formatSummary, summaryJson } from './progress.js';
 export { loadDocument } from './load.js';
 export { detectFormat } from './detect.js';

@@ -3,7 +3,7 @@
 // (ingest the corpus, retrieval the chunks, vectors and postings, the queue the jobs and their leases).
 // sqlite/store.ts is the implementation the service runs; a second back end implements `Store` beside it.
 
-import type { ChunkDraft, DocumentFilter, PageBreak } from '../types.js';
+import type { ChunkDraft, ChunkPlace, Citation, DocumentFilter, PageBreak, PlacedChunkText } from '../types.js';
 
 /**
  * A full re-index builds into a shadow collection of this name and swaps it in at the end. Collection names
@@ -77,19 +77,11 @@ export interface ChunkRef {
 }
 
 /** A chunk joined with its document: what retrieval hands on. */
-export interface ChunkView {
+export interface ChunkView extends PlacedChunkText {
   chunkId: number;
   documentId: string;
   source: string;
   title: string;
-  text: string;
-  start: number;
-  end: number;
-  headingPath: string[];
-  pageStart: number | null;
-  pageEnd: number | null;
-  /** Pages that begin inside the chunk; empty for chunks stored before these were recorded. */
-  pageBreaks: PageBreak[];
   effectiveDate: string | null;
   /** The document's stated version or issue ("Issue 4", "v2.1"), when it states one. */
   version?: string | null;
@@ -97,13 +89,7 @@ export interface ChunkView {
 }
 
 /** Where a chunk lies in its document, for placing a quote in its surroundings. */
-export interface ChunkSpan {
-  start: number;
-  end: number;
-  headingPath: string[];
-  pageStart: number | null;
-  pageEnd: number | null;
-}
+export type ChunkSpan = ChunkPlace;
 
 export interface FtsRow {
   chunkId: number;
@@ -282,15 +268,8 @@ export interface JobStore {
   failAbandoned(isGone: (owner: JobOwner | null) => boolean, reason: (owner: JobOwner | null) => string): number;
 }
 
-export interface RatedSource {
-  n: number;
-  documentId: string;
-  source: string;
-  title: string;
-  page: number | null;
-  section: string;
-  quote: string;
-}
+/** A cited source as the rating keeps it. */
+export type RatedSource = Pick<Citation, 'n' | 'documentId' | 'source' | 'title' | 'page' | 'section' | 'quote'>;
 
 export interface NewRating {
   collection: string;

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { fitConditionalLogit, fitLogistic } from '../../src/eval/fit.js';
+import { fitConditionalLogit, fitLogistic } from '../../src/eval/regression.js';
 import { mulberry32 } from '../fixtures/random.js';
 
 describe('fitConditionalLogit', () => {
