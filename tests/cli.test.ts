@@ -94,6 +94,9 @@ describe('the program', () => {
       [['backup', 'a.db', 'b.db'], /^sourcebound backup: too many arguments/],
       [['key', 'new', '--scopes', 'query,owner'], /^sourcebound key new: unknown scope owner; use query, ingest, admin$/],
       [['--log', 'yaml', 'config'], /^sourcebound: option '--log <format>' argument 'yaml' is invalid/],
+      // One rule for collection names, the API's (src/api/schemas.ts).
+      [['ingest', 'docs', '--collection', 'bad name!'], /^sourcebound ingest: option '-c, --collection <name>' argument 'bad name!' is invalid.*letters, digits/],
+      [['reindex', '--collection', '-x'], /^sourcebound reindex: option '-c, --collection <name>' argument '-x' is invalid/],
     ] as const) {
       const c = capture();
       expect(await main([...argv], env, c), argv.join(' ')).toBe(EXIT.usage);

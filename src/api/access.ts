@@ -4,7 +4,7 @@ import type { Logger } from '../logger.js';
 import { ANONYMOUS, NOBODY, requireCollection, type Authenticator, type Principal, type Scope } from './auth.js';
 import type { Metrics } from './metrics.js';
 import { addressBucket, type RateLimiter } from './rate-limit.js';
-import { COLLECTION_NAME } from './schemas.js';
+import { COLLECTION_NAME, COLLECTION_NAME_RULE } from './schemas.js';
 
 // Access control decided on the route the router matched, never on the raw URL: every route states in
 // its own options who may call it (`config: { access }`), and the hooks below read that statement.
@@ -172,7 +172,7 @@ export function installAccessControl(app: FastifyInstance, deps: AccessDeps): vo
 
 function checkCollection(p: Principal, value: unknown): string {
   if (typeof value !== 'string' || !COLLECTION_NAME.test(value)) {
-    const message = 'a collection name is 1-64 letters, digits, ".", "_" or "-", starting with a letter or digit';
+    const message = COLLECTION_NAME_RULE;
     throw new SourceboundError('SB_ERR_VALIDATION', [`collection: ${message}`], { issues: [{ path: ['collection'], code: 'invalid_format', message }] });
   }
   requireCollection(p, value);

@@ -4,11 +4,11 @@ import { z } from 'zod';
 // (src/api/openapi.ts) all come from here; the replies' schemas are in replies.ts. This file imports
 // nothing but zod: the desk page takes its types from it (type-only, so the page carries no zod).
 
+/** The one rule for collection names, in the API and on the command line (src/cli/options.ts). */
 export const COLLECTION_NAME = /^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$/;
+export const COLLECTION_NAME_RULE = 'a collection name is 1-64 letters, digits, ".", "_" or "-", starting with a letter or digit';
 
-export const collectionName = z
-  .string()
-  .regex(COLLECTION_NAME, 'a collection name is 1-64 letters, digits, ".", "_" or "-", starting with a letter or digit');
+export const collectionName = z.string().regex(COLLECTION_NAME, COLLECTION_NAME_RULE);
 
 export const searchMode = z.enum(['hybrid', 'lexical', 'dense']);
 

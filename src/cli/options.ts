@@ -2,7 +2,14 @@
 // naming the option, before any work starts (exit 2).
 
 import { InvalidArgumentError } from 'commander';
+import { COLLECTION_NAME, COLLECTION_NAME_RULE } from '../api/schemas.js';
 import { usageError } from './context.js';
+
+/** A collection name, by the same rule as the API's. */
+export function collectionArg(raw: string): string {
+  if (!COLLECTION_NAME.test(raw)) throw new InvalidArgumentError(`It must be ${COLLECTION_NAME_RULE.replace(/^a collection name is /, '')}.`);
+  return raw;
+}
 
 /** A whole number from `min` to `max`. */
 export function wholeNumber(min: number, max = Number.MAX_SAFE_INTEGER): (raw: string) => number {

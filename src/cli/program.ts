@@ -7,6 +7,7 @@ import { exportFeedback } from '../feedback/index.js';
 import { backup, keyNew, modelPull, modelStatus, printConfig, SCOPES } from './admin.js';
 import { EXIT, EXIT_HELP, type CliContext } from './context.js';
 import { ingest, reindex, type IngestOptions } from './ingest.js';
+import { collectionArg } from './options.js';
 import { serve } from './serve.js';
 
 const ENVIRONMENT_HELP = `Environment: PORT, HOST, SOURCEBOUND_DATA_DIR, SOURCEBOUND_CONFIG (a JSON file), SOURCEBOUND_LOG_LEVEL,
@@ -40,7 +41,7 @@ export function buildProgram(ctx: CliContext): Program {
 
   const ingestOptions = (c: Command): Command =>
     c
-      .option('-c, --collection <name>', 'the collection (default: the seed collection)')
+      .option('-c, --collection <name>', 'the collection (default: the seed collection)', collectionArg)
       .option('--full', 're-read and re-embed every document, changed or not')
       .option('--json', 'print the summary as one JSON object (docs/operations.md lists its keys)');
   ingestOptions(
@@ -85,7 +86,7 @@ export function buildProgram(ctx: CliContext): Program {
     .summary("write the desk's answer ratings as a question set for `eval answers --questions F`")
     .description("Writes the desk's answer ratings as a question set for `sourcebound eval answers --questions F`.")
     .option('-o, --out <file>', 'write the question set here (default: standard output)')
-    .option('-c, --collection <name>', 'only the ratings of this collection')
+    .option('-c, --collection <name>', 'only the ratings of this collection', collectionArg)
     .action(run((opts: { out?: string; collection?: string }) => exportFeedback(opts, ctx.env, { stdout: ctx.io.out, stderr: ctx.io.err })));
 
   root

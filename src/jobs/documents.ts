@@ -45,7 +45,10 @@ export function checkFileName(name: string): string {
     throw new SourceboundError('SB_ERR_BAD_FILE_NAME', [why]);
   };
   if (n.length === 0 || n.length > 200) bad('a file name is 1-200 characters');
-  if (/[\u0000-\u001f\u007f/\\]/u.test(n)) bad('no slashes, backslashes or control characters');
+  if (/[/\\]/u.test(n)) bad('no slashes or backslashes');
+  // Unicode's control (Cc: C0, DEL and C1), format (Cf: bidirectional overrides such as U+202E,
+  // zero-width characters) and line/paragraph separator (Zl, Zp) categories: none shows as itself.
+  if (/[\p{Cc}\p{Cf}\p{Zl}\p{Zp}]/u.test(n)) bad('no control, invisible formatting or line-separator characters');
   if (n.startsWith('.') || n === '..') bad('a file name may not start with "."');
   if (!/^[\p{L}\p{N}]/u.test(n)) bad('a file name starts with a letter or digit');
   const ext = path.extname(n).toLowerCase();

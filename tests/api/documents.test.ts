@@ -105,7 +105,9 @@ describe('the document API', () => {
   });
 
   it('rejects odd and dangerous file names with 400', async () => {
-    for (const name of ['../escape.md', '..\\escape.md', '.hidden.md', 'run.exe', 'a/b.md', 'x\u0000.md', '', '-dash.md']) {
+    // Besides traversal and hidden names: Unicode's C1 controls (U+0085, U+009B), a right-to-left
+    // override (U+202E, category Cf), a zero-width space (U+200B) and the line separator U+2028.
+    for (const name of ['../escape.md', '..\\escape.md', '.hidden.md', 'run.exe', 'a/b.md', 'x\u0000.md', '', '-dash.md', 'a\u0085b.md', 'a\u009bb.md', 'inv\u202Edm.txt', 'a\u200Bb.md', 'a\u2028b.md']) {
       const res = await post('/v1/collections/uploads/documents', { name, text: 'some text' });
       expect(res.statusCode, name).toBe(400);
       expect(['SB_ERR_BAD_FILE_NAME', 'SB_ERR_VALIDATION'], name).toContain(res.json().error.code);
