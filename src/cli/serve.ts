@@ -5,6 +5,9 @@ import { authEnforced, checkAuthConfig } from '../api/auth.js';
 import { createRuntime, createServer, ingestAsJob, type Runtime } from '../runtime.js';
 import { EXIT, type CliContext } from './context.js';
 
+// How often a server started by an npm script checks that npm is still there.
+const PARENT_CHECK_MS = 500;
+
 export async function serve(ctx: CliContext): Promise<number> {
   const cfg = ctx.config();
   checkAuthConfig(cfg.auth, cfg.server.host);
@@ -37,6 +40,15 @@ export async function serve(ctx: CliContext): Promise<number> {
   };
   process.on('SIGTERM', () => void shutdown('SIGTERM'));
   process.on('SIGINT', () => void shutdown('SIGINT'));
+  // Started by an npm script (`npm start`): npm does not pass a SIGTERM on to the script it runs, so
+  // the server would outlive it on its port. When the launcher is gone (this process is re-parented),
+  // stop as for SIGTERM. Only then: a server started with `nohup … &` must outlive its shell.
+  if (ctx.env.npm_lifecycle_event) {
+    const launcher = process.ppid;
+    setInterval(() => {
+      if (process.ppid !== launcher) void shutdown('launcher exited');
+    }, PARENT_CHECK_MS).unref();
+  }
   await app.listen({ host: cfg.server.host, port: cfg.server.port });
   try {
     await prepare(rt);
