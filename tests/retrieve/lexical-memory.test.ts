@@ -182,8 +182,8 @@ describe('in-memory BM25 index against FTS5', () => {
     addDoc(repo, 'trams', 'new', 'Ferry timetable', [{ heading: ['Ferry timetable'], text: 'The ferry timetable changes at the weekend.' }]);
     compare('trams', q, 6, 20, WEIGHTS[0]!);
     expect(mem.stats().builds).toBe(builds + 1);
-    // Deleting rows: FTS5 keeps some statistics of deleted rows in a contentless table; the index reads the
-    // same ones, so the scores still agree.
+    // Deleting rows changes the row count and lengths both engines read (tests/store/lexical-statistics.test.ts
+    // checks them against a fresh ingest), so the scores still agree.
     for (let d = 0; d < 30; d += 3) repo.deleteDocument(`d${d}`);
     repo.deleteDocument('new');
     compare('trams', q, 6, 20, WEIGHTS[0]!);

@@ -2,7 +2,7 @@
 // before they were recorded.
 import Database from 'better-sqlite3';
 import { describe, expect, it } from 'vitest';
-import { MIGRATIONS, migrate, openDatabase, SqliteStore } from '../../src/store/index.js';
+import { MIGRATIONS, migrate, openDatabase, runMigration, SqliteStore } from '../../src/store/index.js';
 
 const DOC = {
   collection: 'c',
@@ -40,8 +40,8 @@ describe('chunk page breaks in the store', () => {
   it('opens a store written before page breaks were recorded, keeping its chunks and their start pages', () => {
     const db = new Database(':memory:');
     // The schema as it stood before the page-break migration, with a chunk written then.
-    MIGRATIONS.slice(0, 3).forEach((sql, i) => {
-      db.exec(sql);
+    MIGRATIONS.slice(0, 3).forEach((m, i) => {
+      runMigration(db, m);
       db.pragma(`user_version = ${i + 1}`);
     });
     db.prepare("INSERT INTO collections (name, created_at) VALUES ('c', 'now')").run();

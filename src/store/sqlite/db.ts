@@ -1,7 +1,7 @@
 import { mkdirSync } from 'node:fs';
 import path from 'node:path';
 import Database from 'better-sqlite3';
-import { MIGRATIONS } from './migrations.js';
+import { MIGRATIONS, runMigration } from './migrations.js';
 
 export type Db = Database.Database;
 
@@ -25,9 +25,9 @@ export function schemaVersion(db: Db): number {
 export function migrate(db: Db): number {
   const current = schemaVersion(db);
   for (let v = current; v < MIGRATIONS.length; v++) {
-    const sql = MIGRATIONS[v]!;
+    const step = MIGRATIONS[v]!;
     db.transaction(() => {
-      db.exec(sql);
+      runMigration(db, step);
       db.pragma(`user_version = ${v + 1}`);
     }).immediate();
   }

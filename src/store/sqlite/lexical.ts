@@ -1,7 +1,8 @@
 // The lexical index's statistics and postings, read from FTS5's own index so that an in-memory copy ranks
 // exactly as FTS5's bm25() does (src/retrieve/lexical-memory.ts says how they are used):
 //   - N and the total token count from the table's averages record, as xRowCount and xColumnTotalSize(-1)
-//     return them;
+//     return them (a regular content table since migration 6, whose deletes take a row out of that record;
+//     the contentless table before it kept counting deleted rows);
 //   - |d| from the docsize table (xColumnSize(-1): tokens over all columns of the row);
 //   - the postings through an fts5vocab table of type "instance" (term, row, column, offset), which lists the
 //     same live rows FTS5's xQueryPhrase counts.

@@ -1,7 +1,23 @@
 // Versioned schema. Each entry runs once, in order, inside a transaction; PRAGMA user_version
 // records how far a database has come. Never edit a shipped migration: add a new one.
+// An entry is SQL, or a function for a step SQL cannot express (one that needs ftsColumns, say).
 
-export const MIGRATIONS: readonly string[] = [
+import type Database from 'better-sqlite3';
+import { ftsColumns } from '../fts-columns.js';
+import { SHADOW_PREFIX } from '../types.js';
+
+export type Migration = string | ((db: Database.Database) => void);
+
+/** Runs one migration's statements (the caller holds the transaction and records the version). */
+export function runMigration(db: Database.Database, m: Migration): void {
+  if (typeof m === 'string') db.exec(m);
+  else m(db);
+}
+
+/** How many chunks migration 6 reads at a time (a statement cannot write while another still reads). */
+const REFILL_BATCH = 2000;
+
+export const MIGRATIONS: readonly Migration[] = [
   // 1: the initial schema
   `
   CREATE TABLE collections (
@@ -139,4 +155,34 @@ export const MIGRATIONS: readonly string[] = [
   ALTER TABLE jobs ADD COLUMN owner_pid INTEGER;
   ALTER TABLE jobs ADD COLUMN owner_host TEXT;
   `,
+  // 6: the lexical index becomes an FTS5 table that keeps its own copy of each row's three fields (a regular
+  // content table) instead of a contentless one with contentless_delete=1. Deleting from the contentless table
+  // removed the row's postings and length but not its share of the averages record (row count and token
+  // totals), which FTS5's bm25() and the in-memory engine both read as N and avgdl: every update, deletion and
+  // full re-index inflated them (docs/architecture.md, "Lexical statistics"). A regular table deletes a row
+  // from its stored fields, so the averages record always counts exactly the rows present. The rows are
+  // rebuilt here from the chunks with ftsColumns, as a fresh ingest writes them; chunks of a shadow collection
+  // (a full re-index under way) stay out of the index until they are swapped in, as before.
+  (db) => {
+    db.exec(`
+      DROP TABLE chunks_fts;
+      CREATE VIRTUAL TABLE chunks_fts USING fts5(
+        title, heading, body,
+        tokenize='porter unicode61 remove_diacritics 2'
+      );
+    `);
+    const read = db.prepare(`
+      SELECT k.id, d.title, k.heading_path, k.text FROM chunks k JOIN documents d ON d.id = k.document_id
+      WHERE k.id > ? AND substr(d.collection, 1, ${SHADOW_PREFIX.length}) <> ? ORDER BY k.id LIMIT ${REFILL_BATCH}`);
+    const insert = db.prepare('INSERT INTO chunks_fts (rowid, title, heading, body) VALUES (?, ?, ?, ?)');
+    for (let after = 0; ; ) {
+      const rows = read.raw().all(after, SHADOW_PREFIX) as [number, string, string, string][];
+      for (const [id, title, headingPath, text] of rows) {
+        const cols = ftsColumns(title, JSON.parse(headingPath) as string[], text);
+        insert.run(id, cols.title, cols.heading, cols.body);
+      }
+      if (rows.length < REFILL_BATCH) break;
+      after = rows[rows.length - 1]![0];
+    }
+  },
 ];
