@@ -12,7 +12,7 @@ import { buildApp, type AnswerRequest as HttpAnswerRequest, type AppDeps } from 
 import { PACKAGE_ROOT, type Config } from './config/index.js';
 import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
-import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
+import { createIngestor, type DocumentLimits, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
 import type { Logger } from './logger.js';
 import { createMetrics, type Metrics } from './api/metrics.js';
 import { createDeskService } from './api/desk-service.js';
@@ -225,6 +225,7 @@ export async function createRuntime(
       overlapTokens: config.chunking.overlapTokens,
       documentMaxBytes: config.limits.documentMaxBytes,
       pdf: { maxPages: config.limits.pdfMaxPages, maxSeconds: config.limits.pdfMaxSeconds },
+      limits: documentLimits(config),
     },
     logger: logger.child({ stage: 'ingest' }),
     batchSize: config.embedding.batchSize,
@@ -249,6 +250,19 @@ export async function createRuntime(
       indexes.close();
       store.close();
     },
+  };
+}
+
+/** The bounds on one document's work, from the `limits` section. */
+export function documentLimits(config: Readonly<Config>): DocumentLimits {
+  const l = config.limits;
+  return {
+    maxChars: l.documentMaxChars,
+    maxChunks: l.documentMaxChunks,
+    parseMaxSeconds: l.parseMaxSeconds,
+    htmlMaxDepth: l.htmlMaxDepth,
+    zipMaxInflatedBytes: l.zipMaxInflatedBytes,
+    zipMaxEntries: l.zipMaxEntries,
   };
 }
 
