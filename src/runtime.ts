@@ -299,9 +299,10 @@ export async function ingestAsJob(
 }
 
 /** The HTTP layer's view of a runtime. */
-export function appDeps(rt: Runtime, isReady: () => boolean, documents?: DocumentService): AppDeps {
+export function appDeps(rt: Runtime, isReady: () => boolean, documents?: DocumentService, queue?: Pick<JobQueue, 'health'>): AppDeps {
   return {
     ...(documents ? { documents } : {}),
+    ...(queue ? { queueHealth: () => queue.health() } : {}),
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,
@@ -354,7 +355,17 @@ export function createDocumentApi(
   const queue = createJobQueue({
     ctx,
     logger: rt.logger,
-    mode: mode === 'inline' ? 'inline' : { thread: { script: jobWorkerScript(), workerData: { config: JSON.parse(JSON.stringify(rt.config)) as unknown } } },
+    mode:
+      mode === 'inline'
+        ? 'inline'
+        : {
+            thread: {
+              script: jobWorkerScript(),
+              workerData: { config: JSON.parse(JSON.stringify(rt.config)) as unknown },
+              maxHeapMb: rt.config.limits.jobThreadMaxHeapMb,
+              jobMaxSeconds: rt.config.limits.jobMaxSeconds,
+            },
+          },
     ...(opts.onJobDone ? { onJobDone: opts.onJobDone } : {}),
   });
   return { queue, documents: createDocumentService(ctx, queue) };
@@ -363,5 +374,5 @@ export function createDocumentApi(
 /** The HTTP app over a runtime, with the document API and its job queue (run in a worker thread). */
 export function createServer(rt: Runtime, opts: { isReady: () => boolean }): { app: FastifyInstance; queue: JobQueue } {
   const { queue, documents } = createDocumentApi(rt, 'thread');
-  return { app: buildApp(rt.config, appDeps(rt, opts.isReady, documents)), queue };
+  return { app: buildApp(rt.config, appDeps(rt, opts.isReady, documents, queue)), queue };
 }

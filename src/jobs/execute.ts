@@ -8,12 +8,28 @@ export type JobPayload =
   | { kind: 'upload'; via: 'api'; collection: string; root: string; source: string }
   | { kind: 'reindex'; via: 'api'; collection?: string; full?: boolean };
 
+/** A job that ran to its end without doing what it was for; the summary of what it did stays with it. */
+export class JobFailed extends Error {
+  constructor(
+    message: string,
+    readonly summary: IngestSummary,
+  ) {
+    super(message);
+    this.name = 'JobFailed';
+  }
+}
+
 export async function executeJob(ctx: Pick<JobContext, 'ingestor' | 'dataDir'>, job: JobRecord): Promise<IngestSummary> {
   const p = job.payload as JobPayload;
   if (p.kind === 'upload') {
     // The collection's upload folder is one of its source folders: ingesting it re-processes only what
     // changed (the new file), exactly as a re-index would.
-    return ctx.ingestor.ingestPath(p.root, { collection: p.collection, removeMissing: true });
+    const summary = await ctx.ingestor.ingestPath(p.root, { collection: p.collection, removeMissing: true });
+    // An upload is for its one file: when that file could not be read, the job failed, whatever else the
+    // folder walk did.
+    const own = summary.failures.find((f) => f.source === p.source);
+    if (own) throw new JobFailed(`${p.source}: ${own.reason}`, summary);
+    return summary;
   }
   if (p.kind === 'reindex') {
     return withReindexLock(ctx.dataDir, () =>
