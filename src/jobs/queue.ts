@@ -4,6 +4,7 @@ import type { JobRecord } from '../store/index.js';
 import type { JobContext } from './context.js';
 import { executeJob, JobFailed, type JobPayload } from './execute.js';
 import { ownerGone } from './owner.js';
+import { setAsideUpload } from './set-aside.js';
 
 /** What `/health` says about the queue (docs/api.md). */
 export interface QueueHealth {
@@ -60,7 +61,17 @@ export async function runOne(ctx: JobContext, job: JobRecord, log: Logger): Prom
   } catch (err) {
     // A job that ran to the end but failed at what it was for keeps its summary beside the reason.
     ctx.store.jobs.fail(job.id, (err as Error).message, err instanceof JobFailed ? err.summary : undefined);
-    jlog.warn({ err: (err as Error).message }, 'job failed');
+    jlog.warn({ err: (err as Error).message, setAside: setAside(ctx, job, jlog) }, 'job failed');
+  }
+}
+
+/** Moves a failed upload's file aside (src/jobs/set-aside.ts); a failure to do so is logged, never thrown. */
+function setAside(ctx: Pick<JobContext, 'dataDir'>, job: JobRecord, log: Logger): string | null {
+  try {
+    return setAsideUpload(ctx.dataDir, job);
+  } catch (err) {
+    log.error({ err }, 'could not move the failed upload out of its folder');
+    return null;
   }
 }
 
@@ -237,7 +248,7 @@ export function createJobQueue(deps: {
       lastThreadDeath = { at: new Date(now()).toISOString(), reason, jobId: lost?.id ?? null };
       if (lost) {
         ctx.store.jobs.fail(lost.id, reason);
-        log.warn({ jobId: lost.id, reason }, 'job failed: its thread died');
+        log.warn({ jobId: lost.id, reason, setAside: setAside(ctx, lost, log) }, 'job failed: its thread died');
         finished(lost.id);
       }
       if (!ready) deathsBeforeReady++;
