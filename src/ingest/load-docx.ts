@@ -21,19 +21,44 @@ const LT = 0x3c;
 const GT = 0x3e;
 const SLASH = 0x2f;
 
+const AMP = 0x26;
+const SEMI = 0x3b;
+
+/** Characters of the text between `from` and `to` (UTF-8 lead bytes; an entity or character reference is one). */
+function textChars(xml: Uint8Array, from: number, to: number): number {
+  let n = 0;
+  let blank = true;
+  for (let k = from; k < to; k++) {
+    const c = xml[k]!;
+    if (c === AMP) {
+      const semi = xml.indexOf(SEMI, k);
+      if (semi !== -1 && semi < to && semi - k <= 12) k = semi;
+    } else if ((c & 0xc0) === 0x80) continue;
+    if (c !== 0x20 && c !== 0x09 && c !== 0x0a && c !== 0x0d) blank = false;
+    n++;
+  }
+  // Whitespace between tags is layout, not text.
+  return blank ? 0 : n;
+}
+
 /**
- * Refuses an XML part whose elements nest deeper than `maxDepth`, in one pass over its bytes. The converter's
- * tree walks recurse, so a part nested thousands deep would end in a stack overflow after long work. The count
- * is of start tags not yet closed; comments, declarations and processing instructions are skipped, and a
- * quoted attribute value may hold '>' (XML 1.0, section 3.1).
+ * One pass over an XML part's bytes: refuses elements nested deeper than `maxDepth` (the converter's tree walks
+ * recurse, so a part nested thousands deep would end in a stack overflow after long work) and returns the
+ * characters of its text. The depth is the count of start tags not yet closed; comments, declarations and
+ * processing instructions are skipped, and a quoted attribute value may hold '>' (XML 1.0, section 3.1).
  */
-function checkXmlDepth(xml: Uint8Array, maxDepth: number): void {
+function scanXml(xml: Uint8Array, maxDepth: number): number {
   let depth = 0;
+  let chars = 0;
+  let textFrom = 0;
   for (let i = xml.indexOf(LT); i !== -1 && i < xml.length; i = xml.indexOf(LT, i)) {
+    chars += textChars(xml, textFrom, i);
     const next = xml[i + 1];
     if (next === SLASH) {
       depth = Math.max(0, depth - 1);
-      i += 2;
+      const close = xml.indexOf(GT, i);
+      i = close === -1 ? xml.length : close + 1;
+      textFrom = i;
       continue;
     }
     let j = i + 1;
@@ -50,7 +75,9 @@ function checkXmlDepth(xml: Uint8Array, maxDepth: number): void {
       throw new LimitExceeded('htmlMaxDepth', `the Word file nests elements more than ${maxDepth} deep (limits.htmlMaxDepth)`);
     }
     i = j + 1;
+    textFrom = i;
   }
+  return chars;
 }
 
 const decoder = new TextDecoder();
@@ -76,7 +103,11 @@ export async function loadDocx(
     if (err instanceof ZipFormatError) throw new Error(`${UNREADABLE}: ${err.message}`, { cause: err });
     throw err;
   }
-  for (const e of entries) if (isXmlPart(e)) checkXmlDepth(e.data, limits.htmlMaxDepth);
+  // The text of the XML parts is what conversion extracts (plus a little metadata), whichever part the
+  // package names as its main one: over the limit, the file is refused before it is converted.
+  let chars = 0;
+  for (const e of entries) if (isXmlPart(e)) chars += scanXml(e.data, limits.htmlMaxDepth);
+  checkChars(chars, limits, 'the Word file has');
   deadline.check('unpacking the Word file');
   const { default: mammoth } = await import('mammoth');
   let html: string;

@@ -155,6 +155,18 @@ describe('a ZIP bomb', () => {
     ]);
   });
 
+  it('holding more text than limits.documentMaxChars fails on the text of its parts, before it is converted', async () => {
+    // 6 MiB of paragraphs inflates within the package limit; its text alone is over the character limit.
+    const para = `<w:p><w:r><w:t>${'Tram stop '.repeat(100)}</w:t></w:r></w:p>\n`;
+    const body = para.repeat(Math.ceil((6 * MiB) / para.length));
+    const entries = docxEntries([]).map((e) =>
+      e.name === 'word/document.xml' ? deflated(e.name, `<?xml version="1.0"?><w:document xmlns:w="${W}"><w:body>${body}</w:body></w:document>`) : deflated(e.name, e.data),
+    );
+    const { summary } = await ingestOne('stops.docx', zip(entries));
+    expect(summary.failures).toHaveLength(1);
+    expect(summary.failures[0]!.reason).toMatch(/^the Word file has 6,\d{3},\d{3} characters of text, over the limit of 5,000,000 \(limits\.documentMaxChars\)$/);
+  });
+
   it('leaves an honest deflated Word file readable, through the same bounded reader', async () => {
     const entries = docxEntries([{ heading: 1, text: 'Lost property' }, { paragraph: 'Items found on trams are kept at Marrowgate depot for 30 days.' }]);
     const loaded = await loadDocument(zip(entries.map((e) => deflated(e.name, e.data))), 'lost-property.docx');
