@@ -1,10 +1,11 @@
 // The job worker thread, started by the job queue (src/jobs/queue.ts, wired in src/runtime.ts): its own store
-// connection, embedder and indexes, so ingestion never blocks the event loop that serves queries. It claims
-// queued jobs one at a time until told to stop.
+// connection, embedder and indexes, so ingestion never blocks the event loop that serves queries. The queue
+// claims each job and hands it over here, one at a time, so that when this thread dies (out of memory, say)
+// the queue knows which job it took down.
 import { platform, setPriority } from 'node:os';
 import { parentPort, workerData } from 'node:worker_threads';
 import type { Config } from './config/index.js';
-import { claimNext, runOne } from './jobs/index.js';
+import { runOne, type FromJobThread, type ToJobThread } from './jobs/index.js';
 import { configuredLogger } from './logger.js';
 import { createRuntime, jobContext } from './runtime.js';
 
@@ -22,46 +23,28 @@ if (platform() === 'linux') {
 const logger = configuredLogger(config).child({ thread: 'jobs' });
 const rt = await createRuntime(config, logger, { processMetrics: false });
 const ctx = jobContext(rt);
-let stopping = false;
 let running = false;
-let wakeAgain = false;
+let stopping = false;
 
-async function drain(): Promise<void> {
-  if (running) {
-    wakeAgain = true;
+const send = (m: FromJobThread): void => parentPort?.postMessage(m);
+
+function stop(): never {
+  rt.close();
+  process.exit(0);
+}
+
+parentPort?.on('message', (m: ToJobThread) => {
+  if ('stop' in m) {
+    stopping = true;
+    if (!running) stop();
     return;
   }
   running = true;
-  try {
-    do {
-      wakeAgain = false;
-      for (let job = claimNext(ctx); job && !stopping; job = claimNext(ctx)) {
-        await runOne(ctx, job, logger);
-        parentPort?.postMessage({ done: job.id });
-      }
-    } while (wakeAgain && !stopping);
-  } finally {
+  void runOne(ctx, m.run, logger).finally(() => {
     running = false;
-    if (stopping) {
-      rt.close();
-      process.exit(0);
-    }
-  }
-}
-
-parentPort?.on('message', (m: { wake?: boolean; stop?: boolean }) => {
-  if (m.stop) {
-    stopping = true;
-    if (!running) {
-      rt.close();
-      process.exit(0);
-    }
-    return;
-  }
-  if (m.wake) void drain();
+    send({ done: m.run.id });
+    if (stopping) stop();
+  });
 });
 
-// Jobs queued while no server ran (or requeued after a crash) start straight away; a slow poll picks up
-// jobs that other processes queue.
-void drain();
-setInterval(() => void drain(), 5_000).unref();
+send({ ready: true });

@@ -12,7 +12,7 @@ import { buildApp, type AnswerRequest as HttpAnswerRequest, type AppDeps } from 
 import { PACKAGE_ROOT, type Config } from './config/index.js';
 import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
-import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
+import { createIngestor, type DocumentLimits, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
 import type { Logger } from './logger.js';
 import { createMetrics, type Metrics } from './api/metrics.js';
 import { createDeskService } from './api/desk-service.js';
@@ -225,6 +225,7 @@ export async function createRuntime(
       overlapTokens: config.chunking.overlapTokens,
       documentMaxBytes: config.limits.documentMaxBytes,
       pdf: { maxPages: config.limits.pdfMaxPages, maxSeconds: config.limits.pdfMaxSeconds },
+      limits: documentLimits(config),
     },
     logger: logger.child({ stage: 'ingest' }),
     batchSize: config.embedding.batchSize,
@@ -249,6 +250,19 @@ export async function createRuntime(
       indexes.close();
       store.close();
     },
+  };
+}
+
+/** The bounds on one document's work, from the `limits` section. */
+export function documentLimits(config: Readonly<Config>): DocumentLimits {
+  const l = config.limits;
+  return {
+    maxChars: l.documentMaxChars,
+    maxChunks: l.documentMaxChunks,
+    parseMaxSeconds: l.parseMaxSeconds,
+    htmlMaxDepth: l.htmlMaxDepth,
+    zipMaxInflatedBytes: l.zipMaxInflatedBytes,
+    zipMaxEntries: l.zipMaxEntries,
   };
 }
 
@@ -285,9 +299,10 @@ export async function ingestAsJob(
 }
 
 /** The HTTP layer's view of a runtime. */
-export function appDeps(rt: Runtime, isReady: () => boolean, documents?: DocumentService): AppDeps {
+export function appDeps(rt: Runtime, isReady: () => boolean, documents?: DocumentService, queue?: Pick<JobQueue, 'health'>): AppDeps {
   return {
     ...(documents ? { documents } : {}),
+    ...(queue ? { queueHealth: () => queue.health() } : {}),
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,
@@ -340,7 +355,17 @@ export function createDocumentApi(
   const queue = createJobQueue({
     ctx,
     logger: rt.logger,
-    mode: mode === 'inline' ? 'inline' : { thread: { script: jobWorkerScript(), workerData: { config: JSON.parse(JSON.stringify(rt.config)) as unknown } } },
+    mode:
+      mode === 'inline'
+        ? 'inline'
+        : {
+            thread: {
+              script: jobWorkerScript(),
+              workerData: { config: JSON.parse(JSON.stringify(rt.config)) as unknown },
+              maxHeapMb: rt.config.limits.jobThreadMaxHeapMb,
+              jobMaxSeconds: rt.config.limits.jobMaxSeconds,
+            },
+          },
     ...(opts.onJobDone ? { onJobDone: opts.onJobDone } : {}),
   });
   return { queue, documents: createDocumentService(ctx, queue) };
@@ -349,5 +374,5 @@ export function createDocumentApi(
 /** The HTTP app over a runtime, with the document API and its job queue (run in a worker thread). */
 export function createServer(rt: Runtime, opts: { isReady: () => boolean }): { app: FastifyInstance; queue: JobQueue } {
   const { queue, documents } = createDocumentApi(rt, 'thread');
-  return { app: buildApp(rt.config, appDeps(rt, opts.isReady, documents)), queue };
+  return { app: buildApp(rt.config, appDeps(rt, opts.isReady, documents, queue)), queue };
 }

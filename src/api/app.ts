@@ -85,7 +85,13 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
   // Routes live in a child plugin registered after the access hooks, so the hooks apply to all of them.
   // Each route states who may call it in `config.access` (src/api/access.ts); one that does not is refused.
   void app.register(async (r) => {
-    r.get('/health', { config: { access: PUBLIC } }, async () => ({ status: 'ok', ...deps.health() }));
+    // Alive is 200; a job queue whose thread keeps dying before it can take a job is 503, so a monitor (or an
+    // orchestrator restarting the process) notices that uploads would wait for ever (docs/api.md).
+    r.get('/health', { config: { access: PUBLIC } }, async (_req, reply) => {
+      const queue = deps.queueHealth?.();
+      const failing = queue?.state === 'down';
+      return reply.status(failing ? 503 : 200).send({ status: failing ? 'failing' : 'ok', ...deps.health(), ...(queue ? { queue } : {}) });
+    });
 
     r.get('/ready', { config: { access: PUBLIC } }, async (_req, reply) => {
       const ready = deps.isReady();

@@ -2,7 +2,7 @@
 // tests pass their own. The routes import these types from here, not from app.ts, so imports run one way.
 
 import type { AnswerEvent } from '../answer/index.js';
-import type { DocumentService } from '../jobs/index.js';
+import type { DocumentService, QueueHealth } from '../jobs/index.js';
 import type { Logger } from '../logger.js';
 import type { AnswerResult, DocumentFilter, RetrieveRequest, SearchHit, SearchMode } from '../types.js';
 import type { DeskService } from './desk-service.js';
@@ -29,6 +29,8 @@ export interface AppDeps {
   answer(req: AnswerRequest): Promise<AnswerResult>;
   isReady(): boolean;
   health(): Record<string, unknown>;
+  /** The job queue's state; with it, `/health` answers 503 while the queue is down. */
+  queueHealth?(): QueueHealth;
   collections(): { name: string; documents: number; chunks: number; embedderId: string | null }[];
   metrics?: Metrics;
   /** The document API; absent in read-only deployments and some tests. */

@@ -31,7 +31,10 @@ const json = (description: string, schema: z.ZodType): Reply => ({ description, 
 
 export function describedRoutes(limits: Readonly<Config['limits']>): Record<string, Operation> {
   return {
-    'GET /health': { summary: 'liveness, with the embedder, collections and job queue', replies: { 200: json('alive', reply.healthReply) } },
+    'GET /health': {
+      summary: 'liveness, with the embedder and the job queue; 503 when the job queue is down',
+      replies: { 200: json('alive', reply.healthReply), 503: json('alive, but the job thread keeps dying before it can take a job', reply.healthReply) },
+    },
     'GET /ready': {
       summary: 'readiness: 200 once the indexes are loaded',
       replies: { 200: json('ready', reply.readyReply), 503: json('still loading', reply.readyReply) },

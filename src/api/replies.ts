@@ -102,7 +102,18 @@ export const passage = z.object({
   after: z.string(),
 });
 
-export const healthReply = z.looseObject({ status: z.literal('ok') }).describe('plus the embedder, collections and job queue');
+const queueHealth = z
+  .object({
+    state: z.enum(['idle', 'working', 'restarting', 'down']),
+    pending: count,
+    running: z.object({ id: z.string(), kind: z.string(), seconds: count }).nullable(),
+    threadDeaths: count,
+    lastThreadDeath: z.object({ at: z.string(), reason: z.string(), jobId: z.string().nullable() }).nullable(),
+  })
+  .describe('the job queue: its state, jobs pending, the running job, and deaths of the job thread (each one replaced)');
+export const healthReply = z
+  .looseObject({ status: z.enum(['ok', 'failing']), queue: queueHealth.optional() })
+  .describe('plus the embedder and completion endpoint');
 export const readyReply = z.object({ status: z.enum(['ready', 'loading']) });
 export const collectionsReply = z.object({
   collections: z.array(z.object({ name: z.string(), documents: count, chunks: count, embedderId: z.string().nullable() })),

@@ -171,6 +171,14 @@ const limits = z
     documentMaxBytes: z.number().int().min(1).default(50 * 1024 * 1024).describe('Largest document file ingested'),
     pdfMaxPages: z.number().int().min(1).default(2000).describe('Most pages in one PDF; a longer one is refused'),
     pdfMaxSeconds: z.number().positive().default(120).describe('Time allowed to read one PDF\'s text; a slower one is refused'),
+    documentMaxChars: z.number().int().min(1).default(5_000_000).describe('Most characters of text taken from one document (about 1,500 dense pages); a longer one is refused before it is split into chunks'),
+    documentMaxChunks: z.number().int().min(1).default(10_000).describe('Most chunks made from one document; a document that needs more is refused before anything of it is embedded'),
+    parseMaxSeconds: z.number().positive().default(120).describe('Time allowed to read, normalise and split one document into chunks (embedding not included); checked between steps, a slower document is refused'),
+    htmlMaxDepth: z.number().int().min(8).default(512).describe('Deepest element nesting read in an HTML page or a converted Word file; a deeper one is refused while it is parsed'),
+    zipMaxInflatedBytes: z.number().int().min(1).default(64 * 1024 * 1024).describe('Most bytes a Word (.docx) package may inflate to, all parts together: checked against the sizes its directory declares before inflating, and again while inflating'),
+    zipMaxEntries: z.number().int().min(1).default(2000).describe('Most parts in a Word (.docx) package, checked before any is read'),
+    jobMaxSeconds: z.number().positive().default(6 * 3600).describe('Longest one queued job (an upload or a re-index) may run; then its thread is stopped, the job fails and the queue moves on'),
+    jobThreadMaxHeapMb: z.number().int().min(16).default(2048).describe('Heap of the job thread in MiB; a job that needs more ends its thread, fails with the reason, and a new thread takes the next job'),
   })
   .strict()
   .prefault({});

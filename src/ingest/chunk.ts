@@ -1,4 +1,5 @@
 import type { ChunkDraft, NormalisedDocument, PageBreak, PlacedBlock, TokenCounter } from '../types.js';
+import { LimitExceeded, NO_DEADLINE, type Deadline } from './budget.js';
 import { splitSentences } from './sentences.js';
 
 export interface ChunkOptions {
@@ -11,6 +12,10 @@ export interface ChunkOptions {
   countTokens: TokenCounter;
   /** Locale for sentence boundaries. */
   locale?: string;
+  /** Most chunks made; one more throws LimitExceeded (`limits.documentMaxChunks`) before it is made. */
+  maxChunks?: number;
+  /** Checked between blocks and units, so a slow document stops within its time budget. */
+  deadline?: Deadline;
 }
 
 interface Span {
@@ -169,6 +174,8 @@ export function chunkDocument(doc: NormalisedDocument, opts: ChunkOptions): Chun
   const target = Math.max(1, Math.min(Math.floor(opts.targetTokens), max));
   const overlap = Math.max(0, Math.floor(opts.overlapTokens));
   const locale = opts.locale ?? 'en';
+  const maxChunks = opts.maxChunks ?? Infinity;
+  const deadline = opts.deadline ?? NO_DEADLINE;
   const { text, blocks } = doc;
   const tokensOf = (s: Span): number => count(text.slice(s.start, s.end));
 
@@ -179,6 +186,12 @@ export function chunkDocument(doc: NormalisedDocument, opts: ChunkOptions): Chun
 
   const close = (): void => {
     if (!cur) return;
+    if (drafts.length >= maxChunks) {
+      throw new LimitExceeded(
+        'documentMaxChunks',
+        `the document needs more than ${maxChunks.toLocaleString('en-US')} chunks (limits.documentMaxChunks); stopped at character ${cur.start.toLocaleString('en-US')} of ${text.length.toLocaleString('en-US')}`,
+      );
+    }
     const chunkText = text.slice(cur.start, cur.end);
     const covered: PlacedBlock[] = [];
     for (let i = firstBlockEndingAfter(blocks, cur.start); i < blocks.length && blocks[i]!.start < cur.end; i++) {
@@ -239,6 +252,7 @@ export function chunkDocument(doc: NormalisedDocument, opts: ChunkOptions): Chun
   };
 
   blocks.forEach((block, index) => {
+    deadline.check('splitting the text into chunks');
     const isHeading = block.kind === 'heading';
     if (isHeading) {
       section++;
@@ -262,6 +276,7 @@ export function chunkDocument(doc: NormalisedDocument, opts: ChunkOptions): Chun
       }
     }
     for (const unit of units) {
+      deadline.check('splitting the text into chunks');
       const spans = tokensOf(unit) <= max ? [unit] : fitSpan(text, unit, max, count);
       for (const piece of toPieces(spans)) addPiece(piece);
     }

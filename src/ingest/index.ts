@@ -15,3 +15,4 @@ export { buildNormalisedDocument, normaliseText } from './normalise.js';
 export { chunkDocument } from './chunk.js';
 export { splitSentences } from './sentences.js';
 export { findEffectiveDate } from './effective-date.js';
+export { DEFAULT_DOCUMENT_LIMITS, LimitExceeded, type DocumentLimits } from './budget.js';

@@ -1,5 +1,6 @@
-import { DomUtils, parseDocument } from 'htmlparser2';
+import { DomHandler, DomUtils, Parser, type parseDocument } from 'htmlparser2';
 import type { Block, LoadedDocument } from '../types.js';
+import { checkChars, DEFAULT_DOCUMENT_LIMITS, LimitExceeded, type DocumentLimits } from './budget.js';
 import { findEffectiveDate, withVersion } from './effective-date.js';
 import { decodeText, titleFromFileName } from './load-text.js';
 import { cleanBlocks } from './normalise.js';
@@ -189,9 +190,40 @@ function readMetadata(doc: HtmlDocument): Record<string, string> {
   return metadata;
 }
 
+/**
+ * The DOM builder, refusing to nest deeper than `maxDepth` elements. The walks over the tree recurse, so a page
+ * nested 200,000 deep would overflow the stack after many seconds of work; the parser itself keeps its open
+ * elements in a list, so the depth is known the moment an element opens, before the tree grows any deeper.
+ */
+class DepthBoundHandler extends DomHandler {
+  constructor(private readonly maxDepth: number) {
+    super(undefined, {});
+  }
+
+  override onopentag(name: string, attribs: { [key: string]: string }): void {
+    // tagStack holds the document root and then each open element.
+    if (this.tagStack.length > this.maxDepth) {
+      throw new LimitExceeded(
+        'htmlMaxDepth',
+        `the HTML nests elements more than ${this.maxDepth} deep (limits.htmlMaxDepth)`,
+      );
+    }
+    super.onopentag(name, attribs);
+  }
+}
+
+function parseBounded(source: string, maxDepth: number): HtmlDocument {
+  const handler = new DepthBoundHandler(maxDepth);
+  new Parser(handler).end(source);
+  return handler.root;
+}
+
 /** Blocks, metadata and title of an HTML string (also the last step of the DOCX loader). */
-export function parseHtml(source: string): { blocks: Block[]; metadata: Record<string, string>; title: string } {
-  const doc = parseDocument(source);
+export function parseHtml(
+  source: string,
+  limits: Pick<DocumentLimits, 'htmlMaxDepth'> = DEFAULT_DOCUMENT_LIMITS,
+): { blocks: Block[]; metadata: Record<string, string>; title: string } {
+  const doc = parseBounded(source, limits.htmlMaxDepth);
   const { roots, inContent } = contentRoots(doc);
   const blocks = collectBlocks(roots, inContent);
   const metadata = readMetadata(doc);
@@ -200,10 +232,11 @@ export function parseHtml(source: string): { blocks: Block[]; metadata: Record<s
   return { blocks, metadata, title };
 }
 
-export function loadHtml(bytes: Uint8Array, fileName: string): LoadedDocument {
-  const { blocks, metadata, title } = parseHtml(decodeText(bytes));
+export function loadHtml(bytes: Uint8Array, fileName: string, limits: DocumentLimits = DEFAULT_DOCUMENT_LIMITS): LoadedDocument {
+  const { blocks, metadata, title } = parseHtml(decodeText(bytes), limits);
   const h1 = blocks.find((b) => b.kind === 'heading' && b.level === 1);
   const text = blocks.map((b) => b.text).join('\n');
+  checkChars(text.length, limits);
   return {
     format: 'html',
     title: title || h1?.text || titleFromFileName(fileName),

@@ -1,4 +1,5 @@
 import type { Block, LoadedDocument } from '../types.js';
+import { checkChars, DEFAULT_DOCUMENT_LIMITS, type DocumentLimits } from './budget.js';
 import { findEffectiveDate, withVersion } from './effective-date.js';
 import { decodeText, titleFromFileName } from './load-text.js';
 import { cleanBlocks } from './normalise.js';
@@ -139,8 +140,11 @@ export function parseMarkdownBlocks(body: string): Block[] {
   return cleanBlocks(blocks);
 }
 
-export function loadMarkdown(bytes: Uint8Array, fileName: string): LoadedDocument {
-  const source = decodeText(bytes).replace(/\r\n?/g, '\n');
+export function loadMarkdown(bytes: Uint8Array, fileName: string, limits: DocumentLimits = DEFAULT_DOCUMENT_LIMITS): LoadedDocument {
+  const decoded = decodeText(bytes);
+  // Markdown's text is nearly all of its source: the source's length is checked before it is parsed.
+  checkChars(decoded.length, limits);
+  const source = decoded.replace(/\r\n?/g, '\n');
   const { metadata, body } = splitFrontMatter(source);
   const blocks = parseMarkdownBlocks(body);
   const h1 = blocks.find((b) => b.kind === 'heading' && b.level === 1);

@@ -1,5 +1,6 @@
 import type { Block, LoadedDocument } from '../types.js';
 import { findEffectiveDate, withVersion } from './effective-date.js';
+import { checkChars, DEFAULT_DOCUMENT_LIMITS, NO_DEADLINE, type Deadline, type DocumentLimits } from './budget.js';
 import { cleanBlocks } from './normalise.js';
 
 /**
@@ -124,10 +125,12 @@ function groupToBlocks(lines: string[], isLastGroup: boolean): Block[] {
 }
 
 /** Blocks of a plain-text document: blank-line paragraphs, underlined, numbered and ALL-CAPS headings. */
-export function parseTextBlocks(text: string): Block[] {
+export function parseTextBlocks(text: string, deadline: Deadline = NO_DEADLINE): Block[] {
   const groups: string[][] = [];
   let current: string[] = [];
+  let lines = 0;
   for (const line of text.replace(/\r\n?/g, '\n').split('\n')) {
+    if (++lines % 4096 === 0) deadline.check('reading lines of text');
     if (line.trim() === '') {
       if (current.length > 0) groups.push(current);
       current = [];
@@ -136,12 +139,20 @@ export function parseTextBlocks(text: string): Block[] {
     }
   }
   if (current.length > 0) groups.push(current);
+  deadline.check('reading lines of text');
   return cleanBlocks(groups.flatMap((g, i) => groupToBlocks(g, i === groups.length - 1)));
 }
 
-export function loadText(bytes: Uint8Array, fileName: string): LoadedDocument {
+export function loadText(
+  bytes: Uint8Array,
+  fileName: string,
+  limits: DocumentLimits = DEFAULT_DOCUMENT_LIMITS,
+  deadline: Deadline = NO_DEADLINE,
+): LoadedDocument {
   const text = decodeText(bytes);
-  const blocks = parseTextBlocks(text);
+  // Checked before the text is split into lines and blocks, the work it bounds.
+  checkChars(text.length, limits);
+  const blocks = parseTextBlocks(text, deadline);
   return unpagedDocument('text', fileName, blocks, blocks.find((b) => b.kind === 'heading')?.text, {}, text);
 }
 

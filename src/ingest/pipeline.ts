@@ -13,6 +13,7 @@ import { documentId, walk } from './files.js';
 import { rebuildCollection } from './full-reindex.js';
 import { loadDocument } from './load.js';
 import type { PdfLimits } from './load-pdf.js';
+import { DEFAULT_DOCUMENT_LIMITS, LimitExceeded, NO_DEADLINE, startDeadline, type Deadline, type DocumentLimits } from './budget.js';
 import { buildNormalisedDocument } from './normalise.js';
 import { addInto, emptySummary, fail, type FileOutcome, type IngestSummary } from './summary.js';
 
@@ -25,6 +26,8 @@ export interface IngestOptions {
   documentMaxBytes: number;
   /** Page and time bounds on one PDF (defaults: load-pdf.ts). */
   pdf?: PdfLimits;
+  /** Bounds on the work one document may cause (defaults: budget.ts). */
+  limits?: DocumentLimits;
 }
 
 export interface IngestProgress {
@@ -77,6 +80,7 @@ export function createIngestor(deps: {
   onProgress?: (p: IngestProgress) => void;
 }): Ingestor {
   const { repo, indexes, embedder, options, logger } = deps;
+  const limits = options.limits ?? DEFAULT_DOCUMENT_LIMITS;
   const batchSize = deps.batchSize ?? 32;
   // Leave room for the heading path that is prepended before embedding, and for [CLS]/[SEP].
   const maxTokens = Math.max(16, Math.min(options.maxTokens, embedder.maxTokens - 40));
@@ -157,12 +161,15 @@ export function createIngestor(deps: {
       return fail(summary, source, 'not a supported document (binary content or unknown type)');
     }
     let loaded;
+    // The parse budget starts with the file's bytes in hand and runs until its chunks are made.
+    const deadline = startDeadline(limits.parseMaxSeconds);
     try {
-      loaded = await loadDocument(bytes, path.basename(file), options.pdf ? { pdf: options.pdf } : {});
+      loaded = await loadDocument(bytes, path.basename(file), { ...(options.pdf ? { pdf: options.pdf } : {}), limits, deadline });
     } catch (err) {
       return fail(summary, source, (err as Error).message);
     }
-    return indexLoaded(loaded, { collection, source, root, contentHash, byteSize: bytes.length, existing: existing !== null }, summary, progress, log);
+    const meta = { collection, source, root, contentHash, byteSize: bytes.length, existing: existing !== null };
+    return indexLoaded(loaded, meta, summary, progress, log, deadline);
   };
 
   const indexLoaded = async (
@@ -171,17 +178,27 @@ export function createIngestor(deps: {
     summary: IngestSummary,
     progress: IngestProgress,
     log: Logger,
+    deadline: Deadline = NO_DEADLINE,
   ): Promise<FileOutcome> => {
     const { collection, source, root, contentHash } = meta;
     trailTokens.clear();
     const normalised = buildNormalisedDocument(loaded.blocks);
     if (normalised.text.trim().length === 0) return fail(summary, source, 'no text found in the document');
-    const drafts = chunkDocument(normalised, {
-      targetTokens,
-      maxTokens,
-      overlapTokens: options.overlapTokens,
-      countTokens: (t) => embedder.countTokens(t),
-    });
+    let drafts: ChunkDraft[];
+    try {
+      drafts = chunkDocument(normalised, {
+        targetTokens,
+        maxTokens,
+        overlapTokens: options.overlapTokens,
+        countTokens: (t) => embedder.countTokens(t),
+        maxChunks: limits.maxChunks,
+        deadline,
+      });
+    } catch (err) {
+      // Over a limit: nothing of the document was embedded or stored.
+      if (err instanceof LimitExceeded) return fail(summary, source, err.message);
+      throw err;
+    }
     const chunks: ChunkInput[] = drafts.map((c) => {
       const text = embedText(loaded.title, c);
       return { ...c, chunkHash: createHash('sha256').update(text).digest('hex'), embedText: text } as ChunkInput & { embedText: string };

@@ -1,3 +1,4 @@
+import path from 'node:path';
 import type { IngestSummary } from '../ingest/index.js';
 import type { JobRecord } from '../store/index.js';
 import type { JobContext } from './context.js';
@@ -8,12 +9,28 @@ export type JobPayload =
   | { kind: 'upload'; via: 'api'; collection: string; root: string; source: string }
   | { kind: 'reindex'; via: 'api'; collection?: string; full?: boolean };
 
+/** A job that ran to its end without doing what it was for; the summary of what it did stays with it. */
+export class JobFailed extends Error {
+  constructor(
+    message: string,
+    readonly summary: IngestSummary,
+  ) {
+    super(message);
+    this.name = 'JobFailed';
+  }
+}
+
 export async function executeJob(ctx: Pick<JobContext, 'ingestor' | 'dataDir'>, job: JobRecord): Promise<IngestSummary> {
   const p = job.payload as JobPayload;
   if (p.kind === 'upload') {
-    // The collection's upload folder is one of its source folders: ingesting it re-processes only what
-    // changed (the new file), exactly as a re-index would.
-    return ctx.ingestor.ingestPath(p.root, { collection: p.collection, removeMissing: true });
+    // Only the uploaded file: a file of the folder that failed before is not this job's to retry. The folder
+    // stays one of the collection's source folders, so a re-index walks all of it.
+    const summary = await ctx.ingestor.ingestPath(path.join(p.root, p.source), { collection: p.collection });
+    // An upload is for its one file: when that file could not be read, the job failed, whatever else the
+    // folder walk did.
+    const own = summary.failures.find((f) => f.source === p.source);
+    if (own) throw new JobFailed(`${p.source}: ${own.reason}`, summary);
+    return summary;
   }
   if (p.kind === 'reindex') {
     return withReindexLock(ctx.dataDir, () =>

@@ -1,5 +1,15 @@
-export { createJobQueue, requeueAbandoned, claimNext, runOne, type JobQueue, type JobThread } from './queue.js';
-export { executeJob, type JobPayload } from './execute.js';
+export {
+  createJobQueue,
+  requeueAbandoned,
+  claimNext,
+  runOne,
+  type JobQueue,
+  type JobThread,
+  type QueueHealth,
+  type ToJobThread,
+  type FromJobThread,
+} from './queue.js';
+export { executeJob, JobFailed, type JobPayload } from './execute.js';
 export { withReindexLock } from './lock.js';
 export { thisProcess, ownerGone, abandonedReason } from './owner.js';
 export type { JobContext } from './context.js';

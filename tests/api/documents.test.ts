@@ -132,12 +132,14 @@ describe('the document API', () => {
     expect((await app.inject({ method: 'DELETE', url: '/v1/collections/uploads/documents/nope' })).json().error.code).toBe('SB_ERR_UNKNOWN_DOCUMENT');
   });
 
-  it('records a bad upload as a failed document in the job result, not a failed request', async () => {
+  it('fails the job of an upload that cannot be read, with the reason, and keeps the summary beside it', async () => {
     const { payload, headers } = multipart('broken.pdf', Buffer.from('%PDF-1.7 this is not a real pdf'));
     const res = await app.inject({ method: 'POST', url: '/v1/collections/uploads/documents', headers, payload });
     expect(res.statusCode).toBe(202);
     await queue.idle();
     const job = (await app.inject({ method: 'GET', url: `/v1/jobs/${res.json().jobId}` })).json();
+    expect(job.state).toBe('failed');
+    expect(job.error).toMatch(/^broken\.pdf: not a readable PDF/);
     expect(job.result.failures.map((f: { source: string }) => f.source)).toContain('broken.pdf');
   });
 });

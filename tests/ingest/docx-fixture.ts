@@ -124,8 +124,13 @@ const NUMBERING = `<?xml version="1.0" encoding="UTF-8" standalone="yes"?>
 
 /** A minimal but complete Word document: content types, package and part relationships, styles, numbering. */
 export function buildDocx(parts: DocxPart[]): Uint8Array {
+  return zipStored(docxEntries(parts));
+}
+
+/** The parts of the document buildDocx packs, in order, for tests that pack them another way. */
+export function docxEntries(parts: DocxPart[]): { name: string; data: string }[] {
   const R = 'http://schemas.openxmlformats.org/officeDocument/2006/relationships';
-  return zipStored([
+  return [
     {
       name: '[Content_Types].xml',
       data: `<?xml version="1.0" encoding="UTF-8" standalone="yes"?>
@@ -159,5 +164,5 @@ export function buildDocx(parts: DocxPart[]): Uint8Array {
     },
     { name: 'word/styles.xml', data: STYLES },
     { name: 'word/numbering.xml', data: NUMBERING },
-  ]);
+  ];
 }
