@@ -149,48 +149,65 @@ const CRC_TABLE = (() => {
 })();
 
 /** CRC-32 as ZIP uses it (reflected polynomial 0xEDB88320, APPNOTE.TXT 4.4.7). */
-function crc32(bytes: Uint8Array): number {
+export function crc32(bytes: Uint8Array): number {
   let c = 0xffffffff;
   for (let i = 0; i < bytes.length; i++) c = CRC_TABLE[(c ^ bytes[i]!) & 0xff]! ^ (c >>> 8);
   return (c ^ 0xffffffff) >>> 0;
 }
 
-/** A ZIP package of the entries, stored (method 0), with true sizes and CRCs. */
-export function writeStoredZip(entries: readonly ZipEntry[]): Buffer {
-  const size = entries.reduce((n, e) => n + 30 + e.name.length + e.data.length + 46 + e.name.length, EOCD_SIZE);
+/** An entry as it goes into a package: its bytes as stored, and what the headers say of them. */
+export interface PackedZipEntry {
+  name: Uint8Array;
+  /** The stored bytes: the data itself (method 0) or its raw DEFLATE stream (method 8). */
+  packed: Uint8Array;
+  method: 0 | 8;
+  /** The inflated size both headers declare. */
+  size: number;
+  crc: number;
+}
+
+/** A ZIP package of the entries, in the given order, with the sizes and CRCs they state. */
+export function writeZip(entries: readonly PackedZipEntry[]): Buffer {
+  const size = entries.reduce((n, e) => n + 30 + e.name.length + e.packed.length + 46 + e.name.length, EOCD_SIZE);
   const out = Buffer.alloc(size);
-  const centrals: { name: Uint8Array; crc: number; length: number; offset: number }[] = [];
+  const offsets: number[] = [];
   let at = 0;
   for (const e of entries) {
-    const crc = crc32(e.data);
+    offsets.push(at);
     out.writeUInt32LE(LOCAL_SIG, at);
     out.writeUInt16LE(20, at + 4); // version needed: 2.0
-    out.writeUInt32LE(crc, at + 14);
-    out.writeUInt32LE(e.data.length, at + 18);
-    out.writeUInt32LE(e.data.length, at + 22);
+    out.writeUInt16LE(e.method, at + 8);
+    out.writeUInt32LE(e.crc, at + 14);
+    out.writeUInt32LE(e.packed.length, at + 18);
+    out.writeUInt32LE(e.size, at + 22);
     out.writeUInt16LE(e.name.length, at + 26);
     out.set(e.name, at + 30);
-    out.set(e.data, at + 30 + e.name.length);
-    centrals.push({ name: e.name, crc, length: e.data.length, offset: at });
-    at += 30 + e.name.length + e.data.length;
+    out.set(e.packed, at + 30 + e.name.length);
+    at += 30 + e.name.length + e.packed.length;
   }
   const centralStart = at;
-  for (const c of centrals) {
+  entries.forEach((e, i) => {
     out.writeUInt32LE(CENTRAL_SIG, at);
     out.writeUInt16LE(20, at + 4);
     out.writeUInt16LE(20, at + 6);
-    out.writeUInt32LE(c.crc, at + 16);
-    out.writeUInt32LE(c.length, at + 20);
-    out.writeUInt32LE(c.length, at + 24);
-    out.writeUInt16LE(c.name.length, at + 28);
-    out.writeUInt32LE(c.offset, at + 42);
-    out.set(c.name, at + 46);
-    at += 46 + c.name.length;
-  }
+    out.writeUInt16LE(e.method, at + 10);
+    out.writeUInt32LE(e.crc, at + 16);
+    out.writeUInt32LE(e.packed.length, at + 20);
+    out.writeUInt32LE(e.size, at + 24);
+    out.writeUInt16LE(e.name.length, at + 28);
+    out.writeUInt32LE(offsets[i]!, at + 42);
+    out.set(e.name, at + 46);
+    at += 46 + e.name.length;
+  });
   out.writeUInt32LE(EOCD_SIG, at);
-  out.writeUInt16LE(centrals.length, at + 8);
-  out.writeUInt16LE(centrals.length, at + 10);
+  out.writeUInt16LE(entries.length, at + 8);
+  out.writeUInt16LE(entries.length, at + 10);
   out.writeUInt32LE(at - centralStart, at + 12);
   out.writeUInt32LE(centralStart, at + 16);
   return out;
+}
+
+/** A ZIP package of the entries, stored (method 0), with true sizes and CRCs. */
+export function writeStoredZip(entries: readonly ZipEntry[]): Buffer {
+  return writeZip(entries.map((e) => ({ name: e.name, packed: e.data, method: 0, size: e.data.length, crc: crc32(e.data) })));
 }

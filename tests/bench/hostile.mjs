@@ -13,46 +13,15 @@ import { fileURLToPath } from 'node:url';
 import { deflateRawSync } from 'node:zlib';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..', '..');
+const { crc32, writeZip } = await import(path.join(root, 'dist', 'ingest', 'zip.js'));
 const MiB = 1024 * 1024;
 const W = 'http://schemas.openxmlformats.org/wordprocessingml/2006/main';
 
-/** A ZIP of deflated entries; `declare` overrides an entry's stated inflated size (a lying header). */
+/** A ZIP of deflated entries, by the service's own writer; `declare` overrides an entry's stated inflated size (a lying header). */
 function zip(entries) {
-  const parts = [];
-  const centrals = [];
-  let offset = 0;
-  for (const e of entries) {
-    const name = Buffer.from(e.name);
-    const packed = deflateRawSync(e.data, { level: 9 });
-    const size = e.declare ?? e.data.length;
-    const local = Buffer.alloc(30);
-    local.writeUInt32LE(0x04034b50, 0);
-    local.writeUInt16LE(20, 4);
-    local.writeUInt16LE(8, 8);
-    local.writeUInt32LE(packed.length, 18);
-    local.writeUInt32LE(size, 22);
-    local.writeUInt16LE(name.length, 26);
-    parts.push(local, name, packed);
-    const central = Buffer.alloc(46);
-    central.writeUInt32LE(0x02014b50, 0);
-    central.writeUInt16LE(20, 4);
-    central.writeUInt16LE(20, 6);
-    central.writeUInt16LE(8, 10);
-    central.writeUInt32LE(packed.length, 20);
-    central.writeUInt32LE(size, 24);
-    central.writeUInt16LE(name.length, 28);
-    central.writeUInt32LE(offset, 42);
-    centrals.push(central, name);
-    offset += 30 + name.length + packed.length;
-  }
-  const centralSize = centrals.reduce((n, b) => n + b.length, 0);
-  const end = Buffer.alloc(22);
-  end.writeUInt32LE(0x06054b50, 0);
-  end.writeUInt16LE(entries.length, 8);
-  end.writeUInt16LE(entries.length, 10);
-  end.writeUInt32LE(centralSize, 12);
-  end.writeUInt32LE(offset, 16);
-  return Buffer.concat([...parts, ...centrals, end]);
+  return writeZip(
+    entries.map((e) => ({ name: Buffer.from(e.name), packed: deflateRawSync(e.data, { level: 9 }), method: 8, size: e.declare ?? e.data.length, crc: crc32(e.data) })),
+  );
 }
 
 function wordFile(body, declare) {

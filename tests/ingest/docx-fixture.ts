@@ -1,70 +1,16 @@
 // Builds .docx files in memory so tests need no binary fixtures. A .docx is a ZIP archive of XML
 // parts (ECMA-376 Office Open XML, Part 2: Open Packaging Conventions); the writer below stores
-// entries uncompressed, which the ZIP format allows (PKWARE APPNOTE.TXT, compression method 0).
+// entries uncompressed, which the ZIP format allows (PKWARE APPNOTE.TXT, compression method 0), with the
+// service's own ZIP writer (src/ingest/zip.ts).
 
-const CRC_TABLE = (() => {
-  const t = new Uint32Array(256);
-  for (let n = 0; n < 256; n++) {
-    let c = n;
-    for (let k = 0; k < 8; k++) c = c & 1 ? 0xedb88320 ^ (c >>> 1) : c >>> 1;
-    t[n] = c >>> 0;
-  }
-  return t;
-})();
+import { writeStoredZip } from '../../src/ingest/zip.js';
 
-/** CRC-32 as ZIP uses it (reflected polynomial 0xEDB88320, APPNOTE.TXT section 4.4.7). */
-export function crc32(bytes: Uint8Array): number {
-  let c = 0xffffffff;
-  for (const b of bytes) c = CRC_TABLE[(c ^ b) & 0xff]! ^ (c >>> 8);
-  return (c ^ 0xffffffff) >>> 0;
-}
+export { crc32 } from '../../src/ingest/zip.js';
 
 /** A ZIP archive of uncompressed entries, in the given order. */
 export function zipStored(entries: { name: string; data: Uint8Array | string }[]): Uint8Array {
   const enc = new TextEncoder();
-  const locals: Uint8Array[] = [];
-  const centrals: Uint8Array[] = [];
-  let offset = 0;
-  for (const e of entries) {
-    const name = enc.encode(e.name);
-    const data = typeof e.data === 'string' ? enc.encode(e.data) : e.data;
-    const crc = crc32(data);
-    const local = new DataView(new ArrayBuffer(30));
-    local.setUint32(0, 0x04034b50, true);
-    local.setUint16(4, 20, true); // version needed: 2.0
-    local.setUint16(8, 0, true); // method: stored
-    local.setUint32(14, crc, true);
-    local.setUint32(18, data.length, true);
-    local.setUint32(22, data.length, true);
-    local.setUint16(26, name.length, true);
-    locals.push(new Uint8Array(local.buffer), name, data);
-    const central = new DataView(new ArrayBuffer(46));
-    central.setUint32(0, 0x02014b50, true);
-    central.setUint16(4, 20, true);
-    central.setUint16(6, 20, true);
-    central.setUint32(16, crc, true);
-    central.setUint32(20, data.length, true);
-    central.setUint32(24, data.length, true);
-    central.setUint16(28, name.length, true);
-    central.setUint32(42, offset, true);
-    centrals.push(new Uint8Array(central.buffer), name);
-    offset += 30 + name.length + data.length;
-  }
-  const centralSize = centrals.reduce((n, b) => n + b.length, 0);
-  const end = new DataView(new ArrayBuffer(22));
-  end.setUint32(0, 0x06054b50, true);
-  end.setUint16(8, entries.length, true);
-  end.setUint16(10, entries.length, true);
-  end.setUint32(12, centralSize, true);
-  end.setUint32(16, offset, true);
-  const parts = [...locals, ...centrals, new Uint8Array(end.buffer)];
-  const out = new Uint8Array(parts.reduce((n, b) => n + b.length, 0));
-  let at = 0;
-  for (const p of parts) {
-    out.set(p, at);
-    at += p.length;
-  }
-  return out;
+  return writeStoredZip(entries.map((e) => ({ name: enc.encode(e.name), data: typeof e.data === 'string' ? enc.encode(e.data) : e.data })));
 }
 
 const W = 'http://schemas.openxmlformats.org/wordprocessingml/2006/main';

@@ -1,8 +1,8 @@
 // Hostile inputs end as failed documents whose reason names the limit they passed, found in bounded memory
 // and time: a ZIP bomb posing as text (honest and lying headers), a package of too many entries, a 50 MB line
 // of text, HTML and Word XML nested far too deep, a document of too many chunks, a parse past its deadline.
-// The ZIP packages are built here (PKWARE APPNOTE.TXT 4.3: local headers, central directory, end record) with
-// Node's zlib for the raw DEFLATE streams (RFC 1951).
+// The ZIP packages are written by the service's own writer (src/ingest/zip.ts; PKWARE APPNOTE.TXT 4.3), here
+// with headers that may lie, and Node's zlib makes the raw DEFLATE streams (RFC 1951).
 import { once } from 'node:events';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -16,65 +16,17 @@ import { buildNormalisedDocument } from '../../src/ingest/normalise.js';
 import { createDocumentApi } from '../../src/runtime.js';
 import { tempRuntime } from '../fixtures/runtime.js';
 import { withDeadline } from '../fixtures/wait.js';
-import { crc32, docxEntries } from './docx-fixture.js';
+import { crc32, writeZip, type PackedZipEntry } from '../../src/ingest/zip.js';
+import { docxEntries } from './docx-fixture.js';
 
 const cleanups: (() => void | Promise<void>)[] = [];
 afterEach(async () => {
   for (const c of cleanups.splice(0).reverse()) await c();
 });
 
-interface PackedEntry {
-  name: string;
-  /** The entry's bytes as stored in the package (raw DEFLATE when `method` is 8). */
-  packed: Uint8Array;
-  method: 0 | 8;
-  /** The inflated size the headers declare (the truth, unless a test makes them lie). */
-  declaredSize: number;
-  crc: number;
-}
-
-function deflated(name: string, data: string | Uint8Array): PackedEntry {
+function deflated(name: string, data: string | Uint8Array): PackedZipEntry {
   const bytes = typeof data === 'string' ? new TextEncoder().encode(data) : data;
-  return { name, packed: deflateRawSync(bytes), method: 8, declaredSize: bytes.length, crc: crc32(bytes) };
-}
-
-/** A ZIP package of the given entries, with the sizes and CRCs they state in both headers. */
-function zip(entries: PackedEntry[]): Buffer {
-  const parts: Buffer[] = [];
-  const centrals: Buffer[] = [];
-  let offset = 0;
-  for (const e of entries) {
-    const name = Buffer.from(e.name);
-    const local = Buffer.alloc(30);
-    local.writeUInt32LE(0x04034b50, 0);
-    local.writeUInt16LE(20, 4);
-    local.writeUInt16LE(e.method, 8);
-    local.writeUInt32LE(e.crc, 14);
-    local.writeUInt32LE(e.packed.length, 18);
-    local.writeUInt32LE(e.declaredSize, 22);
-    local.writeUInt16LE(name.length, 26);
-    parts.push(local, name, Buffer.from(e.packed));
-    const central = Buffer.alloc(46);
-    central.writeUInt32LE(0x02014b50, 0);
-    central.writeUInt16LE(20, 4);
-    central.writeUInt16LE(20, 6);
-    central.writeUInt16LE(e.method, 10);
-    central.writeUInt32LE(e.crc, 16);
-    central.writeUInt32LE(e.packed.length, 20);
-    central.writeUInt32LE(e.declaredSize, 24);
-    central.writeUInt16LE(name.length, 28);
-    central.writeUInt32LE(offset, 42);
-    centrals.push(central, name);
-    offset += 30 + name.length + e.packed.length;
-  }
-  const centralSize = centrals.reduce((n, b) => n + b.length, 0);
-  const end = Buffer.alloc(22);
-  end.writeUInt32LE(0x06054b50, 0);
-  end.writeUInt16LE(entries.length, 8);
-  end.writeUInt16LE(entries.length, 10);
-  end.writeUInt32LE(centralSize, 12);
-  end.writeUInt32LE(offset, 16);
-  return Buffer.concat([...parts, ...centrals, end]);
+  return { name: Buffer.from(name), packed: deflateRawSync(bytes), method: 8, size: bytes.length, crc: crc32(bytes) };
 }
 
 const W = 'http://schemas.openxmlformats.org/wordprocessingml/2006/main';
@@ -101,8 +53,8 @@ async function bombDocx(mib: number, opts: { declaredSize?: number } = {}): Prom
   await once(d, 'end');
   const size = head.length + mib * MiB + tail.length;
   const others = docxEntries([]).filter((e) => e.name !== 'word/document.xml').map((e) => deflated(e.name, e.data));
-  const document: PackedEntry = { name: 'word/document.xml', packed: Buffer.concat(out), method: 8, declaredSize: opts.declaredSize ?? size, crc: 0 };
-  return zip([...others, document]);
+  const document: PackedZipEntry = { name: Buffer.from('word/document.xml'), packed: Buffer.concat(out), method: 8, size: opts.declaredSize ?? size, crc: 0 };
+  return writeZip([...others, document]);
 }
 
 /** Ingests one file of the given name and bytes into a fresh store; returns the summary and the runtime. */
@@ -149,7 +101,7 @@ describe('a ZIP bomb', () => {
   it('of more entries than limits.zipMaxEntries fails before any entry is read', async () => {
     const entries = docxEntries([{ paragraph: 'Buses run every ten minutes.' }]).map((e) => deflated(e.name, e.data));
     for (let i = 0; i < 40; i++) entries.push(deflated(`word/media/filler${i}.bin`, ''));
-    const { summary } = await ingestOne('timetable.docx', zip(entries), { zipMaxEntries: 32 });
+    const { summary } = await ingestOne('timetable.docx', writeZip(entries), { zipMaxEntries: 32 });
     expect(summary.failures).toEqual([
       { source: 'timetable.docx', reason: 'the package declares 46 entries, over the limit of 32 (limits.zipMaxEntries)' },
     ]);
@@ -162,14 +114,14 @@ describe('a ZIP bomb', () => {
     const entries = docxEntries([]).map((e) =>
       e.name === 'word/document.xml' ? deflated(e.name, `<?xml version="1.0"?><w:document xmlns:w="${W}"><w:body>${body}</w:body></w:document>`) : deflated(e.name, e.data),
     );
-    const { summary } = await ingestOne('stops.docx', zip(entries));
+    const { summary } = await ingestOne('stops.docx', writeZip(entries));
     expect(summary.failures).toHaveLength(1);
     expect(summary.failures[0]!.reason).toMatch(/^the Word file has 6,\d{3},\d{3} characters of text, over the limit of 5,000,000 \(limits\.documentMaxChars\)$/);
   });
 
   it('leaves an honest deflated Word file readable, through the same bounded reader', async () => {
     const entries = docxEntries([{ heading: 1, text: 'Lost property' }, { paragraph: 'Items found on trams are kept at Marrowgate depot for 30 days.' }]);
-    const loaded = await loadDocument(zip(entries.map((e) => deflated(e.name, e.data))), 'lost-property.docx');
+    const loaded = await loadDocument(writeZip(entries.map((e) => deflated(e.name, e.data))), 'lost-property.docx');
     expect(loaded.title).toBe('Lost property');
     expect(loaded.blocks.map((b) => b.text)).toEqual(['Lost property', 'Items found on trams are kept at Marrowgate depot for 30 days.']);
   });
@@ -195,7 +147,7 @@ describe('text and markup past the limits', () => {
     const entries = docxEntries([]).map((e) =>
       e.name === 'word/document.xml' ? deflated(e.name, `<?xml version="1.0"?><w:document xmlns:w="${W}"><w:body>${body}</w:body></w:document>`) : deflated(e.name, e.data),
     );
-    const { summary } = await ingestOne('nested.docx', zip(entries));
+    const { summary } = await ingestOne('nested.docx', writeZip(entries));
     expect(summary.failures).toEqual([{ source: 'nested.docx', reason: 'the Word file nests elements more than 512 deep (limits.htmlMaxDepth)' }]);
   });
 
