@@ -14,6 +14,7 @@ import { citationFor, coveredByParts } from './cite.js';
 import { SENTENCE_FEATURES, logistic, type LinearModel } from './evidence.js';
 import { FITTED_MODEL } from './fitted-model.js';
 import { taintedSentences } from './planted.js';
+import { LEADER_ROW } from '../ingest/load-text.js';
 import { isJunkSentence, leansBack, splitSentences, tableHeader, type SentenceSpan } from './sentences.js';
 import { isLightTerm, questionTerms, relatedIn, termMatch, type Lexicon, type QuestionTerm } from './terms.js';
 import type { ContextSource } from './types.js';
@@ -251,12 +252,9 @@ export function display(quote: string): string {
     .join(' ');
 }
 
-// A line of a dotted-leader table ("Adult book overdue ........ 25p per day").
-const LEADER = /\S\s*(?:\.{4,}|…{2,}|_{4,})\s*\S/;
-
 /** A line of a leader table ("Opening hours ........ 9:00-17:00") or a pipe table ("| a | b |"). */
 function isTableLine(line: string): boolean {
-  return LEADER.test(line) || /^\s*\|.*\|\s*$/.test(line) || /\S\s+\|\s+\S.*\S\s+\|\s+\S/.test(line);
+  return LEADER_ROW.test(line) || /^\s*\|.*\|\s*$/.test(line) || /\S\s+\|\s+\S.*\S\s+\|\s+\S/.test(line);
 }
 
 /**
@@ -314,7 +312,7 @@ export function candidates(sources: ContextSource[]): Candidate[] {
         leadIn = null;
         continue;
       }
-      const row = LEADER.test(span.text) || span.text.includes('|');
+      const row = LEADER_ROW.test(span.text) || span.text.includes('|');
       const item = LIST_ITEM.test(span.text);
       const section = sectionAt(source, span.start);
       const heading = contentStems(`${section} ${tableHeader(source.text, span)}`);

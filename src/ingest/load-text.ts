@@ -28,8 +28,8 @@ export function titleFromFileName(fileName: string): string {
   return (dot > 0 ? base.slice(0, dot) : base).trim() || base;
 }
 
-/** A row of a leader table: a label, a run of dots or underscores, a value. */
-const LEADER_ROW = /\S\s*(?:\.{4,}|…{2,}|_{4,})\s*\S/;
+/** A row of a leader table: a label, a run of dots or underscores, a value (the answer step reads rows by it too). */
+export const LEADER_ROW = /\S\s*(?:\.{4,}|…{2,}|_{4,})\s*\S/;
 const UNDERLINE_1 = /^\s*={3,}\s*$/;
 const UNDERLINE_2 = /^\s*-{3,}\s*$/;
 const NUMBERED_HEADING = /^(\d{1,3}(?:\.\d{1,3})*)\.?\s+(\S.*)$/u;
