@@ -54,7 +54,15 @@ describe('a job thread that dies', () => {
     const hits = await rt.retriever.search({ query: 'wifi Brackenfold', collection: 'c', k: 3, mode: 'hybrid' });
     expect(hits[0]!.source).toBe('tram-wifi.md');
 
-    const res = await app.inject({ method: 'GET', url: '/health' });
+    // The thread records the job's end in the database before its message reaches the queue: wait for the
+    // queue to have heard it too.
+    const res = await waitFor(
+      async () => {
+        const r = await app.inject({ method: 'GET', url: '/health' });
+        return (r.json() as { queue?: { state?: string } }).queue?.state === 'idle' ? r : null;
+      },
+      { what: 'the queue to report idle after the last job', detail: () => JSON.stringify(queue.health()) },
+    );
     expect(res.statusCode).toBe(200);
     expect(res.json()).toMatchObject({
       status: 'ok',
@@ -92,6 +100,7 @@ describe('a job thread that dies', () => {
       detail: () => JSON.stringify(queue.health()),
     });
     expect(next.error).toBe(failed.error);
+    await waitFor(() => queue.health().threadDeaths === 2, { what: 'the queue to count the second stopped thread', detail: () => JSON.stringify(queue.health()) });
     expect(queue.health()).toMatchObject({ pending: 0, threadDeaths: 2, lastThreadDeath: { jobId: second.id, reason: failed.error } });
   });
 
