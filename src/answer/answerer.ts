@@ -268,6 +268,7 @@ export function createAnswerer(deps: AnswererDeps): Answerer {
         claims,
         confidence: fittedSetUp ? Math.round(decision.confidence * 1000) / 1000 : raw,
         confidenceCalibrated: fittedSetUp,
+        ...(fittedSetUp && model.calibration.heldOutError !== undefined ? { confidenceError: model.calibration.heldOutError } : {}),
         evidence: raw,
         ...explained,
       };

@@ -8,6 +8,11 @@ import { round3 } from '../numbers.js';
 /** Knots [minimum raw score of a block, share correct in it], ascending in both. */
 export interface IsotonicMap {
   knots: readonly (readonly [number, number])[];
+  /**
+   * The largest gap, on corpora the fit did not see, between the confidence stated and the share of
+   * answers that were right (over reliability bins of at least 10 answers): how far to trust it.
+   */
+  heldOutError?: number;
 }
 
 /**

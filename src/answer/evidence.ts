@@ -45,6 +45,11 @@ export const SENTENCE_FEATURES = [
   // A table row or a dotted-leader line.
   'tableRow',
 ] as const;
+// Tried and left out, each measured held out over the four sets (docs/eval-answers.md): the
+// sentence's length (PolicyQA's top-three hits up by under 0.01, and it preferred a long sentence
+// about the wrong fact in a plain "how long" question); whether the sentence holds the question's
+// rarest topic term, and whether it is itself a question (no set gained a question; the confidence
+// calibration got worse).
 
 /**
  * Features of a question's evidence, in the order the decision's weights use. Three, because the
@@ -52,6 +57,9 @@ export const SENTENCE_FEATURES = [
  * per variable to be stable (Peduzzi et al., J Clin Epidemiol 1996, a rule of thumb of the trade):
  * how well the best sentence covers the question with its context, how well anything in the
  * context does, and how much of the question names things the collection never mentions.
+ * Tried and left out: whether the best sentence holds the question's rarest topic term (no held-out
+ * gain), and the ranker's own probability for its best sentence (its level moved from corpus to
+ * corpus: held out, a fold fitted without PolicyQA abstained on all of PolicyQA).
  */
 export const QUESTION_FEATURES = ['bestContextCoverage', 'maxContextCoverage', 'unknownShare'] as const;
 

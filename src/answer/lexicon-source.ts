@@ -5,7 +5,8 @@
 // A terms file is `<termsDir>/<collection>.json`:
 //   { "groups": [["reimbursement", "repayment"], ["concession", "reduced fare"]] }
 // Each group is one meaning in the collection's trade; a question that words it one way finds
-// sentences that word it another. Validated on load; a bad file is reported and ignored.
+// sentences that word it another. Validated on load; a bad file is reported and ignored. The
+// abbreviations the documents define themselves (abbreviations.ts) join the groups unasked.
 
 import { readFileSync, statSync } from 'node:fs';
 import path from 'node:path';
@@ -85,11 +86,23 @@ export function createLexiconSource(deps: LexiconSourceDeps): (collection: strin
     return parsed;
   };
 
+  // The operator's groups plus the abbreviations the documents define, as one stable array per
+  // (vocabulary, terms file) pair: the term matcher caches its patterns by the array.
+  const combined = new WeakMap<Vocabulary, { from: TermsFile['groups'] | undefined; groups: TermsFile['groups'] }>();
+  const allGroups = (v: Vocabulary | undefined, g: TermsFile['groups'] | undefined): TermsFile['groups'] | undefined => {
+    if (!v || v.abbreviations.length === 0) return g;
+    const hit = combined.get(v);
+    if (hit && hit.from === g) return hit.groups;
+    const groups = [...(g ?? []), ...v.abbreviations.map((a) => [a.long, a.short])];
+    combined.set(v, { from: g, groups });
+    return groups;
+  };
+
   return (collection) => {
     const lex: Lexicon = {};
     const v = vocabulary(collection);
     if (v) lex.vocabulary = v;
-    const g = groups(collection);
+    const g = allGroups(v, groups(collection));
     if (g && g.length > 0) lex.groups = g;
     if (deps.synonyms) lex.synonyms = deps.synonyms;
     return lex;

@@ -85,6 +85,8 @@ export interface AnswerReply extends AnswerResult {
    * fit did not see); false when it is the raw score of a set-up the models were never fitted on.
    */
   confidenceCalibrated?: boolean;
+  /** With a calibrated confidence: the largest gap between stated confidence and share correct seen on held-out corpora. */
+  confidenceError?: number;
   abstainReason?: string;
   context: ContextReport;
   /** Present when `question` is a rewrite of a follow-up. */

@@ -7,6 +7,7 @@
 // distance (Damerau 1964; the optimal-string-alignment variant). Lookups cost a few hash probes
 // instead of a scan of the vocabulary.
 
+import { findAbbreviations, type Abbreviation } from './abbreviations.js';
 import { contentTokens, labelTokens, tokenize } from './words.js';
 
 export interface Vocabulary {
@@ -21,6 +22,8 @@ export interface Vocabulary {
    * 2 beyond), nearest first, then the most used; empty for a word the collection uses itself.
    */
   corrections(word: string): { word: string; stem: string; distance: number }[];
+  /** Abbreviations the documents define ("time off in lieu (TOIL)"), each pair once. */
+  readonly abbreviations: readonly Abbreviation[];
 }
 
 // Shorter words have too many neighbours at any distance to correct safely.
@@ -32,7 +35,9 @@ export function buildVocabulary(texts: Iterable<string>): Vocabulary {
   const df = new Map<string, number>();
   const words = new Map<string, { stem: string; count: number }>();
   let lines = 0;
+  const abbreviations = new Map<string, Abbreviation>();
   for (const text of texts) {
+    for (const a of findAbbreviations(text)) abbreviations.set(`${a.short}\u0000${a.long}`, a);
     for (const line of text.split(/\n+/)) {
       if (!/[\p{L}\p{N}]/u.test(line)) continue;
       lines++;
@@ -61,6 +66,7 @@ export function buildVocabulary(texts: Iterable<string>): Vocabulary {
   const cache = new Map<string, { word: string; stem: string; distance: number }[]>();
   return {
     lines,
+    abbreviations: [...abbreviations.values()],
     df: (stem) => df.get(stem) ?? 0,
     hasWord: (word) => words.has(word.toLowerCase()),
     corrections(raw) {

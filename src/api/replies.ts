@@ -63,6 +63,7 @@ export const answerReply = z.object({
   claims: z.array(claim).optional(),
   confidence: z.number().min(0).max(1),
   confidenceCalibrated: z.boolean().optional(),
+  confidenceError: z.number().min(0).max(1).optional().describe('how far a calibrated confidence was off on held-out corpora, at most'),
   evidence: z.number().optional(),
   caution: z.string().describe('show it near the answer'),
   fallbackReason: z.string().optional(),

@@ -295,6 +295,16 @@ function fitCalibration(points: { corpus: string; p: number; correct: boolean }[
   );
 }
 
+// Reliability bins with fewer answers than this say more about chance than about calibration.
+const MIN_BIN_ANSWERS = 10;
+
+/** The largest held-out gap between stated confidence and share correct, rounded up to 0.05. */
+function heldOutError(figs: readonly CorpusFigures[]): number {
+  let worst = 0;
+  for (const f of figs) for (const b of f.reliability) if (b.answers >= MIN_BIN_ANSWERS) worst = Math.max(worst, Math.abs(b.meanConfidence - b.correct));
+  return Math.min(1, Math.ceil(worst * 20 - 1e-9) / 20);
+}
+
 export interface FitResult {
   model: AnswerModel;
   /** Per corpus: the models fitted without it, and its figures under them. */
@@ -332,7 +342,7 @@ export function fitAnswerModels(records: EvidenceRecord[], opts: FitOptions = {}
   const ranker = fitRanker(records, lambda);
   const composition = fitComposition(records, ranker, maxSentences);
   const decision = fitDecision(questionRows(records, ranker, composition), lambda);
-  const calibration = fitCalibration(folds.flatMap((f) => f.points));
+  const calibration: IsotonicMap = { ...fitCalibration(folds.flatMap((f) => f.points)), heldOutError: heldOutError(heldOut.map((h) => h.figures)) };
   return {
     model: { provenance: `${stamp}; this model on all of them, calibrated on held-out predictions`, composition, sentence: ranker, decision, calibration },
     heldOut,

@@ -132,7 +132,9 @@ export function createAnswerView(state: DeskState, reader: Reader, tools: Answer
       'p',
       { class: 'confidence' },
       done.confidenceCalibrated
-        ? `Confidence ${Math.round(done.confidence * 100)}%: a rough guide. It was measured on other organisations' documents, where it was off by up to 30 points either way; check the quoted source.`
+        ? `Confidence ${Math.round(done.confidence * 100)}%: a rough guide. It was measured on other organisations' documents${
+            done.confidenceError !== undefined ? `, where it was off by up to ${Math.round(done.confidenceError * 100)} points either way` : ''
+          }; check the quoted source.`
         : `Evidence score ${Math.round(done.confidence * 100)} of 100 (not calibrated for this set-up).`,
     );
     return [list, el('h3', {}, 'Sources'), notes, confidence];

@@ -2,6 +2,7 @@ import { afterEach, describe, expect, it } from 'vitest';
 import { ABSTAIN_TEXT } from '../../src/answer/abstain.js';
 import { createAnswerer, standaloneQuestion, type AnswererDeps, type RetrieveRequest } from '../../src/answer/answerer.js';
 import { buildVocabulary } from '../../src/answer/vocabulary.js';
+import { FITTED_MODEL } from '../../src/answer/fitted-model.js';
 import { CAUTION } from '../../src/answer/caution.js';
 import { createCompletionClient } from '../../src/answer/completion.js';
 import type { CompletionClient } from '../../src/answer/types.js';
@@ -295,6 +296,19 @@ describe('createAnswerer reporting', () => {
     expect(r.confidence).toBeLessThanOrEqual(1);
     const none = await build({}, []).answerer.answer({ question: 'How long do I have to claim a delay refund?', collection: 'default' });
     expect(none).toMatchObject({ abstained: true, confidence: 0, abstainReason: 'no_hits' });
+  });
+
+  it('states how far a calibrated confidence was off held out, and nothing of the kind for a set-up never fitted', async () => {
+    const question = { question: 'How long do I have to claim a delay refund?', collection: 'default' };
+    const lexical = createAnswerer({ retrieve: async () => hitsFixture(), embedder: { ...embedder, semantic: false }, countTokens: countWords, options });
+    const fitted = await lexical.answer(question);
+    expect(fitted.abstained).toBe(false);
+    expect(fitted.confidenceCalibrated).toBe(true);
+    expect(FITTED_MODEL.calibration.heldOutError).toBeGreaterThan(0);
+    expect(fitted.confidenceError).toBe(FITTED_MODEL.calibration.heldOutError);
+    const learned = await createAnswerer({ retrieve: async () => hitsFixture(), embedder, countTokens: countWords, options }).answer(question);
+    expect(learned.confidenceCalibrated).toBe(false);
+    expect(learned.confidenceError).toBeUndefined();
   });
 
   it('rewrites a follow-up with the completion endpoint, retrieves with the rewrite and returns it', async () => {

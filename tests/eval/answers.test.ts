@@ -2,6 +2,7 @@ import { existsSync, readFileSync } from 'node:fs';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { evaluateAnswers } from '../../src/eval/index.js';
+import { FITTED_MODEL } from '../../src/answer/fitted-model.js';
 import { SEED_DIR } from '../fixtures/runtime.js';
 
 const ENV = { SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_LOG_LEVEL: 'silent' };
@@ -38,6 +39,18 @@ interface HeldOut {
   falseAbstention: number;
 }
 const REPORT = JSON.parse(readFileSync(path.join(MODELS, 'report.json'), 'utf8')) as { heldOut: HeldOut[] };
+describe('the shipped calibration', () => {
+  it("states as its error the largest held-out gap of report.json's reliability bins of 10 answers or more", () => {
+    const report = REPORT as unknown as { heldOut: { reliability: { answers: number; meanConfidence: number; correct: number }[] }[] };
+    let worst = 0;
+    for (const h of report.heldOut) for (const b of h.reliability) if (b.answers >= 10) worst = Math.max(worst, Math.abs(b.meanConfidence - b.correct));
+    const stated = FITTED_MODEL.calibration.heldOutError ?? -1;
+    // Rounded up to the next 0.05: never below the worst gap, never a whole step above it.
+    expect(stated).toBeGreaterThanOrEqual(worst - 1e-9);
+    expect(stated - worst).toBeLessThan(0.05);
+  });
+});
+
 describe.each(['kestrel-housing', 'fenwold-libraries'])('held-out answers on %s', (set) => {
   const recorded = REPORT.heldOut.find((h) => h.corpus === set) as HeldOut;
   const questions = path.join(SHARED, set, 'questions.jsonl');
