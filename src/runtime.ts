@@ -21,6 +21,7 @@ import {
   abandonedReason,
   createDocumentService,
   createJobQueue,
+  heartbeatMs,
   ownerGone,
   requeueAbandoned,
   thisProcess,
@@ -287,7 +288,11 @@ export async function ingestAsJob(
   run: () => Promise<IngestSummary>,
 ): Promise<IngestSummary> {
   const job = rt.jobs.create(kind, collection, payload);
-  rt.jobs.start(job.id, thisProcess());
+  const owner = thisProcess();
+  const leaseMs = rt.config.limits.jobLeaseSeconds * 1000;
+  rt.jobs.start(job.id, owner, leaseMs);
+  const heartbeat = setInterval(() => rt.jobs.renewLeases(owner.holder, leaseMs), heartbeatMs(leaseMs));
+  heartbeat.unref();
   try {
     const summary = await run();
     rt.jobs.succeed(job.id, summary);
@@ -295,6 +300,8 @@ export async function ingestAsJob(
   } catch (err) {
     rt.jobs.fail(job.id, (err as Error).message);
     throw err;
+  } finally {
+    clearInterval(heartbeat);
   }
 }
 
@@ -332,6 +339,7 @@ export function jobContext(rt: Runtime): JobContext {
     ingestor: rt.ingestor,
     indexes: rt.indexes,
     owner: thisProcess(),
+    leaseMs: rt.config.limits.jobLeaseSeconds * 1000,
   };
 }
 
