@@ -23,6 +23,7 @@ import {
   createJobQueue,
   heartbeatMs,
   ownerGone,
+  removeStaleIncoming,
   requeueAbandoned,
   thisProcess,
   type DocumentService,
@@ -359,6 +360,9 @@ export function createDocumentApi(
   opts: { onJobDone?: Parameters<typeof createJobQueue>[0]['onJobDone'] } = {},
 ): { queue: JobQueue; documents: DocumentService } {
   const ctx = jobContext(rt);
+  // Uploads a server that stopped was still receiving: no job was made for them, so they would stay for ever.
+  const partial = removeStaleIncoming(ctx.dataDir, performance.timeOrigin);
+  if (partial.length > 0) rt.logger.warn({ files: partial.length }, 'removed uploads left half-received by a server that stopped');
   requeueAbandoned(ctx);
   const queue = createJobQueue({
     ctx,

@@ -6,6 +6,7 @@ import type { Readable } from 'node:stream';
 import { SourceboundError } from '../errors.js';
 import type { DocumentRecord, JobRecord } from '../store/index.js';
 import type { JobContext } from './context.js';
+import { INCOMING_PREFIX, uploadsDir } from './incoming.js';
 import type { JobQueue } from './queue.js';
 
 export type UploadOutcome =
@@ -58,7 +59,7 @@ export function checkFileName(name: string): string {
 
 export function createDocumentService(ctx: JobContext, queue: JobQueue): DocumentService {
   const { store } = ctx;
-  const uploadsRoot = path.join(ctx.dataDir, 'uploads');
+  const uploadsRoot = uploadsDir(ctx.dataDir);
   const maxBytes = ctx.maxUploadBytes;
 
   const summary = (d: DocumentRecord): DocumentSummary => ({
@@ -87,7 +88,7 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): Documen
       const folder = path.join(uploadsRoot, collection);
       mkdirSync(folder, { recursive: true });
       // Dot-prefixed, so a concurrent folder walk never picks up a half-written upload.
-      const tmp = path.join(folder, `.incoming-${randomUUID()}`);
+      const tmp = path.join(folder, `${INCOMING_PREFIX}${randomUUID()}`);
       const hash = createHash('sha256');
       let size = 0;
       try {

@@ -15,3 +15,4 @@ export { withReindexLock, REINDEX_LEASE, type LeaseDeps } from './lock.js';
 export { thisProcess, ownerGone, abandonedReason } from './owner.js';
 export type { JobContext } from './context.js';
 export { createDocumentService, checkFileName, type DocumentService, type DocumentSummary, type UploadOutcome } from './documents.js';
+export { removeStaleIncoming, uploadsDir, INCOMING_PREFIX } from './incoming.js';
