@@ -32,7 +32,7 @@ import {
 } from './jobs/index.js';
 import type { CompletionClient } from './answer/index.js';
 import { createLexicalMemory, createRetriever, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
-import { createVectorIndexes, openStore, storePaths, type JobStore, type Repository, type Store, type VectorIndexes } from './store/index.js';
+import { createOriginals, createVectorIndexes, openStore, storePaths, type JobStore, type Repository, type Store, type VectorIndexes } from './store/index.js';
 
 export interface Runtime {
   config: Readonly<Config>;
@@ -314,7 +314,7 @@ export function appDeps(rt: Runtime, isReady: () => boolean, documents?: Documen
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,
-    desk: createDeskService({ repo: rt.repo, ratings: rt.store.ratings }),
+    desk: createDeskService({ repo: rt.repo, ratings: rt.store.ratings, originals: createOriginals(storePaths(rt.config.dataDir).originalsDir) }),
     search: (req) => rt.retriever.search(req),
     answer: (req: HttpAnswerRequest) => {
       const answerer = req.style === 'extractive' ? rt.extractiveAnswerer : rt.answerer;
@@ -339,6 +339,7 @@ export function jobContext(rt: Runtime): JobContext {
     store: rt.store,
     ingestor: rt.ingestor,
     indexes: rt.indexes,
+    originals: createOriginals(storePaths(rt.config.dataDir).originalsDir),
     owner: thisProcess(),
     leaseMs: rt.config.limits.jobLeaseSeconds * 1000,
   };

@@ -6,7 +6,7 @@ import { withReindexLock } from './lock.js';
 
 /** What a queued job asks for. Jobs are plain rows; this is the one place that knows how to run them. */
 export type JobPayload =
-  | { kind: 'upload'; via: 'api'; collection: string; root: string; source: string }
+  | { kind: 'upload'; via: 'api'; collection: string; root: string; source: string; contentHash?: string }
   | { kind: 'reindex'; via: 'api'; collection?: string; full?: boolean };
 
 /** A job that ran to its end without doing what it was for; the summary of what it did stays with it. */

@@ -15,4 +15,5 @@ export { withReindexLock, REINDEX_LEASE, type LeaseDeps } from './lock.js';
 export { thisProcess, ownerGone, abandonedReason } from './owner.js';
 export type { JobContext } from './context.js';
 export { createDocumentService, checkFileName, type DocumentService, type DocumentSummary, type UploadOutcome } from './documents.js';
+export { failedUploadsDir, type FailedUpload } from './set-aside.js';
 export { removeStaleIncoming, uploadsDir, INCOMING_PREFIX } from './incoming.js';

@@ -71,9 +71,9 @@ export async function runOne(ctx: JobContext, job: JobRecord, log: Logger): Prom
 }
 
 /** Moves a failed upload's file aside (src/jobs/set-aside.ts); a failure to do so is logged, never thrown. */
-function setAside(ctx: Pick<JobContext, 'dataDir'>, job: JobRecord, log: Logger): string | null {
+function setAside(ctx: JobContext, job: JobRecord, log: Logger): string | null {
   try {
-    return setAsideUpload(ctx.dataDir, job);
+    return setAsideUpload(ctx, job);
   } catch (err) {
     log.error({ err }, 'could not move the failed upload out of its folder');
     return null;

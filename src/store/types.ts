@@ -283,6 +283,8 @@ export interface JobStore {
   get(id: string): JobRecord | null;
   /** Jobs by state; only those of these collections when given (jobs of no single collection are then left out). */
   counts(collections?: readonly string[]): { state: JobState; count: number }[];
+  /** The queued or running upload job of this collection whose payload carries this content hash, if any. */
+  activeUpload(collection: string, contentHash: string): JobRecord | null;
   /** Queue jobs (payload `via: "api"`) queued or running. */
   pendingQueued(): number;
   /** Claims the oldest queued job for `owner` (a lease of `leaseMs`) atomically, so two runners never take the same one. */

@@ -39,6 +39,8 @@ export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobSto
     succeed: db.prepare("UPDATE jobs SET state = 'succeeded', result = ?, error = NULL, finished_at = ? WHERE id = ?"),
     fail: db.prepare("UPDATE jobs SET state = 'failed', error = ?, result = ?, finished_at = ? WHERE id = ?"),
     get: db.prepare('SELECT * FROM jobs WHERE id = ?'),
+    activeUpload: db.prepare(`SELECT * FROM jobs WHERE state IN ('queued', 'running') AND kind = 'upload' AND collection = ?
+      AND json_extract(payload, '$.contentHash') = ? ORDER BY created_at, rowid LIMIT 1`),
     counts: db.prepare('SELECT state, count(*) AS count FROM jobs GROUP BY state'),
     // json_each binds the list as one parameter, however long it is.
     countsOf: db.prepare('SELECT state, count(*) AS count FROM jobs WHERE collection IN (SELECT value FROM json_each(?)) GROUP BY state'),
@@ -82,6 +84,10 @@ export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobSto
     },
     get(id) {
       const r = st.get.get(id) as Record<string, unknown> | undefined;
+      return r ? toJob(r) : null;
+    },
+    activeUpload(collection, contentHash) {
+      const r = st.activeUpload.get(collection, contentHash) as Record<string, unknown> | undefined;
       return r ? toJob(r) : null;
     },
     counts(collections) {
