@@ -329,8 +329,18 @@ export interface RatingStore {
   list(opts?: { collection?: string }): Rating[];
 }
 
+/** The database's own consistency checks (`sourcebound check`). */
+export interface DatabaseIntegrity {
+  /** What SQLite's `PRAGMA integrity_check` reported other than "ok" (each line a problem). */
+  sqlite: string[];
+  /** FTS5's 'integrity-check' command on the full-text index: null when it passed, else its error. */
+  fts: string | null;
+}
+
 /** Everything the service keeps. */
 export interface Store extends Repository {
+  /** Runs the database's own consistency checks (reads everything: slow on a large store). */
+  integrity(): DatabaseIntegrity;
   readonly jobs: JobStore;
   readonly leases: LeaseStore;
   readonly ratings: RatingStore;

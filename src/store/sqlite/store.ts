@@ -1,10 +1,11 @@
 // The SQLite implementation of the store: one database file (WAL mode) holds collections, documents, chunks,
 // their FTS5 rows and vectors, jobs and ratings (docs/architecture.md, "Storage").
 
-import type { JobStore, LeaseStore, RatingStore, Repository, Store } from '../types.js';
+import type { DatabaseIntegrity, JobStore, LeaseStore, RatingStore, Repository, Store } from '../types.js';
 import { sqliteChunks, sqliteFtsSearch } from './chunks.js';
 import { sqliteCollections, sqliteDocuments } from './corpus.js';
 import { openDatabase, type Db } from './db.js';
+import { sqliteIntegrity } from './integrity.js';
 import { sqliteJobs } from './jobs.js';
 import { sqliteLeases } from './leases.js';
 import { sqliteLexical } from './lexical.js';
@@ -35,6 +36,10 @@ export class SqliteStore implements Store {
     this.jobs = sqliteJobs(db, clock);
     this.leases = sqliteLeases(db, clock);
     this.ratings = sqliteRatings(db);
+  }
+
+  integrity(): DatabaseIntegrity {
+    return sqliteIntegrity(this.db);
   }
 
   async backup(file: string): Promise<void> {
