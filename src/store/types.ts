@@ -246,10 +246,16 @@ export interface Lease {
 /** Named leases: one holder at a time, taken over once its holder stops renewing it. */
 export interface LeaseStore {
   /**
-   * Takes the lease for `owner` until now + `ttlMs` when it is free, expired, or held by `owner` already;
-   * otherwise returns the live lease that is in the way. Atomic across processes.
+   * Takes the lease for `owner` until now + `ttlMs` when it is free, expired, held by `owner` already, or held
+   * by an owner `isGone` knows has ended (a process of this host); otherwise returns the live lease that is in
+   * the way. Atomic across processes.
    */
-  acquire(name: string, owner: JobOwner, ttlMs: number): { acquired: true; lease: Lease } | { acquired: false; held: Lease };
+  acquire(
+    name: string,
+    owner: JobOwner,
+    ttlMs: number,
+    isGone?: (holder: JobOwner) => boolean,
+  ): { acquired: true; lease: Lease } | { acquired: false; held: Lease };
   /** Extends the lease to now + `ttlMs` if `holder` still holds it; false when it was lost (expired and taken). */
   renew(name: string, holder: string, ttlMs: number): boolean;
   /** Gives the lease up if `holder` holds it. */

@@ -156,6 +156,14 @@ describe('the re-index lock', () => {
     expect(store.leases.get(REINDEX_LEASE)).toBeNull();
   });
 
+  it('is taken over at once when its holder was a process of this host that has ended', async () => {
+    const { rt, cleanup } = await tempRuntime();
+    cleanups.push(cleanup);
+    const crashed = { pid: deadPid(), host: hostname(), holder: 'holder-that-crashed' };
+    expect(rt.store.leases.acquire(REINDEX_LEASE, crashed, LEASE_MS).acquired).toBe(true);
+    expect(await withReindexLock({ leases: rt.store.leases, owner: thisProcess(), leaseMs: LEASE_MS }, async () => 'ran')).toBe('ran');
+  });
+
   it('lets `sourcebound reindex` proceed past a lease a dead holder left, once it has expired', async () => {
     const { rt, config, cleanup } = await tempRuntime({ limits: { jobLeaseSeconds: 60 } });
     cleanups.push(cleanup);

@@ -26,10 +26,10 @@ export function sqliteLeases(db: Db, clock: () => Date = () => new Date()): Leas
     const r = st.get.get(name) as Record<string, unknown> | undefined;
     return r ? toLease(r) : null;
   };
-  const acquireTx = db.transaction((name: string, owner: JobOwner, ttlMs: number) => {
+  const acquireTx = db.transaction((name: string, owner: JobOwner, ttlMs: number, isGone: (o: JobOwner) => boolean) => {
     const now = clock();
     const held = get(name);
-    if (held && held.owner.holder !== owner.holder && Date.parse(held.expiresAt) > now.getTime()) {
+    if (held && held.owner.holder !== owner.holder && Date.parse(held.expiresAt) > now.getTime() && !isGone(held.owner)) {
       return { acquired: false as const, held };
     }
     const at = now.toISOString();
@@ -39,7 +39,7 @@ export function sqliteLeases(db: Db, clock: () => Date = () => new Date()): Leas
     return { acquired: true as const, lease: get(name)! };
   });
   return {
-    acquire: (name, owner, ttlMs) => acquireTx.immediate(name, owner, ttlMs),
+    acquire: (name, owner, ttlMs, isGone = () => false) => acquireTx.immediate(name, owner, ttlMs, isGone),
     renew(name, holder, ttlMs) {
       const now = clock();
       return st.renew.run(now.toISOString(), new Date(now.getTime() + ttlMs).toISOString(), name, holder).changes > 0;
