@@ -1,5 +1,5 @@
 // `sourcebound check`: the database's own consistency checks, the vector index files against the database,
-// and files under the data folder that nothing refers to. Reads only: it reports, and changes nothing.
+// and files under the data folder that nothing points to. Reads only: it reports, and changes nothing.
 
 import { createHash } from 'node:crypto';
 import { existsSync, readdirSync, readFileSync, statSync } from 'node:fs';
@@ -109,11 +109,11 @@ export function checkStore(store: Store, dataDir: string): CheckReport {
   if (existsSync(paths.indexDir)) {
     for (const f of readdirSync(paths.indexDir)) {
       if (referenced.has(f)) continue;
-      problems.push({ check: 'orphan file', message: f.includes('.tmp-') ? 'an index save that was interrupted left this file' : 'an index file no collection refers to', path: path.join(paths.indexDir, f) });
+      problems.push({ check: 'orphan file', message: f.includes('.tmp-') ? 'an index save that was interrupted left this file' : 'an index file no collection points to', path: path.join(paths.indexDir, f) });
     }
   }
 
-  // ---- originals kept by hash, and uploads, that no document (nor a queued upload) refers to ----
+  // ---- originals kept by hash, and uploads, that no document (nor a queued upload) points to ----
   const originals = createOriginals(paths.originalsDir).list();
   for (const o of originals) {
     if (store.findDocumentByContent(o.collection, o.hash) || store.jobs.activeUpload(o.collection, o.hash)) continue;

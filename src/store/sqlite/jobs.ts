@@ -32,7 +32,10 @@ const toJob = (r: Record<string, unknown>): JobRecord => ({
 export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobStore {
   const iso = (): string => clock().toISOString();
   const until = (ms: number): string => new Date(clock().getTime() + ms).toISOString();
-  const st = {
+  // Prepared on first use: a store object over a database still at an older schema (a migration test reads
+  // one before migrating it) must not fail on columns its jobs and leases do not have yet.
+  let prepared: ReturnType<typeof prepare> | undefined;
+  const prepare = () => ({
     insert: db.prepare('INSERT INTO jobs (id, kind, collection, state, payload, created_at) VALUES (?, ?, ?, ?, ?, ?)'),
     start: db.prepare(`UPDATE jobs SET state = 'running', attempts = attempts + 1, started_at = ?, owner_pid = ?, owner_host = ?,
       lease_holder = ?, heartbeat_at = ?, lease_expires_at = ? WHERE id = ?`),
@@ -53,7 +56,8 @@ export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobSto
     running: db.prepare(`SELECT id, attempts, owner_pid, owner_host, lease_holder, lease_expires_at FROM jobs WHERE state = 'running' AND coalesce(${QUEUED_KIND}, 0) = ?`),
     requeue: db.prepare("UPDATE jobs SET state = 'queued' WHERE id = ? AND state = 'running'"),
     abandon: db.prepare("UPDATE jobs SET state = 'failed', error = ?, finished_at = ? WHERE id = ? AND state = 'running'"),
-  };
+  });
+  const st = (): ReturnType<typeof prepare> => (prepared ??= prepare());
   /**
    * Running jobs of the queue (`queued` true) or not that are abandoned: their lease expired, or `isGone` knows
    * their owner is gone (a process of this host that ended) before it would. Rows from before leases have only
@@ -61,7 +65,7 @@ export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobSto
    */
   const abandoned = (queued: boolean, isGone: (o: JobOwner | null) => boolean) => {
     const now = clock().getTime();
-    return (st.running.all(queued ? 1 : 0) as Record<string, unknown>[])
+    return (st().running.all(queued ? 1 : 0) as Record<string, unknown>[])
       .map((r) => ({ id: r.id as string, attempts: r.attempts as number, owner: ownerOf(r), expires: r.lease_expires_at as string | null }))
       .filter((r) => (r.expires !== null && Date.parse(r.expires) <= now) || isGone(r.owner));
   };
@@ -69,49 +73,49 @@ export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobSto
   const jobs: JobStore = {
     create(kind, collection, payload = {}) {
       const id = randomUUID();
-      st.insert.run(id, kind, collection, 'queued', JSON.stringify(payload), iso());
+      st().insert.run(id, kind, collection, 'queued', JSON.stringify(payload), iso());
       return jobs.get(id)!;
     },
     start(id, owner, leaseMs) {
       const at = iso();
-      st.start.run(at, owner.pid, owner.host, owner.holder, at, until(leaseMs), id);
+      st().start.run(at, owner.pid, owner.host, owner.holder, at, until(leaseMs), id);
     },
     succeed(id, result) {
-      st.succeed.run(JSON.stringify(result), iso(), id);
+      st().succeed.run(JSON.stringify(result), iso(), id);
     },
     fail(id, error, result) {
-      st.fail.run(error, result === undefined ? null : JSON.stringify(result), iso(), id);
+      st().fail.run(error, result === undefined ? null : JSON.stringify(result), iso(), id);
     },
     get(id) {
-      const r = st.get.get(id) as Record<string, unknown> | undefined;
+      const r = st().get.get(id) as Record<string, unknown> | undefined;
       return r ? toJob(r) : null;
     },
     activeUpload(collection, contentHash) {
-      const r = st.activeUpload.get(collection, contentHash) as Record<string, unknown> | undefined;
+      const r = st().activeUpload.get(collection, contentHash) as Record<string, unknown> | undefined;
       return r ? toJob(r) : null;
     },
     counts(collections) {
-      const rows = collections === undefined ? st.counts.all() : st.countsOf.all(JSON.stringify(collections));
+      const rows = collections === undefined ? st().counts.all() : st().countsOf.all(JSON.stringify(collections));
       return rows as { state: JobState; count: number }[];
     },
     pendingQueued() {
-      return st.pending.get() as number;
+      return st().pending.get() as number;
     },
     claimNext(owner, leaseMs) {
       const at = iso();
-      const row = st.claim.get(at, owner.pid, owner.host, owner.holder, at, until(leaseMs)) as { id: string } | undefined;
+      const row = st().claim.get(at, owner.pid, owner.host, owner.holder, at, until(leaseMs)) as { id: string } | undefined;
       return row ? jobs.get(row.id) : null;
     },
     renewLeases(holder, leaseMs) {
-      return st.renew.run(iso(), until(leaseMs), holder).changes;
+      return st().renew.run(iso(), until(leaseMs), holder).changes;
     },
     requeueAbandoned(isGone, maxAttempts) {
       return db
         .transaction(() => {
           let requeued = 0;
           for (const j of abandoned(true, isGone)) {
-            if (j.attempts >= maxAttempts) st.abandon.run(`gave up after ${maxAttempts} attempts`, iso(), j.id);
-            else requeued += st.requeue.run(j.id).changes;
+            if (j.attempts >= maxAttempts) st().abandon.run(`gave up after ${maxAttempts} attempts`, iso(), j.id);
+            else requeued += st().requeue.run(j.id).changes;
           }
           return requeued;
         })
@@ -121,7 +125,7 @@ export function sqliteJobs(db: Db, clock: () => Date = () => new Date()): JobSto
       return db
         .transaction(() => {
           let failed = 0;
-          for (const j of abandoned(false, isGone)) failed += st.abandon.run(reason(j.owner), iso(), j.id).changes;
+          for (const j of abandoned(false, isGone)) failed += st().abandon.run(reason(j.owner), iso(), j.id).changes;
           return failed;
         })
         .immediate();

@@ -13,7 +13,10 @@ const toLease = (r: Record<string, unknown>): Lease => ({
 });
 
 export function sqliteLeases(db: Db, clock: () => Date = () => new Date()): LeaseStore {
-  const st = {
+  // Prepared on first use: a store object over a database still at an older schema (a migration test reads
+  // one before migrating it) must not fail on columns its jobs and leases do not have yet.
+  let prepared: ReturnType<typeof prepare> | undefined;
+  const prepare = () => ({
     get: db.prepare('SELECT * FROM leases WHERE name = ?'),
     put: db.prepare(`
       INSERT INTO leases (name, holder, pid, host, acquired_at, heartbeat_at, expires_at) VALUES (?, ?, ?, ?, ?, ?, ?)
@@ -21,9 +24,10 @@ export function sqliteLeases(db: Db, clock: () => Date = () => new Date()): Leas
         acquired_at = excluded.acquired_at, heartbeat_at = excluded.heartbeat_at, expires_at = excluded.expires_at`),
     renew: db.prepare('UPDATE leases SET heartbeat_at = ?, expires_at = ? WHERE name = ? AND holder = ?'),
     release: db.prepare('DELETE FROM leases WHERE name = ? AND holder = ?'),
-  };
+  });
+  const st = (): ReturnType<typeof prepare> => (prepared ??= prepare());
   const get = (name: string): Lease | null => {
-    const r = st.get.get(name) as Record<string, unknown> | undefined;
+    const r = st().get.get(name) as Record<string, unknown> | undefined;
     return r ? toLease(r) : null;
   };
   const acquireTx = db.transaction((name: string, owner: JobOwner, ttlMs: number, isGone: (o: JobOwner) => boolean) => {
@@ -35,17 +39,17 @@ export function sqliteLeases(db: Db, clock: () => Date = () => new Date()): Leas
     const at = now.toISOString();
     // A holder taking its own lease again keeps its original start.
     const since = held && held.owner.holder === owner.holder ? held.acquiredAt : at;
-    st.put.run(name, owner.holder, owner.pid, owner.host, since, at, new Date(now.getTime() + ttlMs).toISOString());
+    st().put.run(name, owner.holder, owner.pid, owner.host, since, at, new Date(now.getTime() + ttlMs).toISOString());
     return { acquired: true as const, lease: get(name)! };
   });
   return {
     acquire: (name, owner, ttlMs, isGone = () => false) => acquireTx.immediate(name, owner, ttlMs, isGone),
     renew(name, holder, ttlMs) {
       const now = clock();
-      return st.renew.run(now.toISOString(), new Date(now.getTime() + ttlMs).toISOString(), name, holder).changes > 0;
+      return st().renew.run(now.toISOString(), new Date(now.getTime() + ttlMs).toISOString(), name, holder).changes > 0;
     },
     release(name, holder) {
-      st.release.run(name, holder);
+      st().release.run(name, holder);
     },
     get,
   };
