@@ -45,7 +45,8 @@ export interface DocumentService {
   deleteFailedUpload(collection: string, name: string): void;
 }
 
-const ALLOWED_EXTENSIONS = new Set(['.pdf', '.md', '.markdown', '.html', '.htm', '.txt', '.text']);
+// Every format the ingest reads (src/ingest/detect.ts), Word files included.
+const ALLOWED_EXTENSIONS = new Set(['.pdf', '.docx', '.md', '.markdown', '.html', '.htm', '.txt', '.text']);
 
 /** Rejects anything but a plain file name: no folders, no traversal, no hidden or control characters. */
 export function checkFileName(name: string): string {
