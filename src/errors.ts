@@ -37,6 +37,7 @@ export const ERRORS = {
     message: 'The original file of document "%s" has changed since it was indexed; re-index the collection to read it',
   },
   SB_ERR_LINK_INVALID: { status: 403, message: 'This file link is invalid or has expired; open the file again from the desk' },
+  SB_ERR_UNKNOWN_FAILED_UPLOAD: { status: 404, message: 'No failed upload "%s" in this collection' },
 } as const;
 
 export type ErrorCode = keyof typeof ERRORS;

@@ -21,7 +21,9 @@ import {
   abandonedReason,
   createDocumentService,
   createJobQueue,
+  heartbeatMs,
   ownerGone,
+  removeStaleIncoming,
   requeueAbandoned,
   thisProcess,
   type DocumentService,
@@ -30,7 +32,7 @@ import {
 } from './jobs/index.js';
 import type { CompletionClient } from './answer/index.js';
 import { createLexicalMemory, createRetriever, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
-import { createVectorIndexes, openStore, storePaths, type JobStore, type Repository, type Store, type VectorIndexes } from './store/index.js';
+import { createOriginals, createVectorIndexes, openStore, storePaths, type JobStore, type Repository, type Store, type VectorIndexes } from './store/index.js';
 
 export interface Runtime {
   config: Readonly<Config>;
@@ -287,7 +289,11 @@ export async function ingestAsJob(
   run: () => Promise<IngestSummary>,
 ): Promise<IngestSummary> {
   const job = rt.jobs.create(kind, collection, payload);
-  rt.jobs.start(job.id, thisProcess());
+  const owner = thisProcess();
+  const leaseMs = rt.config.limits.jobLeaseSeconds * 1000;
+  rt.jobs.start(job.id, owner, leaseMs);
+  const heartbeat = setInterval(() => rt.jobs.renewLeases(owner.holder, leaseMs), heartbeatMs(leaseMs));
+  heartbeat.unref();
   try {
     const summary = await run();
     rt.jobs.succeed(job.id, summary);
@@ -295,6 +301,8 @@ export async function ingestAsJob(
   } catch (err) {
     rt.jobs.fail(job.id, (err as Error).message);
     throw err;
+  } finally {
+    clearInterval(heartbeat);
   }
 }
 
@@ -306,7 +314,7 @@ export function appDeps(rt: Runtime, isReady: () => boolean, documents?: Documen
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,
-    desk: createDeskService({ repo: rt.repo, ratings: rt.store.ratings }),
+    desk: createDeskService({ repo: rt.repo, ratings: rt.store.ratings, originals: createOriginals(storePaths(rt.config.dataDir).originalsDir) }),
     search: (req) => rt.retriever.search(req),
     answer: (req: HttpAnswerRequest) => {
       const answerer = req.style === 'extractive' ? rt.extractiveAnswerer : rt.answerer;
@@ -331,7 +339,9 @@ export function jobContext(rt: Runtime): JobContext {
     store: rt.store,
     ingestor: rt.ingestor,
     indexes: rt.indexes,
+    originals: createOriginals(storePaths(rt.config.dataDir).originalsDir),
     owner: thisProcess(),
+    leaseMs: rt.config.limits.jobLeaseSeconds * 1000,
   };
 }
 
@@ -351,6 +361,9 @@ export function createDocumentApi(
   opts: { onJobDone?: Parameters<typeof createJobQueue>[0]['onJobDone'] } = {},
 ): { queue: JobQueue; documents: DocumentService } {
   const ctx = jobContext(rt);
+  // Uploads a server that stopped was still receiving: no job was made for them, so they would stay for ever.
+  const partial = removeStaleIncoming(ctx.dataDir, performance.timeOrigin);
+  if (partial.length > 0) rt.logger.warn({ files: partial.length }, 'removed uploads left half-received by a server that stopped');
   requeueAbandoned(ctx);
   const queue = createJobQueue({
     ctx,

@@ -37,6 +37,7 @@ describe('the error table', () => {
       SB_ERR_ORIGINAL_UNAVAILABLE: 404,
       SB_ERR_ORIGINAL_CHANGED: 409,
       SB_ERR_LINK_INVALID: 403,
+      SB_ERR_UNKNOWN_FAILED_UPLOAD: 404,
     });
   });
 

@@ -52,6 +52,8 @@ export function keyAccess(
 declare module 'fastify' {
   interface FastifyContextConfig {
     access?: RouteAccess;
+    /** A route that only answers 405 for a method its path does not serve (src/api/method-not-allowed.ts). */
+    methodNotAllowed?: boolean;
   }
   interface FastifyRequest {
     principal: Principal;
@@ -101,6 +103,7 @@ export function installAccessControl(app: FastifyInstance, deps: AccessDeps): vo
 
   app.addHook('onRoute', (opts) => {
     const access = opts.config?.access;
+    if (opts.config?.methodNotAllowed) return;
     for (const method of Array.isArray(opts.method) ? opts.method : [opts.method]) {
       table.push({ method: String(method), url: opts.url ?? opts.path, access });
     }

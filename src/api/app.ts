@@ -1,7 +1,8 @@
 import Fastify, { type FastifyBaseLogger, type FastifyError, type FastifyInstance } from 'fastify';
 import type { Config } from '../config/index.js';
 import { SourceboundError, type ErrorCode } from '../errors.js';
-import { grantedCollection, installAccessControl, keyAccess, PUBLIC } from './access.js';
+import { grantedCollection, installAccessControl, keyAccess, PUBLIC, routeTable } from './access.js';
+import { registerMethodNotAllowed } from './method-not-allowed.js';
 import { createAuthenticator, mayUseCollection } from './auth.js';
 import { createRateLimiter } from './rate-limit.js';
 import { registerAnswerRoute } from './answer-route.js';
@@ -143,6 +144,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     if (deps.desk) registerDeskRoutes(r, { config, desk: deps.desk });
     registerDeskAssets(r, deps.deskAssetsDir !== undefined ? { dir: deps.deskAssetsDir } : {});
     registerOpenApiRoute(r, app, config);
+    registerMethodNotAllowed(r, routeTable(app));
   });
 
   return app;

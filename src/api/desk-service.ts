@@ -5,7 +5,7 @@ import { createHash, createHmac, randomBytes, timingSafeEqual } from 'node:crypt
 import { readFile, realpath, stat } from 'node:fs/promises';
 import path from 'node:path';
 import { SourceboundError } from '../errors.js';
-import type { RatingStore, Repository } from '../store/index.js';
+import type { Originals, RatingStore, Repository } from '../store/index.js';
 
 export interface Passage {
   documentId: string;
@@ -77,6 +77,8 @@ export function snapToWord(text: string, at: number, dir: 1 | -1, stop: number):
 export function createDeskService(deps: {
   repo: Pick<Repository, 'getDocument' | 'getDocumentText' | 'listSourceRoots' | 'chunkSpans'>;
   ratings: RatingStore;
+  /** Uploaded originals kept by content hash: read when the folder's file is gone or is another version. */
+  originals?: Pick<Originals, 'find'>;
   now?: () => number;
   secret?: Buffer;
 }): DeskService {
@@ -161,30 +163,46 @@ export function createDeskService(deps: {
 
     async original(collection, documentId) {
       const d = find(collection, documentId);
-      const unavailable = (why: string): never => {
-        throw new SourceboundError('SB_ERR_ORIGINAL_UNAVAILABLE', [d.id, why]);
-      };
-      if (!d.root) return unavailable('it was not ingested from a file');
-      const roots = new Set(repo.listSourceRoots(collection).map((r) => path.resolve(r.root)));
-      const root = path.resolve(d.root);
-      // A folder the collection was ingested from, or the folder of a single file ingested by path
-      // (then the source is that bare file name). Nothing else is ever read.
-      if (!roots.has(root) && d.source.includes('/')) return unavailable('its folder is not one of the collection\'s sources');
-      const file = path.resolve(root, ...d.source.split('/'));
-      if (!inside(file, root)) return unavailable('its path leads outside its source folder');
-      let real: string;
       try {
-        real = await realpath(file);
-        // A symbolic link inside the folder must not lead out of it either.
-        if (!inside(real, await realpath(root))) return unavailable('its path leads outside its source folder');
-        if (!(await stat(real)).isFile()) return unavailable('it is not a regular file');
+        return await fromFolder(d);
       } catch (err) {
-        if (err instanceof SourceboundError) throw err;
-        return unavailable('the file is no longer in its source folder');
+        // The folder's file was replaced by a later upload (one that failed, or is still queued) or is gone: the
+        // copy kept under the indexed version's hash is that version, byte for byte.
+        const kept = deps.originals?.find(collection, d.contentHash);
+        const code = err instanceof SourceboundError ? err.code : null;
+        if (!kept || (code !== 'SB_ERR_ORIGINAL_CHANGED' && code !== 'SB_ERR_ORIGINAL_UNAVAILABLE')) throw err;
+        const bytes = await readFile(kept);
+        if (createHash('sha256').update(bytes).digest('hex') !== d.contentHash) throw err;
+        return { bytes, fileName: path.basename(d.source), contentType: CONTENT_TYPES[d.format] ?? 'application/octet-stream' };
       }
-      const bytes = await readFile(real);
-      if (createHash('sha256').update(bytes).digest('hex') !== d.contentHash) throw new SourceboundError('SB_ERR_ORIGINAL_CHANGED', [d.id]);
-      return { bytes, fileName: path.basename(file), contentType: CONTENT_TYPES[d.format] ?? 'application/octet-stream' };
     },
   };
+
+  async function fromFolder(d: NonNullable<ReturnType<typeof repo.getDocument>>): Promise<OriginalFile> {
+    const collection = d.collection;
+    const unavailable = (why: string): never => {
+      throw new SourceboundError('SB_ERR_ORIGINAL_UNAVAILABLE', [d.id, why]);
+    };
+    if (!d.root) return unavailable('it was not ingested from a file');
+    const roots = new Set(repo.listSourceRoots(collection).map((r) => path.resolve(r.root)));
+    const root = path.resolve(d.root);
+    // A folder the collection was ingested from, or the folder of a single file ingested by path
+    // (then the source is that bare file name). Nothing else is ever read.
+    if (!roots.has(root) && d.source.includes('/')) return unavailable('its folder is not one of the collection\'s sources');
+    const file = path.resolve(root, ...d.source.split('/'));
+    if (!inside(file, root)) return unavailable('its path leads outside its source folder');
+    let real: string;
+    try {
+      real = await realpath(file);
+      // A symbolic link inside the folder must not lead out of it either.
+      if (!inside(real, await realpath(root))) return unavailable('its path leads outside its source folder');
+      if (!(await stat(real)).isFile()) return unavailable('it is not a regular file');
+    } catch (err) {
+      if (err instanceof SourceboundError) throw err;
+      return unavailable('the file is no longer in its source folder');
+    }
+    const bytes = await readFile(real);
+    if (createHash('sha256').update(bytes).digest('hex') !== d.contentHash) throw new SourceboundError('SB_ERR_ORIGINAL_CHANGED', [d.id]);
+    return { bytes, fileName: path.basename(file), contentType: CONTENT_TYPES[d.format] ?? 'application/octet-stream' };
+  }
 }

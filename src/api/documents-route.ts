@@ -23,6 +23,18 @@ function reply202(outcome: UploadOutcome): { code: number; body: Record<string, 
       body: { status: 'unchanged', documentId: outcome.documentId, source: outcome.source, message: 'identical content is already indexed; nothing to do' },
     };
   }
+  if (outcome.status === 'duplicate') {
+    const { source, job } = outcome.of;
+    return {
+      code: 200,
+      body: {
+        status: 'duplicate',
+        source: outcome.source,
+        duplicateOf: { source, jobId: job.id, job: `/v1/jobs/${job.id}` },
+        message: `the same content is being ingested from the upload "${source}" (job ${job.id}); this upload was not kept`,
+      },
+    };
+  }
   return { code: 202, body: { status: 'queued', jobId: outcome.job.id, source: outcome.source, job: `/v1/jobs/${outcome.job.id}` } };
 }
 
@@ -71,6 +83,17 @@ export async function registerDocumentRoutes(r: FastifyInstance, ctx: DocumentRo
   r.delete('/v1/collections/:collection/documents/:id', { config: { access: keyAccess('ingest', 'delete documents', { in: 'path' }) } }, async (req) => {
     const id = (req.params as { id: string }).id;
     return { deleted: id, ...documents.remove(grantedCollection(req), id) };
+  });
+
+  // Uploads whose job failed wait in uploads-failed/<collection>/ (never walked by a re-index) for an admin.
+  const failedAccess = (action: string) => keyAccess('admin', action, { in: 'path' });
+  r.get('/v1/collections/:collection/failed-uploads', { config: { access: failedAccess('list failed uploads') } }, async (req) => {
+    return { failedUploads: documents.failedUploads(grantedCollection(req)) };
+  });
+  r.delete('/v1/collections/:collection/failed-uploads/:name', { config: { access: failedAccess('delete failed uploads') } }, async (req) => {
+    const name = (req.params as { name: string }).name;
+    documents.deleteFailedUpload(grantedCollection(req), name);
+    return { deleted: name };
   });
 
   // Any scope may follow a job, but only a job of one of the key's collections; a job that spans every

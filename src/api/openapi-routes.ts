@@ -62,7 +62,7 @@ export function describedRoutes(limits: Readonly<Config['limits']>): Record<stri
       params: { collection: collectionName },
       replies: {
         202: json('queued for ingestion; follow the job', reply.uploadQueued),
-        200: json('the same content is already indexed', reply.uploadUnchanged),
+        200: json('the same content is already indexed (`unchanged`), or is being ingested from another upload (`duplicate`)', z.union([reply.uploadUnchanged, reply.uploadDuplicate])),
         413: json('larger than the upload limit', reply.errorReply),
       },
     },
@@ -97,6 +97,16 @@ export function describedRoutes(limits: Readonly<Config['limits']>): Record<stri
       summary: 'the original file a signed link names',
       query: z.object({ link: z.string().describe('the token from original-link') }),
       replies: { 200: { description: 'the file, with its own media type', type: 'application/octet-stream' } },
+    },
+    'GET /v1/collections/:collection/failed-uploads': {
+      summary: 'uploads whose ingestion failed, kept aside for an admin to look at (never re-indexed)',
+      params: { collection: collectionName },
+      replies: { 200: json('the failed uploads, by name', reply.failedUploadList) },
+    },
+    'DELETE /v1/collections/:collection/failed-uploads/:name': {
+      summary: 'delete one failed upload',
+      params: { collection: collectionName, name: z.string().describe('a name from the list') },
+      replies: { 200: json('deleted', reply.failedUploadDeleted), 404: json('no such failed upload', reply.errorReply) },
     },
     'GET /v1/jobs/:jobId': { summary: 'an ingestion or re-index job', replies: { 200: json('the job', reply.jobReply) } },
     'POST /v1/reindex': {

@@ -136,6 +136,22 @@ export const documentSummary = z.object({
 export const documentList = z.object({ documents: z.array(documentSummary) });
 export const uploadQueued = z.object({ status: z.literal('queued'), jobId: z.string(), source: z.string(), job: z.string().describe('the path to follow it at') });
 export const uploadUnchanged = z.object({ status: z.literal('unchanged'), documentId: z.string(), source: z.string(), message: z.string() });
+export const uploadDuplicate = z.object({
+  status: z.literal('duplicate'),
+  source: z.string().describe('the name this upload was sent under'),
+  duplicateOf: z.object({ source: z.string(), jobId: z.string(), job: z.string().describe('the path to follow it at') }).describe('the upload of the same content that is being ingested'),
+  message: z.string(),
+});
+export const failedUpload = z.object({
+  name: z.string().describe('its name in uploads-failed/<collection>/: <job id>-<file name>'),
+  jobId: z.string(),
+  source: z.string().describe('the file name it was uploaded under'),
+  bytes: z.number().int(),
+  failedAt: z.string(),
+  reason: z.string().nullable().describe("why its job failed (null when the job's record is gone)"),
+});
+export const failedUploadList = z.object({ failedUploads: z.array(failedUpload) });
+export const failedUploadDeleted = z.object({ deleted: z.string() });
 export const documentDeleted = z.object({ deleted: z.string(), chunksRemoved: count });
 export const jobReply = z.object({
   id: z.string(),

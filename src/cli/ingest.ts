@@ -3,7 +3,7 @@
 
 import type { Config } from '../config/index.js';
 import { addInto, emptySummary, formatProgress, formatSummary, summaryJson, type IngestProgress, type IngestSummary } from '../ingest/index.js';
-import { withReindexLock } from '../jobs/index.js';
+import { thisProcess, withReindexLock } from '../jobs/index.js';
 import { createRuntime, ingestAsJob, type Runtime } from '../runtime.js';
 import { EXIT, type CliContext } from './context.js';
 
@@ -33,7 +33,9 @@ export async function reindex(ctx: CliContext, opts: IngestOptions): Promise<num
   return withRuntime(ctx, cfg, opts, async (rt) => {
     const what: { collection?: string; full?: boolean } = { full: opts.full ?? false };
     if (opts.collection) what.collection = opts.collection;
-    return ingestAsJob(rt, 'reindex', opts.collection ?? null, what, () => withReindexLock(cfg.dataDir, () => rt.ingestor.reindex(what)));
+    return ingestAsJob(rt, 'reindex', opts.collection ?? null, what, () =>
+      withReindexLock({ leases: rt.store.leases, owner: thisProcess(), leaseMs: cfg.limits.jobLeaseSeconds * 1000 }, () => rt.ingestor.reindex(what)),
+    );
   });
 }
 

@@ -5,6 +5,7 @@ import { Command, CommanderError, Option } from 'commander';
 import { addEvalCommands } from '../eval/command.js';
 import { exportFeedback } from '../feedback/index.js';
 import { backup, keyNew, modelPull, modelStatus, printConfig, SCOPES } from './admin.js';
+import { check } from './check.js';
 import { EXIT, EXIT_HELP, type CliContext } from './context.js';
 import { ingest, reindex, type IngestOptions } from './ingest.js';
 import { collectionArg } from './options.js';
@@ -94,6 +95,12 @@ export function buildProgram(ctx: CliContext): Program {
     .description('write a consistent copy of the database (safe while serving)')
     .argument('<file>', 'where to write the copy')
     .action(run((file: string) => backup(ctx, file)));
+
+  root
+    .command('check')
+    .description("check the store: SQLite's and FTS5's integrity checks, index files against the database, orphan files (exit 1 on a problem)")
+    .option('--json', 'print the report as one JSON object')
+    .action(run((opts: { json?: boolean }) => check(ctx, opts)));
 
   root
     .command('config')

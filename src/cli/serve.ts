@@ -2,7 +2,8 @@
 // down cleanly on SIGTERM or SIGINT.
 
 import { authEnforced, checkAuthConfig } from '../api/auth.js';
-import { createRuntime, createServer, ingestAsJob, type Runtime } from '../runtime.js';
+import { createRuntime, createServer } from '../runtime.js';
+import { prepare } from './prepare.js';
 import { EXIT, type CliContext } from './context.js';
 
 // How often a server started by an npm script checks that npm is still there.
@@ -65,27 +66,4 @@ export async function serve(ctx: CliContext): Promise<number> {
     `ready on http://${cfg.server.host}:${(app.server.address() as { port: number }).port}`,
   );
   return new Promise<number>(() => undefined); // runs until a signal
-}
-
-/** Seeds an empty store with the demo folder, then loads (or rebuilds) every collection's vector index. */
-async function prepare(rt: Runtime): Promise<void> {
-  const { config: cfg, logger } = rt;
-  if (cfg.seed.ingestOnEmpty && rt.repo.countDocuments() === 0) {
-    logger.info({ path: cfg.seed.path, collection: cfg.seed.collection }, 'empty store: ingesting the seed folder');
-    const s = await ingestAsJob(rt, 'ingest', cfg.seed.collection, { path: cfg.seed.path, reason: 'seed' }, () =>
-      rt.ingestor.ingestPath(cfg.seed.path, { collection: cfg.seed.collection }),
-    );
-    logger.info({ documents: s.documents, chunks: s.chunks, seconds: s.seconds }, 'seed folder ingested');
-  }
-  for (const c of rt.repo.listCollections()) {
-    if (c.embedderId && c.embedderId !== rt.embedder.id) {
-      logger.error(
-        { collection: c.name, indexedWith: c.embedderId, running: rt.embedder.id },
-        'collection was indexed with another embedder: dense and hybrid search are refused until `sourcebound reindex --full`',
-      );
-      continue;
-    }
-    const r = rt.indexes.sync(c.name);
-    logger.info({ collection: c.name, vectors: r.size, rebuilt: r.rebuilt }, 'vector index loaded');
-  }
 }

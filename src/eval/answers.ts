@@ -269,7 +269,8 @@ export function collectionFolders(questions: LabelledQuestion[], docs: string): 
 
 export interface EvaluateAnswersOptions {
   questions: string;
-  docs: string;
+  /** A folder (one subfolder per collection when the set names collections), or each collection's folders. */
+  docs: string | Map<string, string[]>;
   env: Record<string, string | undefined>;
   extractive?: boolean;
   overrides?: Record<string, unknown>;
@@ -286,13 +287,14 @@ export async function evaluateAnswers(opts: EvaluateAnswersOptions): Promise<Ans
   const started = performance.now();
   let questions = readQuestions(opts.questions);
   if (opts.limit !== undefined) questions = questions.slice(0, opts.limit);
-  const folders = collectionFolders(questions, opts.docs);
+  const folders: Map<string, string[]> =
+    typeof opts.docs === 'string' ? new Map([...collectionFolders(questions, opts.docs)].map(([c, d]) => [c, [d]])) : opts.docs;
   const dataDir = mkdtempSync(path.join(tmpdir(), 'sourcebound-answers-'));
   const config = loadConfig({ env: opts.env, overrides: { ...(opts.overrides ?? {}), dataDir, seed: { ingestOnEmpty: false } } });
   const logger = configuredLogger(config, { quiet: true });
   const rt = await createRuntime(config, logger, { processMetrics: false });
   try {
-    for (const [collection, dir] of folders) await rt.ingestor.ingestPath(dir, { collection, remember: false });
+    for (const [collection, dirs] of folders) for (const dir of dirs) await rt.ingestor.ingestPath(dir, { collection, remember: false });
     const answerer = opts.extractive ? rt.extractiveAnswerer : rt.answerer;
     const outcomes: QuestionOutcome[] = [];
     const asked = new Map<string, { question: string; answer: string }>();

@@ -8,6 +8,7 @@ import { readAnswerModel } from '../answer/index.js';
 import { CliError, EXIT, usageError, type CliContext } from '../cli/context.js';
 import { collectList, numberIn, requireOptions, wholeNumber } from '../cli/options.js';
 import { DEFAULT_RM3 } from '../retrieve/index.js';
+import { openStore, storePaths } from '../store/index.js';
 import type { SearchMode } from '../types.js';
 import { evaluateAnswers, readQuestions, writeFeatures, type AnswerEvalReport, type QuestionOutcome } from './answers.js';
 import { fitAnswerModels, modelModule, readEvidence, type FitResult } from './fit.js';
@@ -50,7 +51,7 @@ export function addEvalCommands(parent: Command, ctx: CliContext, run: Run): voi
     )
     .usage('--questions F [options]')
     .option('--questions <file>', 'the question set (JSONL)')
-    .option('--docs <dir>', 'the documents; when questions name a collection, DIR holds one folder per collection (default: a docs/ folder beside the question file, else the seed folder)')
+    .option('--docs <dir>', 'the documents; when questions name a collection, DIR holds one folder per collection (default: a docs/ folder beside the question file; else, when the questions name collections, the folders the store remembers for them; else the seed folder)')
     .option('--extractive', 'answer offline even when a completion endpoint is configured')
     .addOption(new Option('--limit <n>', 'only the first N questions').argParser(wholeNumber(1)))
     .option('--features <file>', 'write each question\'s evidence as JSONL (for `eval fit`)')
@@ -130,6 +131,37 @@ async function retrievalCommand(ctx: CliContext, opts: RetrievalOptions): Promis
   return EXIT.ok;
 }
 
+/**
+ * Without --docs, a question set that names collections (one written by `feedback export`, say) is scored
+ * against the folders those collections were ingested from, as the configured store remembers them. Null when
+ * the set names no collection; an error that says what to do when the store cannot tell.
+ */
+function storeFolders(ctx: CliContext, questionsFile: string): Map<string, string[]> | null {
+  let named: string[];
+  try {
+    named = [...new Set(readQuestions(questionsFile).map((q) => q.collection).filter((c): c is string => c !== null))];
+  } catch {
+    return null; // evaluateAnswers reads the file again and reports what is wrong with it
+  }
+  if (named.length === 0) return null;
+  const { database } = storePaths(ctx.config().dataDir);
+  const fix = 'give --docs DIR with one folder per collection';
+  if (!existsSync(database)) throw new CliError(`the questions name collections (${named.join(', ')}) and there is no store at ${database} to find their documents in; ${fix}`);
+  const store = openStore(database, { readonly: true });
+  try {
+    const out = new Map<string, string[]>();
+    for (const c of named) {
+      const roots = store.listSourceRoots(c).map((r) => r.root).filter((r) => existsSync(r));
+      if (roots.length === 0) throw new CliError(`the questions name collection "${c}", and the store at ${database} remembers no folder for it; ${fix}`);
+      out.set(c, roots);
+    }
+    ctx.io.err(`scoring against the folders the store remembers: ${[...out].map(([c, r]) => `${c}: ${r.join(', ')}`).join('; ')}\n`);
+    return out;
+  } finally {
+    store.close();
+  }
+}
+
 interface AnswersOptions {
   questions?: string;
   docs?: string;
@@ -154,7 +186,7 @@ async function answersCommand(ctx: CliContext, opts: AnswersOptions): Promise<nu
   const questions = opts.questions!;
   if (!existsSync(questions)) throw usageError(`no question file at ${questions}`);
   const beside = path.join(path.dirname(questions), 'docs');
-  const docs = opts.docs ?? (existsSync(beside) ? beside : ctx.config().seed.path);
+  const docs = opts.docs ?? (existsSync(beside) ? beside : (storeFolders(ctx, questions) ?? ctx.config().seed.path));
   const { io } = ctx;
   let r: AnswerEvalReport;
   try {

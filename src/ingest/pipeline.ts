@@ -296,9 +296,12 @@ export function createIngestor(deps: {
     }
     for (const f of summary.failures) logger.warn({ source: f.source, reason: f.reason }, 'document not ingested');
     // Nothing added, changed or removed (a rename keeps its chunk ids): the vector index has nothing to learn,
-    // and loading it just to find that out would be most of an unchanged re-index's time.
+    // and loading it just to find that out would be most of an unchanged re-index's time. Unless the saved
+    // index is behind (a run killed after its last document was stored, before the index was saved): its
+    // description file says so without loading it.
     const d = summary.documents;
-    if (d.added + d.updated + d.removed > 0) indexes.sync(opts.collection);
+    const behind = (): boolean => indexes.savedGeneration(opts.collection) !== (repo.collectionState(opts.collection)?.generation ?? 0);
+    if (d.added + d.updated + d.removed > 0 || behind()) indexes.sync(opts.collection);
     summary.seconds = round3((performance.now() - started) / 1000);
     return summary;
   };

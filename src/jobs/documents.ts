@@ -6,11 +6,16 @@ import type { Readable } from 'node:stream';
 import { SourceboundError } from '../errors.js';
 import type { DocumentRecord, JobRecord } from '../store/index.js';
 import type { JobContext } from './context.js';
+import { INCOMING_PREFIX, uploadsDir } from './incoming.js';
+import type { JobPayload } from './execute.js';
 import type { JobQueue } from './queue.js';
+import { deleteFailedUpload, listFailedUploads, type FailedUpload } from './set-aside.js';
 
 export type UploadOutcome =
   | { status: 'queued'; job: JobRecord; source: string }
-  | { status: 'unchanged'; documentId: string; source: string };
+  | { status: 'unchanged'; documentId: string; source: string }
+  /** The same content is being ingested already, from another upload (under `of.source`, by job `of.job`). */
+  | { status: 'duplicate'; source: string; of: { source: string; job: JobRecord } };
 
 export interface DocumentSummary {
   id: string;
@@ -34,9 +39,14 @@ export interface DocumentService {
   remove(collection: string, id: string): { chunksRemoved: number };
   job(id: string): JobRecord;
   reindex(opts: { collection?: string; full?: boolean }): JobRecord;
+  /** Uploads whose job failed, kept aside in `uploads-failed/<collection>/` (never walked by a re-index). */
+  failedUploads(collection: string): FailedUpload[];
+  /** Deletes one of them by its listed name. */
+  deleteFailedUpload(collection: string, name: string): void;
 }
 
-const ALLOWED_EXTENSIONS = new Set(['.pdf', '.md', '.markdown', '.html', '.htm', '.txt', '.text']);
+// Every format the ingest reads (src/ingest/detect.ts), Word files included.
+const ALLOWED_EXTENSIONS = new Set(['.pdf', '.docx', '.md', '.markdown', '.html', '.htm', '.txt', '.text']);
 
 /** Rejects anything but a plain file name: no folders, no traversal, no hidden or control characters. */
 export function checkFileName(name: string): string {
@@ -58,7 +68,7 @@ export function checkFileName(name: string): string {
 
 export function createDocumentService(ctx: JobContext, queue: JobQueue): DocumentService {
   const { store } = ctx;
-  const uploadsRoot = path.join(ctx.dataDir, 'uploads');
+  const uploadsRoot = uploadsDir(ctx.dataDir);
   const maxBytes = ctx.maxUploadBytes;
 
   const summary = (d: DocumentRecord): DocumentSummary => ({
@@ -87,7 +97,7 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): Documen
       const folder = path.join(uploadsRoot, collection);
       mkdirSync(folder, { recursive: true });
       // Dot-prefixed, so a concurrent folder walk never picks up a half-written upload.
-      const tmp = path.join(folder, `.incoming-${randomUUID()}`);
+      const tmp = path.join(folder, `${INCOMING_PREFIX}${randomUUID()}`);
       const hash = createHash('sha256');
       let size = 0;
       try {
@@ -115,10 +125,21 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): Documen
         unlinkSync(tmp);
         return { status: 'unchanged', documentId: same.id, source: same.source };
       }
+      // Uploads of the same bytes at once (under other names, say) make one document: the first is ingested,
+      // the rest are told which upload they duplicate. Nothing awaits between this check and the enqueue below,
+      // so two uploads in this process cannot both pass it.
+      const pending = store.jobs.activeUpload(collection, contentHash);
+      if (pending) {
+        unlinkSync(tmp);
+        return { status: 'duplicate', source: name, of: { source: (pending.payload as Extract<JobPayload, { kind: 'upload' }>).source, job: pending } };
+      }
+      // Kept by content hash before the file takes its name: a later upload under the same name replaces the
+      // folder's file, never this copy of the version that is indexed.
+      ctx.originals.keep(collection, contentHash, tmp);
       renameSync(tmp, path.join(folder, name));
       store.ensureCollection(collection);
       store.addSourceRoot(collection, folder);
-      const job = queue.enqueue({ kind: 'upload', via: 'api', collection, root: folder, source: name });
+      const job = queue.enqueue({ kind: 'upload', via: 'api', collection, root: folder, source: name, contentHash });
       return { status: 'queued', job, source: name };
     },
     list(collection) {
@@ -133,6 +154,7 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): Documen
       const removed = store.deleteDocument(d.id);
       // An uploaded file goes too, or the next re-index of the upload folder would bring it back.
       if (d.root && d.root === path.join(uploadsRoot, collection)) rmSync(path.join(d.root, d.source), { force: true });
+      if (!store.findDocumentByContent(collection, d.contentHash)) ctx.originals.drop(collection, d.contentHash);
       ctx.indexes.sync(collection);
       return { chunksRemoved: removed.length };
     },
@@ -146,6 +168,13 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): Documen
         throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [opts.collection]);
       }
       return queue.enqueue({ kind: 'reindex', via: 'api', ...opts });
+    },
+    failedUploads(collection) {
+      if (!store.getCollection(collection)) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [collection]);
+      return listFailedUploads(ctx.dataDir, collection, store.jobs);
+    },
+    deleteFailedUpload(collection, name) {
+      deleteFailedUpload(ctx.dataDir, collection, name);
     },
   };
 }

@@ -6,7 +6,7 @@ import { withReindexLock } from './lock.js';
 
 /** What a queued job asks for. Jobs are plain rows; this is the one place that knows how to run them. */
 export type JobPayload =
-  | { kind: 'upload'; via: 'api'; collection: string; root: string; source: string }
+  | { kind: 'upload'; via: 'api'; collection: string; root: string; source: string; contentHash?: string }
   | { kind: 'reindex'; via: 'api'; collection?: string; full?: boolean };
 
 /** A job that ran to its end without doing what it was for; the summary of what it did stays with it. */
@@ -20,7 +20,7 @@ export class JobFailed extends Error {
   }
 }
 
-export async function executeJob(ctx: Pick<JobContext, 'ingestor' | 'dataDir'>, job: JobRecord): Promise<IngestSummary> {
+export async function executeJob(ctx: Pick<JobContext, 'ingestor' | 'store' | 'owner' | 'leaseMs'>, job: JobRecord): Promise<IngestSummary> {
   const p = job.payload as JobPayload;
   if (p.kind === 'upload') {
     // Only the uploaded file: a file of the folder that failed before is not this job's to retry. The folder
@@ -33,7 +33,7 @@ export async function executeJob(ctx: Pick<JobContext, 'ingestor' | 'dataDir'>, 
     return summary;
   }
   if (p.kind === 'reindex') {
-    return withReindexLock(ctx.dataDir, () =>
+    return withReindexLock({ leases: ctx.store.leases, owner: ctx.owner, leaseMs: ctx.leaseMs }, () =>
       ctx.ingestor.reindex({ ...(p.collection ? { collection: p.collection } : {}), full: p.full ?? false }),
     );
   }

@@ -2,6 +2,7 @@ export {
   createJobQueue,
   requeueAbandoned,
   claimNext,
+  heartbeatMs,
   runOne,
   type JobQueue,
   type JobThread,
@@ -10,7 +11,9 @@ export {
   type FromJobThread,
 } from './queue.js';
 export { executeJob, JobFailed, type JobPayload } from './execute.js';
-export { withReindexLock } from './lock.js';
+export { withReindexLock, REINDEX_LEASE, type LeaseDeps } from './lock.js';
 export { thisProcess, ownerGone, abandonedReason } from './owner.js';
 export type { JobContext } from './context.js';
 export { createDocumentService, checkFileName, type DocumentService, type DocumentSummary, type UploadOutcome } from './documents.js';
+export { failedUploadsDir, type FailedUpload } from './set-aside.js';
+export { removeStaleIncoming, uploadsDir, INCOMING_PREFIX } from './incoming.js';

@@ -1,62 +1,38 @@
-import { hostname } from 'node:os';
-import { mkdirSync, openSync, readFileSync, unlinkSync, writeSync, closeSync } from 'node:fs';
-import path from 'node:path';
 import { SourceboundError } from '../errors.js';
-import { processAlive } from './owner.js';
+import type { JobOwner, LeaseStore } from '../store/index.js';
+import { ownerGone } from './owner.js';
 
-interface LockInfo {
-  pid: number;
-  host: string;
-  since: string;
+/** The lease that lets one re-index run at a time per store. */
+export const REINDEX_LEASE = 'reindex';
+
+export interface LeaseDeps {
+  leases: LeaseStore;
+  /** Who takes the lease (src/jobs/owner.ts). */
+  owner: JobOwner;
+  /** How long the lease lasts without a heartbeat; it is renewed every third of this while `fn` runs. */
+  leaseMs: number;
 }
 
 /**
- * One re-index at a time per data folder. The lock file names its owner; a lock whose process is gone
- * (crash, SIGKILL) is stale and taken over, a live one makes the second run fail with a clear message.
+ * One re-index at a time per store, held as a lease in the database rather than a file naming a process id:
+ * a holder that crashes (or whose host goes away) stops renewing it, and once it has expired the next re-index
+ * takes it over; at once when the holder was a process of this host that has ended. A live lease makes a
+ * second run fail with a clear message.
  */
-export async function withReindexLock<T>(dataDir: string, fn: () => Promise<T>): Promise<T> {
-  const file = path.join(dataDir, 'reindex.lock');
-  acquire(file);
+export async function withReindexLock<T>(deps: LeaseDeps, fn: () => Promise<T>): Promise<T> {
+  const { leases, owner, leaseMs } = deps;
+  // A holder whose process on this host has ended is known to be gone without waiting for its lease to expire.
+  const got = leases.acquire(REINDEX_LEASE, owner, leaseMs, ownerGone);
+  if (!got.acquired) {
+    const h = got.held.owner;
+    throw new SourceboundError('SB_ERR_REINDEX_RUNNING', [`${h.pid} on ${h.host}`, got.held.acquiredAt]);
+  }
+  const heartbeat = setInterval(() => leases.renew(REINDEX_LEASE, owner.holder, leaseMs), Math.max(1000, Math.floor(leaseMs / 3)));
+  heartbeat.unref();
   try {
     return await fn();
   } finally {
-    try {
-      unlinkSync(file);
-    } catch {
-      /* already gone */
-    }
+    clearInterval(heartbeat);
+    leases.release(REINDEX_LEASE, owner.holder);
   }
-}
-
-function acquire(file: string): void {
-  mkdirSync(path.dirname(file), { recursive: true });
-  for (let attempt = 0; attempt < 2; attempt++) {
-    try {
-      const fd = openSync(file, 'wx');
-      const info: LockInfo = { pid: process.pid, host: hostname(), since: new Date().toISOString() };
-      writeSync(fd, JSON.stringify(info));
-      closeSync(fd);
-      return;
-    } catch (err) {
-      if ((err as NodeJS.ErrnoException).code !== 'EEXIST') throw err;
-    }
-    let owner: LockInfo | null = null;
-    try {
-      owner = JSON.parse(readFileSync(file, 'utf8')) as LockInfo;
-    } catch {
-      owner = null; // half-written by a process that died: stale
-    }
-    if (owner && owner.host === hostname() && processAlive(owner.pid)) {
-      throw new SourceboundError('SB_ERR_REINDEX_RUNNING', [String(owner.pid), owner.since]);
-    }
-    if (owner && owner.host !== hostname()) {
-      throw new SourceboundError('SB_ERR_REINDEX_RUNNING', [`${owner.pid} on ${owner.host}`, owner.since]);
-    }
-    try {
-      unlinkSync(file); // stale: its owner is gone
-    } catch {
-      /* another process took it over first; retry */
-    }
-  }
-  throw new SourceboundError('SB_ERR_REINDEX_RUNNING', ['another process', 'just now']);
 }

@@ -1,9 +1,14 @@
+import { randomUUID } from 'node:crypto';
 import { hostname } from 'node:os';
 import type { JobOwner } from '../store/index.js';
 
-/** This process, as the owner of the jobs it starts or claims. */
+// One holder id per thread (each worker thread loads this module afresh): a lease names its holder by this id,
+// which no later process or thread can be given, unlike a process id.
+const HOLDER = randomUUID();
+
+/** This process (this thread of it), as the holder of the jobs and leases it takes. */
 export function thisProcess(): JobOwner {
-  return { pid: process.pid, host: hostname() };
+  return { pid: process.pid, host: hostname(), holder: HOLDER };
 }
 
 /** Whether a process of this host is still running (EPERM: running, but another user's). */

@@ -48,8 +48,13 @@ export function requeueAbandoned(ctx: Pick<JobContext, 'store'>): number {
 }
 
 /** Claims the oldest queued job for this process atomically, so two runners never take the same one. */
-export function claimNext(ctx: Pick<JobContext, 'store' | 'owner'>): JobRecord | null {
-  return ctx.store.jobs.claimNext(ctx.owner);
+export function claimNext(ctx: Pick<JobContext, 'store' | 'owner' | 'leaseMs'>): JobRecord | null {
+  return ctx.store.jobs.claimNext(ctx.owner, ctx.leaseMs);
+}
+
+/** How often a holder renews its leases: three times a lease, so one late beat does not lose it. */
+export function heartbeatMs(leaseMs: number): number {
+  return Math.max(1000, Math.floor(leaseMs / 3));
 }
 
 export async function runOne(ctx: JobContext, job: JobRecord, log: Logger): Promise<void> {
@@ -66,9 +71,9 @@ export async function runOne(ctx: JobContext, job: JobRecord, log: Logger): Prom
 }
 
 /** Moves a failed upload's file aside (src/jobs/set-aside.ts); a failure to do so is logged, never thrown. */
-function setAside(ctx: Pick<JobContext, 'dataDir'>, job: JobRecord, log: Logger): string | null {
+function setAside(ctx: JobContext, job: JobRecord, log: Logger): string | null {
   try {
-    return setAsideUpload(ctx.dataDir, job);
+    return setAsideUpload(ctx, job);
   } catch (err) {
     log.error({ err }, 'could not move the failed upload out of its folder');
     return null;
@@ -148,6 +153,22 @@ export function createJobQueue(deps: {
     return { state, pending: p, running, threadDeaths, lastThreadDeath };
   };
 
+  // The heartbeat: this process renews the leases of the jobs it holds, then puts back in the queue the jobs
+  // of holders that stopped renewing theirs (a server on another host that died, say). Renewing first means a
+  // beat that comes late (a busy event loop) never takes this process's own jobs for abandoned ones.
+  const beat = (): void => {
+    if (closed) return;
+    try {
+      ctx.store.jobs.renewLeases(ctx.owner.holder, ctx.leaseMs);
+      const requeued = requeueAbandoned(ctx);
+      if (requeued > 0) log.warn({ jobs: requeued }, 'jobs whose holder stopped renewing their lease went back to the queue');
+    } catch (err) {
+      log.error({ err }, 'could not renew job leases');
+    }
+  };
+  const heartbeat = setInterval(beat, heartbeatMs(ctx.leaseMs));
+  heartbeat.unref();
+
   if (mode === 'inline') {
     let draining = false;
     const drainInline = async (): Promise<void> => {
@@ -175,6 +196,7 @@ export function createJobQueue(deps: {
       health,
       async close() {
         closed = true;
+        clearInterval(heartbeat);
       },
     };
   }
@@ -278,6 +300,7 @@ export function createJobQueue(deps: {
     async close() {
       closed = true;
       clearInterval(poll);
+      clearInterval(heartbeat);
       if (restartTimer) clearTimeout(restartTimer);
       if (watchdog) clearTimeout(watchdog);
       const w = worker;

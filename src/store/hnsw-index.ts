@@ -60,6 +60,8 @@ export interface VectorIndexes {
   adopt(from: string, to: string, generation: number, rows: readonly { id: number; chunkHash: string }[]): void;
   /** Drops a collection's in-memory index and its files (a shadow collection that was given up). */
   discard(collection: string): void;
+  /** The generation the collection's saved index holds (its description file only), or null when none is whole on disk. */
+  savedGeneration(collection: string): number | null;
   /**
    * The k nearest live vectors; with `allowed`, only among those chunk ids, and still k of them when that
    * many exist (the filter runs inside the graph search, with an exact scan when it is very selective).
@@ -289,6 +291,10 @@ export function createVectorIndexes(deps: {
       loaded.delete(c);
       removeFiles(c);
     },
+    savedGeneration(c) {
+      const meta = readMeta(c);
+      return meta && meta.file && existsSync(path.join(dir, meta.file)) ? meta.generation : null;
+    },
     search(c, vector, k, allowed) {
       const state = loaded.get(c);
       if (!state || state.live.size === 0) return [];
@@ -347,7 +353,7 @@ function deletedOf(state: Loaded): Set<number> {
   return new Set(all.filter((id) => !state.live.has(id)));
 }
 
-function fileSafe(collection: string): string {
+export function fileSafe(collection: string): string {
   if (SAFE_NAME.test(collection)) return collection;
   return Buffer.from(collection).toString('hex');
 }

@@ -223,10 +223,44 @@ export interface Repository extends CollectionStore, DocumentStore, ChunkStore, 
 
 export type JobState = 'queued' | 'running' | 'succeeded' | 'failed';
 
-/** The process holding a running job (its lease): on this host, by process id. */
+/**
+ * Who holds a running job or a named lease: a holder id made afresh by each process (and each of its threads),
+ * with the process id and host for people to read. A holder keeps what it holds by renewing the lease (its
+ * heartbeat); a lease not renewed before it expires counts as abandoned, whatever became of the process or its id.
+ */
 export interface JobOwner {
   pid: number;
   host: string;
+  holder: string;
+}
+
+/** A named lease in the database (the re-index lock): held by one holder until it expires or is released. */
+export interface Lease {
+  name: string;
+  owner: JobOwner;
+  acquiredAt: string;
+  heartbeatAt: string;
+  expiresAt: string;
+}
+
+/** Named leases: one holder at a time, taken over once its holder stops renewing it. */
+export interface LeaseStore {
+  /**
+   * Takes the lease for `owner` until now + `ttlMs` when it is free, expired, held by `owner` already, or held
+   * by an owner `isGone` knows has ended (a process of this host); otherwise returns the live lease that is in
+   * the way. Atomic across processes.
+   */
+  acquire(
+    name: string,
+    owner: JobOwner,
+    ttlMs: number,
+    isGone?: (holder: JobOwner) => boolean,
+  ): { acquired: true; lease: Lease } | { acquired: false; held: Lease };
+  /** Extends the lease to now + `ttlMs` if `holder` still holds it; false when it was lost (expired and taken). */
+  renew(name: string, holder: string, ttlMs: number): boolean;
+  /** Gives the lease up if `holder` holds it. */
+  release(name: string, holder: string): void;
+  get(name: string): Lease | null;
 }
 
 export interface JobRecord {
@@ -248,23 +282,27 @@ export interface JobRecord {
 /** Jobs and their leases: a running job is held by the process that started or claimed it. */
 export interface JobStore {
   create(kind: string, collection: string | null, payload?: unknown): JobRecord;
-  /** Marks a job running, held by `owner`. */
-  start(id: string, owner: JobOwner): void;
+  /** Marks a job running, held by `owner` under a lease of `leaseMs` from now. */
+  start(id: string, owner: JobOwner, leaseMs: number): void;
   succeed(id: string, result: unknown): void;
   fail(id: string, error: string, result?: unknown): void;
   get(id: string): JobRecord | null;
   /** Jobs by state; only those of these collections when given (jobs of no single collection are then left out). */
   counts(collections?: readonly string[]): { state: JobState; count: number }[];
+  /** The queued or running upload job of this collection whose payload carries this content hash, if any. */
+  activeUpload(collection: string, contentHash: string): JobRecord | null;
   /** Queue jobs (payload `via: "api"`) queued or running. */
   pendingQueued(): number;
-  /** Claims the oldest queued job for `owner` atomically, so two runners never take the same one. */
-  claimNext(owner: JobOwner): JobRecord | null;
+  /** Claims the oldest queued job for `owner` (a lease of `leaseMs`) atomically, so two runners never take the same one. */
+  claimNext(owner: JobOwner, leaseMs: number): JobRecord | null;
+  /** The heartbeat: extends the leases of the running jobs `holder` holds to now + `leaseMs`. Returns how many. */
+  renewLeases(holder: string, leaseMs: number): number;
   /**
-   * Queue jobs held by an owner that is gone go back to the queue, or fail once they have had `maxAttempts`.
-   * Returns how many were requeued.
+   * Queue jobs that are abandoned (their lease expired, or `isGone` says their owner is gone) go back to the
+   * queue, or fail once they have had `maxAttempts`. Returns how many were requeued.
    */
   requeueAbandoned(isGone: (owner: JobOwner | null) => boolean, maxAttempts: number): number;
-  /** Other running jobs (a CLI ingest, a seed) held by an owner that is gone fail with `reason(owner)`. */
+  /** Other running jobs (a CLI ingest, a seed) that are abandoned (as above) fail with `reason(owner)`. */
   failAbandoned(isGone: (owner: JobOwner | null) => boolean, reason: (owner: JobOwner | null) => string): number;
 }
 
@@ -297,9 +335,20 @@ export interface RatingStore {
   list(opts?: { collection?: string }): Rating[];
 }
 
+/** The database's own consistency checks (`sourcebound check`). */
+export interface DatabaseIntegrity {
+  /** What SQLite's `PRAGMA integrity_check` reported other than "ok" (each line a problem). */
+  sqlite: string[];
+  /** FTS5's 'integrity-check' command on the full-text index: null when it passed, else its error. */
+  fts: string | null;
+}
+
 /** Everything the service keeps. */
 export interface Store extends Repository {
+  /** Runs the database's own consistency checks (reads everything: slow on a large store). */
+  integrity(): DatabaseIntegrity;
   readonly jobs: JobStore;
+  readonly leases: LeaseStore;
   readonly ratings: RatingStore;
   /** Writes a consistent copy of the whole store to `file` (safe while others write). */
   backup(file: string): Promise<void>;

@@ -264,7 +264,10 @@ describe('the route table', () => {
           const entitled = access.kind === 'key' && caller.key === KEYS.homeAdmin && access.collection.in === 'own';
           if (ok && !entitled) failures.push(`2xx: ${what}`);
           if (ok && (res.body.includes(vaultDoc) || res.body.includes('vault'))) failures.push(`named the vault: ${what}`);
-          if (!ok && ![401, 403, 404].includes(res.statusCode)) failures.push(`unexpected status: ${what}`);
+          // 405: the spelling reached a path served for other methods (a trailing slash on a collection's
+          // documents reaches the `:id` path); a refusal that shows nothing, and never to a key for another collection.
+          const wrongMethod = res.statusCode === 405 && caller.key !== KEYS.homeAdmin && caller.key !== null && caller.key !== WRONG;
+          if (!ok && ![401, 403, 404].includes(res.statusCode) && !wrongMethod) failures.push(`unexpected status: ${what}`);
         }
       }
     }

@@ -10,36 +10,10 @@ import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { deflateRawSync } from 'node:zlib';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..', '..');
-const { crc32, writeZip } = await import(path.join(root, 'dist', 'ingest', 'zip.js'));
+const { INPUTS } = await import('./hostile-inputs.mjs');
 const MiB = 1024 * 1024;
-const W = 'http://schemas.openxmlformats.org/wordprocessingml/2006/main';
-
-/** A ZIP of deflated entries, by the service's own writer; `declare` overrides an entry's stated inflated size (a lying header). */
-function zip(entries) {
-  return writeZip(
-    entries.map((e) => ({ name: Buffer.from(e.name), packed: deflateRawSync(e.data, { level: 9 }), method: 8, size: e.declare ?? e.data.length, crc: crc32(e.data) })),
-  );
-}
-
-function wordFile(body, declare) {
-  const document = Buffer.from(`<?xml version="1.0"?><w:document xmlns:w="${W}"><w:body>${body}</w:body></w:document>`);
-  return zip([
-    { name: '[Content_Types].xml', data: Buffer.from('<Types xmlns="http://schemas.openxmlformats.org/package/2006/content-types"/>') },
-    { name: 'word/document.xml', data: document, declare },
-  ]);
-}
-
-const INPUTS = {
-  'ZIP bomb as .txt, 100 MiB, honest headers': ['meeting.txt', () => wordFile(`<w:p><w:r><w:t>${'A'.repeat(100 * MiB)}</w:t></w:r></w:p>`)],
-  'ZIP bomb as .txt, 400 MiB, headers declare 1 KB': ['minutes.txt', () => wordFile(`<w:p><w:r><w:t>${'A'.repeat(400 * MiB)}</w:t></w:r></w:p>`, 1000)],
-  'Word file, 60 MiB of paragraphs': ['stops.docx', () => wordFile(`<w:p><w:r><w:t>${'Tram stop '.repeat(100)}</w:t></w:r></w:p>`.repeat(Math.ceil((60 * MiB) / 1037)))],
-  '50 MB single line': ['one-line.txt', () => 'fare '.repeat(10_000_000)],
-  '4.9 MB single line of distinct words (under the limit)': ['long-line.txt', () => Array.from({ length: 620_000 }, (_, i) => `s${i}`).join(' ')],
-  'HTML nested 200,000 deep': ['deep.html', () => `<!doctype html><html><body>${'<div>'.repeat(200_000)}x${'</div>'.repeat(200_000)}</body></html>`],
-};
 
 if (process.argv[2] === '--one') {
   // The child: ingest the one file in the folder it is given, report as JSON on stdout.

@@ -19,7 +19,11 @@ afterEach(async () => {
 });
 
 /** A process of this host that has ended: run to completion before its pid is used. */
-const gone = (): JobOwner => ({ pid: runSync(process.execPath, ['-e', '0'], { what: 'a process that exits at once' }).pid!, host: hostname() });
+const gone = (): JobOwner => ({
+  pid: runSync(process.execPath, ['-e', '0'], { what: 'a process that exits at once' }).pid!,
+  host: hostname(),
+  holder: 'holder-of-a-process-that-ended',
+});
 
 /** A data folder whose store holds jobs as the given owners left them, running. */
 function dataDirWith(jobs: { kind: string; payload: Record<string, unknown>; owner: JobOwner }[]): { dir: string; ids: string[] } {
@@ -29,7 +33,7 @@ function dataDirWith(jobs: { kind: string; payload: Record<string, unknown>; own
   try {
     const ids = jobs.map((j) => {
       const job = store.jobs.create(j.kind, 'default', j.payload);
-      store.jobs.start(job.id, j.owner);
+      store.jobs.start(job.id, j.owner, 60_000);
       return job.id;
     });
     return { dir, ids };
@@ -54,7 +58,7 @@ describe('jobs left running by a process that is gone', () => {
     const dead = gone();
     const { dir, ids } = dataDirWith([
       { kind: 'ingest', payload: { path: '/docs' }, owner: dead },
-      { kind: 'ingest', payload: { path: '/more' }, owner: { pid: process.pid, host: hostname() } },
+      { kind: 'ingest', payload: { path: '/more' }, owner: { pid: process.pid, host: hostname(), holder: 'holder-of-this-process' } },
     ]);
     const [crashed, live] = ids as [string, string];
     const r = runSync(process.execPath, [CLI, 'reindex', '--json'], {

@@ -151,6 +151,9 @@ describe('killing an ingest mid-run', () => {
       expect(after.docs, at).toEqual(reference.docs);
       expect(after.chunks, at).toBe(reference.chunks);
       expect(after.integrity, at).toBe('ok');
+      // And `sourcebound check` finds the store sound: integrity, index files against the database, no orphans.
+      const checked = runSync(process.execPath, [CLI, 'check'], { env: env(dataDir), what: `sourcebound check ${at}` });
+      expect(checked.status, `${at}: ${checked.stdout}${checked.stderr}`).toBe(0);
     }
     // The first-document and half-way points are seen while documents are still being stored, so those kills
     // land mid-run on any machine; if they did not, the kill points above no longer test a crash mid-run.

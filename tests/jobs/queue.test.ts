@@ -1,16 +1,19 @@
-import { readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import path from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
-import { hostname } from 'node:os';
-import { requeueAbandoned, thisProcess, withReindexLock } from '../../src/jobs/index.js';
+import { hostname, tmpdir } from 'node:os';
+import { REINDEX_LEASE, requeueAbandoned, thisProcess, withReindexLock } from '../../src/jobs/index.js';
 import { silentLogger } from '../../src/logger.js';
-import { createDocumentApi, createRuntime, jobContext } from '../../src/runtime.js';
+import { createDocumentApi, createRuntime, ingestAsJob, jobContext } from '../../src/runtime.js';
+import { openStore, storePaths } from '../../src/store/index.js';
 import { tempRuntime, rawDb } from '../fixtures/runtime.js';
 import { runSync, withDeadline } from '../fixtures/wait.js';
 
 const cleanups: (() => void | Promise<void>)[] = [];
 /** The queue's own idle() resolves at once when nothing is pending; the deadline names the wait if a job hangs. */
 const idle = (queue: { idle(): Promise<void> }) => withDeadline(queue.idle(), { what: 'the job queue to finish its jobs', timeoutMs: 20_000 });
+/** A lease length for jobs the tests start by hand (the default of `limits.jobLeaseSeconds`). */
+const LEASE_MS = 60_000;
 afterEach(async () => {
   for (const c of cleanups.splice(0).reverse()) await c();
 });
@@ -64,13 +67,13 @@ describe('the job queue', () => {
   it('puts jobs left running by a dead process back in the queue, and gives up after 3 attempts', async () => {
     const { rt, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
-    const gone = { pid: deadPid(), host: hostname() };
+    const gone = { pid: deadPid(), host: hostname(), holder: 'holder-that-crashed' };
     const a = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
     const b = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
     const live = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' }); // held by this process, still running
     const cli = rt.jobs.create('ingest', 'c', { path: '/x' }); // a CLI run: not the queue's to resume
-    for (const j of [a, b, cli]) rt.jobs.start(j.id, gone);
-    rt.jobs.start(live.id, thisProcess());
+    for (const j of [a, b, cli]) rt.jobs.start(j.id, gone, LEASE_MS);
+    rt.jobs.start(live.id, thisProcess(), LEASE_MS);
     rawDb(rt).prepare('UPDATE jobs SET attempts = 3 WHERE id = ?').run(b.id);
     expect(requeueAbandoned(jobContext(rt))).toBe(1);
     expect(rt.jobs.get(a.id)!.state).toBe('queued');
@@ -82,19 +85,21 @@ describe('the job queue', () => {
   it('fails, when a command opens the store, a job left running by a process that is gone, and leaves a live one alone', async () => {
     const { rt, config, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
-    const gone = { pid: deadPid(), host: hostname() };
+    const gone = { pid: deadPid(), host: hostname(), holder: 'holder-that-crashed' };
     // As a crashed `sourcebound ingest` leaves its job: running, held by a process that no longer exists.
     const crashed = rt.jobs.create('ingest', 'c', { path: '/docs' });
-    rt.jobs.start(crashed.id, gone);
+    rt.jobs.start(crashed.id, gone, LEASE_MS);
     const running = rt.jobs.create('ingest', 'c', { path: '/other' });
-    rt.jobs.start(running.id, thisProcess());
+    rt.jobs.start(running.id, thisProcess(), LEASE_MS);
     const remote = rt.jobs.create('reindex', 'c', {});
-    rt.jobs.start(remote.id, { pid: gone.pid, host: `not-${hostname()}` }); // another host's: cannot be checked
+    rt.jobs.start(remote.id, { pid: gone.pid, host: `not-${hostname()}`, holder: 'holder-on-another-host' }, LEASE_MS); // another host's: cannot be checked
     const legacy = rt.jobs.create('reindex', 'c', {});
-    rt.jobs.start(legacy.id, gone);
-    rawDb(rt).prepare('UPDATE jobs SET owner_pid = NULL, owner_host = NULL WHERE id = ?').run(legacy.id); // written before owners
+    rt.jobs.start(legacy.id, gone, LEASE_MS);
+    rawDb(rt)
+      .prepare('UPDATE jobs SET owner_pid = NULL, owner_host = NULL, lease_holder = NULL, heartbeat_at = NULL, lease_expires_at = NULL WHERE id = ?')
+      .run(legacy.id); // written before owners
     const queued = rt.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
-    rt.jobs.start(queued.id, gone); // the queue's: put back by the server, not failed
+    rt.jobs.start(queued.id, gone, LEASE_MS); // the queue's: put back by the server, not failed
     expect(rt.jobs.get(crashed.id)!.state).toBe('running');
 
     const again = await createRuntime(config, silentLogger());
@@ -109,25 +114,98 @@ describe('the job queue', () => {
 });
 
 describe('the re-index lock', () => {
-  it('makes a second concurrent re-index fail with a clear message', async () => {
-    const { dataDir, cleanup } = await tempRuntime();
+  it('makes a second concurrent re-index fail with a clear message, and is free again once the first ends', async () => {
+    const { rt, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
+    const deps = { leases: rt.store.leases, leaseMs: LEASE_MS };
     let release!: () => void;
-    const first = withReindexLock(dataDir, () => new Promise<void>((r) => (release = r)));
-    await expect(withReindexLock(dataDir, async () => 1)).rejects.toMatchObject({ code: 'SB_ERR_REINDEX_RUNNING' });
+    const first = withReindexLock({ ...deps, owner: thisProcess() }, () => new Promise<void>((r) => (release = r)));
+    const other = { pid: process.pid, host: hostname(), holder: 'another-holder' };
+    await expect(withReindexLock({ ...deps, owner: other }, async () => 1)).rejects.toMatchObject({
+      code: 'SB_ERR_REINDEX_RUNNING',
+      message: expect.stringContaining(`process ${process.pid} on ${hostname()}`),
+    });
     release();
     await first;
-    expect(await withReindexLock(dataDir, async () => 2)).toBe(2);
+    expect(rt.store.leases.get(REINDEX_LEASE)).toBeNull();
+    expect(await withReindexLock({ ...deps, owner: other }, async () => 2)).toBe(2);
   });
 
-  it('takes over a stale lock left by a process that died', async () => {
-    const { dataDir, cleanup } = await tempRuntime();
+  it('is taken over once the lease of a holder that died has expired (a clock the test moves, no waiting)', async () => {
+    const dataDir = mkdtempSync(path.join(tmpdir(), 'sb-lease-'));
+    cleanups.push(() => rmSync(dataDir, { recursive: true, force: true }));
+    let now = Date.parse('2026-03-01T09:00:00.000Z');
+    const store = openStore(storePaths(dataDir).database, { clock: () => new Date(now) });
+    cleanups.push(() => store.close());
+    // A holder that took the lease and then crashed: it never renews nor releases it. Its process id is this
+    // live process's, as when the id of a dead process has been given to another: only the lease can tell.
+    const crashed = { pid: process.pid, host: hostname(), holder: 'holder-that-crashed' };
+    expect(store.leases.acquire(REINDEX_LEASE, crashed, LEASE_MS).acquired).toBe(true);
+    const next = { leases: store.leases, owner: thisProcess(), leaseMs: LEASE_MS };
+    now += LEASE_MS - 1; // still within its lease
+    await expect(withReindexLock(next, async () => 'ran')).rejects.toMatchObject({ code: 'SB_ERR_REINDEX_RUNNING' });
+    now += 1; // the lease has expired
+    let heldWhileRunning: string | undefined;
+    expect(
+      await withReindexLock(next, async () => {
+        heldWhileRunning = store.leases.get(REINDEX_LEASE)?.owner.holder;
+        return 'ran';
+      }),
+    ).toBe('ran');
+    expect(heldWhileRunning).toBe(thisProcess().holder);
+    expect(store.leases.get(REINDEX_LEASE)).toBeNull();
+  });
+
+  it('is taken over at once when its holder was a process of this host that has ended', async () => {
+    const { rt, cleanup } = await tempRuntime();
     cleanups.push(cleanup);
-    // Run to completion before its pid is used, so the pid belongs to a process that has ended.
-    const dead = runSync(process.execPath, ['-e', '0'], { what: 'a process that exits at once' });
-    const { hostname } = await import('node:os');
-    writeFileSync(path.join(dataDir, 'reindex.lock'), JSON.stringify({ pid: dead.pid, host: hostname(), since: '2026-01-01T00:00:00Z' }));
-    expect(await withReindexLock(dataDir, async () => 'ran')).toBe('ran');
+    const crashed = { pid: deadPid(), host: hostname(), holder: 'holder-that-crashed' };
+    expect(rt.store.leases.acquire(REINDEX_LEASE, crashed, LEASE_MS).acquired).toBe(true);
+    expect(await withReindexLock({ leases: rt.store.leases, owner: thisProcess(), leaseMs: LEASE_MS }, async () => 'ran')).toBe('ran');
+  });
+
+  it('lets `sourcebound reindex` proceed past a lease a dead holder left, once it has expired', async () => {
+    const { rt, config, cleanup } = await tempRuntime({ limits: { jobLeaseSeconds: 60 } });
+    cleanups.push(cleanup);
+    const crashed = { pid: process.pid, host: `not-${hostname()}`, holder: 'holder-that-crashed' };
+    // Taken as if an hour ago, so it expired 59 minutes ago: the holder stopped renewing it when it died.
+    const earlier = openStore(storePaths(config.dataDir).database, { clock: () => new Date(Date.now() - 3_600_000) });
+    expect(earlier.leases.acquire(REINDEX_LEASE, crashed, 60_000).acquired).toBe(true);
+    earlier.close();
+    const job = await ingestAsJob(rt, 'reindex', null, {}, () =>
+      withReindexLock({ leases: rt.store.leases, owner: thisProcess(), leaseMs: LEASE_MS }, () => rt.ingestor.reindex({})),
+    );
+    expect(job.documents.failed).toBe(0);
+    expect(rt.store.leases.get(REINDEX_LEASE)).toBeNull();
+  });
+});
+
+describe('job leases', () => {
+  it('count a running job as abandoned once its lease expires unrenewed, even when its process id is alive', async () => {
+    const dataDir = mkdtempSync(path.join(tmpdir(), 'sb-lease-'));
+    cleanups.push(() => rmSync(dataDir, { recursive: true, force: true }));
+    let now = Date.parse('2026-03-01T09:00:00.000Z');
+    const store = openStore(storePaths(dataDir).database, { clock: () => new Date(now) });
+    cleanups.push(() => store.close());
+    const alive = (): boolean => false; // every owner's process looks alive: only the lease decides
+    const reason = (): string => 'abandoned: lease expired';
+    const stale = store.jobs.create('ingest', 'c', { path: '/docs' });
+    store.jobs.start(stale.id, { pid: process.pid, host: hostname(), holder: 'holder-that-crashed' }, LEASE_MS);
+    const beating = store.jobs.create('ingest', 'c', { path: '/more' });
+    store.jobs.start(beating.id, { pid: process.pid, host: hostname(), holder: 'holder-that-beats' }, LEASE_MS);
+    const remote = store.jobs.create('reindex', null, { kind: 'reindex', via: 'api' });
+    store.jobs.start(remote.id, { pid: 1, host: `not-${hostname()}`, holder: 'server-on-another-host' }, LEASE_MS);
+
+    now += LEASE_MS / 2;
+    expect(store.jobs.renewLeases('holder-that-beats', LEASE_MS)).toBe(1);
+    expect(store.jobs.failAbandoned(alive, reason)).toBe(0);
+    now += LEASE_MS / 2; // the first two leases were taken LEASE_MS ago: both are due, one was renewed
+    expect(store.jobs.failAbandoned(alive, reason)).toBe(1);
+    expect(store.jobs.get(stale.id)).toMatchObject({ state: 'failed', error: 'abandoned: lease expired' });
+    expect(store.jobs.get(beating.id)!.state).toBe('running');
+    // The other host's server job goes back to the queue, which cannot check a process there.
+    expect(store.jobs.requeueAbandoned(alive, 3)).toBe(1);
+    expect(store.jobs.get(remote.id)!.state).toBe('queued');
   });
 });
 

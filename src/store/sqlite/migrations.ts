@@ -185,4 +185,23 @@ export const MIGRATIONS: readonly Migration[] = [
       after = rows[rows.length - 1]![0];
     }
   },
+  // 7: leases instead of process ids. A process id says nothing once the process is gone and the id is reused,
+  // and nothing at all about a process on another host; a lease does: its holder renews it (a heartbeat) and a
+  // lease not renewed by `lease_expires_at` counts as abandoned. Running jobs carry their holder's lease; the
+  // re-index lock becomes a named lease in `leases` (it was a file in the data folder). NULL lease columns are
+  // rows written before: those are judged by their process id as before.
+  `
+  ALTER TABLE jobs ADD COLUMN lease_holder TEXT;
+  ALTER TABLE jobs ADD COLUMN heartbeat_at TEXT;
+  ALTER TABLE jobs ADD COLUMN lease_expires_at TEXT;
+  CREATE TABLE leases (
+    name TEXT PRIMARY KEY,
+    holder TEXT NOT NULL,
+    pid INTEGER NOT NULL,
+    host TEXT NOT NULL,
+    acquired_at TEXT NOT NULL,
+    heartbeat_at TEXT NOT NULL,
+    expires_at TEXT NOT NULL
+  );
+  `,
 ];

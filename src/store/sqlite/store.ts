@@ -1,11 +1,13 @@
 // The SQLite implementation of the store: one database file (WAL mode) holds collections, documents, chunks,
 // their FTS5 rows and vectors, jobs and ratings (docs/architecture.md, "Storage").
 
-import type { JobStore, RatingStore, Repository, Store } from '../types.js';
+import type { DatabaseIntegrity, JobStore, LeaseStore, RatingStore, Repository, Store } from '../types.js';
 import { sqliteChunks, sqliteFtsSearch } from './chunks.js';
 import { sqliteCollections, sqliteDocuments } from './corpus.js';
 import { openDatabase, type Db } from './db.js';
+import { sqliteIntegrity } from './integrity.js';
 import { sqliteJobs } from './jobs.js';
+import { sqliteLeases } from './leases.js';
 import { sqliteLexical } from './lexical.js';
 import { sqliteRatings } from './ratings.js';
 
@@ -14,10 +16,14 @@ export interface SqliteStore extends Repository {}
 
 export class SqliteStore implements Store {
   readonly jobs: JobStore;
+  readonly leases: LeaseStore;
   readonly ratings: RatingStore;
 
-  /** Takes over an open connection (see openDatabase); `close()` closes it. */
-  constructor(readonly db: Db) {
+  /** Takes over an open connection (see openDatabase); `close()` closes it. `clock` dates jobs and leases. */
+  constructor(
+    readonly db: Db,
+    clock: () => Date = () => new Date(),
+  ) {
     const collections = sqliteCollections(db);
     const corpus: Repository = {
       ...collections,
@@ -27,8 +33,13 @@ export class SqliteStore implements Store {
       searchFts: sqliteFtsSearch(db, (c) => collections.collectionState(c) !== null),
     };
     Object.assign(this, corpus);
-    this.jobs = sqliteJobs(db);
+    this.jobs = sqliteJobs(db, clock);
+    this.leases = sqliteLeases(db, clock);
     this.ratings = sqliteRatings(db);
+  }
+
+  integrity(): DatabaseIntegrity {
+    return sqliteIntegrity(this.db);
   }
 
   async backup(file: string): Promise<void> {
@@ -42,7 +53,7 @@ export class SqliteStore implements Store {
 }
 
 /** Opens (creating and migrating if needed) the store in `file`, or in memory for ':memory:'. */
-export function openStore(file: string, opts: { readonly?: boolean } = {}): SqliteStore {
-  return new SqliteStore(openDatabase(file, opts));
+export function openStore(file: string, opts: { readonly?: boolean; clock?: () => Date } = {}): SqliteStore {
+  return new SqliteStore(openDatabase(file, opts), opts.clock);
 }
 
