@@ -9,10 +9,10 @@ export interface JobContext {
   maxUploadBytes: number;
   store: Pick<
     Repository,
-    'ensureCollection' | 'getCollection' | 'addSourceRoot' | 'getDocument' | 'listDocuments' | 'deleteDocument' | 'findDocumentByContent' | 'countChunks'
+    'ensureCollection' | 'getCollection' | 'addSourceRoot' | 'getDocument' | 'listDocuments' | 'deleteDocument' | 'findDocumentByContent' | 'countChunks' | 'collectionState'
   > & { jobs: JobStore };
   ingestor: Pick<Ingestor, 'ingestPath' | 'reindex'>;
-  indexes: Pick<VectorIndexes, 'sync'>;
+  indexes: Pick<VectorIndexes, 'sync' | 'apply'>;
   /** This process, as the holder of the jobs it runs. */
   owner: JobOwner;
 }
