@@ -91,7 +91,7 @@ const COMPACT_SHARE = 0.25;
 const COMPACT_MIN = 256;
 
 export function createVectorIndexes(deps: {
-  repo: Pick<CollectionStore, 'collectionState'> & Pick<ChunkStore, 'chunksOfCollection'> & Pick<VectorStore, 'getVectors'>;
+  repo: Pick<CollectionStore, 'collectionState'> & Pick<ChunkStore, 'chunksOfCollection'> & Pick<VectorStore, 'getVectors' | 'chunkVectors'>;
   dir: string;
   embedderId: string;
   dimensions: number;
@@ -320,14 +320,14 @@ export function createVectorIndexes(deps: {
         if (n === 0) return [];
         // Below a few thousand allowed vectors an exact scan costs about what a filtered graph walk does,
         // and a graph walk through a sparse filter can strand itself in regions with no allowed node.
-        if (ids.length <= EXACT_SCAN_LIMIT) return exactSearch(state.index, query, ids, n);
+        if (ids.length <= EXACT_SCAN_LIMIT) return exactSearch(repo.chunkVectors(embedderId, ids), vector, n);
         let ef = Math.max(params.efSearch, n);
         for (;;) {
           state.index.setEf(ef);
           const res = state.index.searchKnn(query, n, (label) => allowed.has(label));
           if (res.neighbors.length >= n || ef >= ids.length) {
             state.index.setEf(params.efSearch);
-            return res.neighbors.length >= n ? toHits(res) : exactSearch(state.index, query, ids, n);
+            return res.neighbors.length >= n ? toHits(res) : exactSearch(repo.chunkVectors(embedderId, ids), vector, n);
           }
           ef *= 4;
         }
@@ -362,13 +362,17 @@ function toHits(res: { neighbors: number[]; distances: number[] }): VectorHit[] 
   return hits;
 }
 
-function exactSearch(index: Hnsw, query: number[], ids: readonly number[], n: number): VectorHit[] {
-  const scored = ids.map((id) => {
-    const v = index.getPoint(id);
+/**
+ * The exact top n of some points, from the stored vectors: one statement for all of them, where hnswlib's
+ * getPoint builds a JavaScript array element by element (about 30 ms for 1,000 points of 384 dimensions).
+ */
+function exactSearch(vectors: ReadonlyMap<number, Float32Array>, query: Float32Array, n: number): VectorHit[] {
+  const scored: VectorHit[] = [];
+  for (const [id, v] of vectors) {
     let s = 0;
     for (let i = 0; i < query.length; i++) s += query[i]! * v[i]!;
-    return { chunkId: id, score: s };
-  });
+    scored.push({ chunkId: id, score: s });
+  }
   return scored.sort((a, b) => b.score - a.score || a.chunkId - b.chunkId).slice(0, n);
 }
 

@@ -28,12 +28,28 @@ export async function runVectorChangeBench({ chunks = 100_000, queries = 300, ch
   const retriever = createRetriever({ repo, indexes, embedder, options: OPTIONS, lexicalIndex });
   const out = { chunks, storeSeconds, indexSeconds, recallQueries };
 
-  // 1. latency before any change
-  const time = async (req) => {
+  // 1. latency before any change. With SB_BENCH_BASELINE_DIST (the dist/ folder of an earlier build), that
+  // build's store, vector index and retriever answer the same queries on the same files, alternating query by
+  // query with this build's, so that both see the same load.
+  const baseline = process.env.SB_BENCH_BASELINE_DIST ? await baselineRetriever(process.env.SB_BENCH_BASELINE_DIST, repo.db.name, indexDir, embedder) : null;
+  const time = async (req, r = retriever) => {
     const s = performance.now();
-    const hits = await retriever.search(req);
+    const hits = await r.search(req);
     return { ms: performance.now() - s, hits };
   };
+  if (baseline) {
+    const runs = { hybrid: [[], []], filtered: [[], []] };
+    for (const q of qTexts.slice(0, 20)) for (const r of [retriever, baseline.retriever]) await r.search({ query: q, collection: 'bench', k: 10, mode: 'hybrid' });
+    for (const [i, q] of qTexts.entries()) {
+      for (const [j, r] of [retriever, baseline.retriever].entries()) {
+        runs.hybrid[j].push((await time({ query: q, collection: 'bench', k: 10, mode: 'hybrid' }, r)).ms);
+        runs.filtered[j].push((await time({ query: q, collection: 'bench', k: 10, mode: 'hybrid', filter: { metadata: { group: String(i % 100) } } }, r)).ms);
+      }
+    }
+    out.versus = Object.fromEntries(Object.entries(runs).map(([k, [now, base]]) => [k, { now: latencySummary(now), base: latencySummary(base) }]));
+    baseline.close();
+    log(`  against the baseline: hybrid p95 ${out.versus.hybrid.base.p95.toFixed(2)} -> ${out.versus.hybrid.now.p95.toFixed(2)} ms, filtered p95 ${out.versus.filtered.base.p95.toFixed(2)} -> ${out.versus.filtered.now.p95.toFixed(2)} ms`);
+  }
   for (const q of qTexts.slice(0, 20)) await retriever.search({ query: q, collection: 'bench', k: 10, mode: 'hybrid' });
   const hybrid = [];
   for (const q of qTexts) hybrid.push((await time({ query: q, collection: 'bench', k: 10, mode: 'hybrid' })).ms);
@@ -129,6 +145,21 @@ export async function runVectorChangeBench({ chunks = 100_000, queries = 300, ch
   return out;
 }
 
+/** An earlier build's retriever over the same database and index files (in-memory lexical engine, defaults). */
+async function baselineRetriever(dist, dbFile, indexDir, embedder) {
+  const store = await import(path.join(dist, 'store', 'index.js'));
+  const retrieve = await import(path.join(dist, 'retrieve', 'index.js'));
+  const config = await import(path.join(dist, 'config', 'schema.js'));
+  const repo = new store.SqliteStore(store.openDatabase(dbFile));
+  const cfg = config.configSchema.parse({});
+  const indexes = store.createVectorIndexes({ repo, dir: indexDir, embedderId: 'bench-384', dimensions: DIMS, params: cfg.retrieval.hnsw });
+  indexes.sync('bench', { persist: false });
+  const lexicalIndex = retrieve.createLexicalMemory(repo);
+  lexicalIndex.syncNow();
+  const retriever = retrieve.createRetriever({ repo, indexes, embedder, options: { ...retrieve.retrieverOptions(cfg.retrieval), lexicalEngine: 'memory' }, lexicalIndex });
+  return { retriever, close: () => { lexicalIndex.close(); indexes.close(); repo.close(); } };
+}
+
 /** Recall@10 of the index's search against exact inner-product search over every stored vector. */
 function recallAt10(repo, indexes, probes) {
   const rows = repo.chunksOfCollection('bench');
@@ -163,6 +194,16 @@ export function vectorChangeMarkdown(r) {
     `| hybrid, 1% metadata filter (a different group each query) | ${f(r.filtered.p50)} | ${f(r.filtered.p95)} | ${f(r.filtered.p99)} |${r.filtered.short ? ` (${r.filtered.short} short of k)` : ''}`,
     '',
     `Allowed-chunk set of a 1% filter alone: ${f(r.allowedSetMs, 3)} ms median.`,
+    ...(r.versus
+      ? [
+          '',
+          'Against the earlier build (same files, queries alternating between the two builds), p50 / p95 ms:',
+          '',
+          '| measure | earlier build | this build | p95 ratio |',
+          '|---|---:|---:|---:|',
+          ...Object.entries(r.versus).map(([k, v]) => `| ${k === 'hybrid' ? 'hybrid' : 'hybrid, 1% metadata filter'} | ${f(v.base.p50)} / ${f(v.base.p95)} | ${f(v.now.p50)} / ${f(v.now.p95)} | ${f(v.base.p95 / v.now.p95, 1)}x |`),
+        ]
+      : []),
     '',
     `One-document change (10 chunks; new and updated documents alternately; ${c.inPlace} of ${c.changes} applied in place), medians in ms:`,
     '',
