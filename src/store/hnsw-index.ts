@@ -248,8 +248,10 @@ export function createVectorIndexes(deps: {
       const r = check(c, state, generation);
       ({ state, added, removed, rebuilt } = r);
       fromDisk = r.loaded;
+      // Saved again even when nothing changed in the graph (a rename moves no vector), so that the file names the
+      // generation readers compare against.
+      if (added + removed > 0 || rebuilt || state.meta.generation !== generation) state.saved = false;
       state.meta = { ...state.meta, generation };
-      if (added + removed > 0 || rebuilt) state.saved = false;
     }
     loaded.set(c, state);
     if (!persist) return { added, removed, rebuilt, size: state.live.size, loaded: fromDisk };
