@@ -214,7 +214,7 @@ export function createIngestor(deps: {
     summary.chunks.embedded += unique.length;
     summary.chunks.reused += chunks.length - unique.length;
     const docId = documentId(collection, source);
-    const { removedChunkIds } = repo.replaceDocument(
+    const { removedChunkIds, chunkIds, generation } = repo.replaceDocument(
       {
         id: docId,
         collection,
@@ -236,6 +236,12 @@ export function createIngestor(deps: {
       vectors,
       embedder.id,
     );
+    // The vector index learns the change from the write itself, in place; the sync at the end saves it.
+    const added = chunks.flatMap((c, i) => {
+      const vector = vectors.get(c.chunkHash);
+      return vector ? [{ id: chunkIds[i]!, vector }] : [];
+    });
+    indexes.apply(collection, { generation, removed: removedChunkIds, added });
     summary.chunks.removed += removedChunkIds.length;
     progress.pages += loaded.pageCount ?? 0;
     progress.chunks += chunks.length;
@@ -289,7 +295,10 @@ export function createIngestor(deps: {
     if (opts.removeMissing && info.isDirectory()) {
       for (const doc of repo.documentKeys(opts.collection)) {
         if (doc.root === base && !seen.has(doc.source)) {
-          summary.chunks.removed += repo.deleteDocument(doc.id).length;
+          const removed = repo.deleteDocument(doc.id);
+          const generation = repo.collectionState(opts.collection)?.generation;
+          if (generation !== undefined) indexes.apply(opts.collection, { generation, removed, added: [] });
+          summary.chunks.removed += removed.length;
           summary.documents.removed++;
         }
       }

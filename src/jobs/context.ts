@@ -18,9 +18,10 @@ export interface JobContext {
     | 'deleteDocument'
     | 'findDocumentByContent'
     | 'countChunks'
+    | 'collectionState'
   > & { jobs: JobStore; leases: LeaseStore };
   ingestor: Pick<Ingestor, 'ingestPath' | 'reindex'>;
-  indexes: Pick<VectorIndexes, 'sync'>;
+  indexes: Pick<VectorIndexes, 'sync' | 'apply'>;
   /** Uploaded originals kept by content hash (src/store/originals.ts). */
   originals: Originals;
   /** This process, as the holder of the jobs it runs. */

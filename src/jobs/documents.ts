@@ -155,6 +155,9 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): Documen
       // An uploaded file goes too, or the next re-index of the upload folder would bring it back.
       if (d.root && d.root === path.join(uploadsRoot, collection)) rmSync(path.join(d.root, d.source), { force: true });
       if (!store.findDocumentByContent(collection, d.contentHash)) ctx.originals.drop(collection, d.contentHash);
+      // A deletion is a deletion: its chunks are marked deleted in place and the index saved, with no re-walk.
+      const generation = store.collectionState(collection)?.generation;
+      if (generation !== undefined) ctx.indexes.apply(collection, { generation, removed, added: [] });
       ctx.indexes.sync(collection);
       return { chunksRemoved: removed.length };
     },

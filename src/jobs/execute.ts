@@ -26,8 +26,8 @@ export async function executeJob(ctx: Pick<JobContext, 'ingestor' | 'store' | 'o
     // Only the uploaded file: a file of the folder that failed before is not this job's to retry. The folder
     // stays one of the collection's source folders, so a re-index walks all of it.
     const summary = await ctx.ingestor.ingestPath(path.join(p.root, p.source), { collection: p.collection });
-    // An upload is for its one file: when that file could not be read, the job failed, whatever else the
-    // folder walk did.
+    // An upload is for its one file (ingestPath given a file walks no folder and hashes nothing else): when that
+    // file could not be read, the job failed.
     const own = summary.failures.find((f) => f.source === p.source);
     if (own) throw new JobFailed(`${p.source}: ${own.reason}`, summary);
     return summary;

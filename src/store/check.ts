@@ -5,7 +5,7 @@ import { createHash } from 'node:crypto';
 import { existsSync, readdirSync, readFileSync, statSync } from 'node:fs';
 import path from 'node:path';
 import hnswlib from 'hnswlib-node';
-import { fileSafe } from './hnsw-index.js';
+import { fileSafe } from './hnsw-files.js';
 import { createOriginals } from './originals.js';
 import { storePaths } from './paths.js';
 import { shadowCollectionName, type Store } from './types.js';

@@ -1,11 +1,7 @@
-import { closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, renameSync, unlinkSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync } from 'node:fs';
 import path from 'node:path';
-import { threadId } from 'node:worker_threads';
-import hnswlib from 'hnswlib-node';
+import { createIndexFiles, newIndex, type Hnsw, type IndexMeta } from './hnsw-files.js';
 import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
-
-const { HierarchicalNSW } = hnswlib;
-type Hnsw = InstanceType<typeof HierarchicalNSW>;
 
 export interface HnswParams {
   m: number;
@@ -19,24 +15,11 @@ export interface VectorHit {
   score: number;
 }
 
-/** Written beside each index file; renaming it into place is the commit point of a save. */
-interface IndexMeta {
-  version: 1;
-  embedderId: string;
-  dimensions: number;
-  generation: number;
-  file: string;
-  m: number;
-  efConstruction: number;
-  /** Labels marked deleted (hnswlib keeps them in getIdsList). */
-  deleted: number[];
-}
-
 interface Loaded {
   index: Hnsw;
   meta: IndexMeta;
   live: Set<number>;
-  /** False while memory is ahead of the file on disk (a query-path sync does not write files). */
+  /** False while memory is ahead of the file on disk. */
   saved: boolean;
 }
 
@@ -45,13 +28,42 @@ export interface VectorIndexLogger {
   warn(obj: object, msg: string): void;
 }
 
+/** One write's effect on a collection's vectors, as the writer knows it from the write itself. */
+export interface VectorChange {
+  /** The collection's generation the write moved it to. */
+  generation: number;
+  removed: readonly number[];
+  added: readonly { id: number; vector: Float32Array }[];
+}
+
+export interface SyncResult {
+  added: number;
+  removed: number;
+  rebuilt: boolean;
+  size: number;
+  /** The index was replaced by the file another writer saved. */
+  loaded?: boolean;
+  /** Tombstones were dropped by building the graph again from its live points. */
+  compacted?: boolean;
+}
+
 export interface VectorIndexes {
   /**
-   * Brings the collection's index in step with the database (loading, patching or rebuilding it). With
-   * `persist: false` (the query path) only memory changes: writers save, readers do not rewrite files.
+   * Writers (`persist`, the default: ingest, re-index, start-up) bring the collection's index in step with the
+   * database, checking it against every stored chunk when it was not kept in step by `apply`, save it with the
+   * generation it holds, and drop tombstones past a quarter of the graph by building it again, after saving.
+   * Readers (`persist: false`, the query path) never patch, rebuild or write: when the database has moved on
+   * and a writer has saved a later generation, they load that file; until then they keep what they have. Only
+   * a reader with no index at all builds one in memory.
    * `generation`: the collection's generation when the caller has just read it (saves a lookup per query).
    */
-  sync(collection: string, opts?: { persist?: boolean; generation?: number }): { added: number; removed: number; rebuilt: boolean; size: number };
+  sync(collection: string, opts?: { persist?: boolean; generation?: number }): SyncResult;
+  /**
+   * A writer's change applied in place (new points added, removed ones marked deleted), when the index holds
+   * exactly the generation before it; memory only, saved by the writer's next `sync`. Returns false when the
+   * index was not at that generation: the next `sync` then checks it against the database.
+   */
+  apply(collection: string, change: VectorChange): boolean;
   /**
    * Makes the index of collection `from` (a shadow built by a full re-index) the index of `to` at
    * `generation`, holding exactly `rows`: saved under `to`'s name before the database switches, so that every
@@ -68,14 +80,21 @@ export interface VectorIndexes {
    */
   search(collection: string, vector: Float32Array, k: number, allowed?: ReadonlySet<number>): VectorHit[];
   size(collection: string): number;
+  /** Tombstones (points marked deleted) in the collection's in-memory graph. */
+  deletedCount(collection: string): number;
   /** Forgets in-memory state, e.g. before closing. */
   close(): void;
 }
 
-const SAFE_NAME = /^[A-Za-z0-9._-]+$/;
+/**
+ * Past this share of tombstones a writer builds the graph again. Deleted points stay in the graph as waypoints
+ * (hnswlib's markDelete), so searches still visit them; a quarter is a rule of thumb, not a measured optimum.
+ */
+const COMPACT_SHARE = 0.25;
+const COMPACT_MIN = 256;
 
 export function createVectorIndexes(deps: {
-  repo: Pick<CollectionStore, 'collectionState'> & Pick<ChunkStore, 'chunksOfCollection'> & Pick<VectorStore, 'getVectors'>;
+  repo: Pick<CollectionStore, 'collectionState'> & Pick<ChunkStore, 'chunksOfCollection'> & Pick<VectorStore, 'getVectors' | 'chunkVectors'>;
   dir: string;
   embedderId: string;
   dimensions: number;
@@ -85,70 +104,42 @@ export function createVectorIndexes(deps: {
   const { repo, dir, embedderId, dimensions, params, logger } = deps;
   const loaded = new Map<string, Loaded>();
   mkdirSync(dir, { recursive: true });
+  const files = createIndexFiles(dir);
 
-  const metaPath = (c: string): string => path.join(dir, `${fileSafe(c)}.meta.json`);
-
-  const readMeta = (c: string): IndexMeta | null => {
-    try {
-      const m = JSON.parse(readFileSync(metaPath(c), 'utf8')) as IndexMeta;
-      return m.version === 1 ? m : null;
-    } catch {
-      return null;
-    }
-  };
-
-  const fresh = (capacity: number): Hnsw => {
-    const idx = new HierarchicalNSW('ip', dimensions);
-    idx.initIndex({ maxElements: Math.max(16, capacity), m: params.m, efConstruction: params.efConstruction, randomSeed: 100 });
-    idx.setEf(params.efSearch);
-    return idx;
+  const emptyState = (capacity: number): Loaded => {
+    const index = newIndex(dimensions, capacity, params);
+    index.setEf(params.efSearch);
+    return {
+      index,
+      meta: { version: 1, embedderId, dimensions, generation: -1, file: '', m: params.m, efConstruction: params.efConstruction, deleted: [] },
+      live: new Set(),
+      saved: false,
+    };
   };
 
   const save = (c: string, state: Loaded, generation: number): void => {
-    const file = `${fileSafe(c)}.g${generation}.hnsw`;
-    const full = path.join(dir, file);
-    // The job worker thread shares the process id with the request thread: both name their temporaries.
-    const tmp = `${full}.tmp-${process.pid}-${threadId}`;
-    state.index.writeIndexSync(tmp);
-    fsyncFile(tmp);
-    renameSync(tmp, full);
-    const old = state.meta.file;
-    state.meta = { ...state.meta, generation, file, deleted: [...deletedOf(state)] };
-    const metaTmp = `${metaPath(c)}.tmp-${process.pid}-${threadId}`;
-    writeFileSync(metaTmp, JSON.stringify(state.meta));
-    fsyncFile(metaTmp);
-    renameSync(metaTmp, metaPath(c));
-    fsyncDir(dir);
-    state.saved = true;
-    if (old && old !== file) {
-      try {
-        unlinkSync(path.join(dir, old));
-      } catch {
-        /* another process may have removed it already */
-      }
+    try {
+      const { file: _f, generation: _g, ...rest } = state.meta;
+      const written = files.save(c, state.index, { ...rest, deleted: [...deletedOf(state)] }, generation);
+      state.meta = written ?? { ...state.meta, generation };
+      state.saved = written !== null;
+    } catch (err) {
+      // A read-only data folder still serves queries from memory.
+      state.meta = { ...state.meta, generation };
+      logger?.warn({ collection: c, err: (err as Error).message }, 'could not save vector index');
     }
   };
 
   const tryLoad = (c: string): Loaded | null => {
-    const meta = readMeta(c);
-    if (!meta) return null;
-    if (meta.embedderId !== embedderId || meta.dimensions !== dimensions) {
-      logger?.warn({ collection: c, indexEmbedder: meta.embedderId, embedder: embedderId }, 'vector index was built with another embedder; rebuilding');
+    const r = files.load(c, { embedderId, dimensions });
+    if (!r.index) {
+      if (r.reason) logger?.warn({ collection: c, reason: r.reason }, 'vector index file not usable; rebuilding');
       return null;
     }
-    const file = path.join(dir, meta.file);
-    if (!existsSync(file)) return null;
-    try {
-      const index = new HierarchicalNSW('ip', dimensions);
-      index.readIndexSync(file);
-      index.setEf(params.efSearch);
-      const deleted = new Set(meta.deleted);
-      const live = new Set(index.getIdsList().filter((id) => !deleted.has(id)));
-      return { index, meta, live, saved: true };
-    } catch (err) {
-      logger?.warn({ collection: c, err: (err as Error).message }, 'vector index file unreadable; rebuilding');
-      return null;
-    }
+    r.index.setEf(params.efSearch);
+    const deleted = new Set(r.meta.deleted);
+    const live = new Set(r.index.getIdsList().filter((id) => !deleted.has(id)));
+    return { index: r.index, meta: r.meta, live, saved: true };
   };
 
   // Past a third of the graph in tombstones and missing points, patching costs about what a rebuild does.
@@ -159,20 +150,25 @@ export function createVectorIndexes(deps: {
     return stale + missing + deletedOf(state).size > Math.max(64, state.index.getCurrentCount() / 3);
   };
 
+  const room = (state: Loaded, more: number): void => {
+    const needed = state.index.getCurrentCount() + more;
+    if (needed > state.index.getMaxElements()) state.index.resizeIndex(Math.ceil(needed * 1.25) + 16);
+  };
+
+  const remove = (state: Loaded, id: number): boolean => {
+    if (!state.live.has(id)) return false;
+    state.index.markDelete(id);
+    state.live.delete(id);
+    return true;
+  };
+
   /** Marks deleted what `rows` no longer holds and adds what is missing, from the stored vectors. */
   const patch = (c: string, state: Loaded, rows: readonly { id: number; chunkHash: string }[], wanted: ReadonlyMap<number, string>) => {
     let removed = 0;
-    for (const id of [...state.live]) {
-      if (!wanted.has(id)) {
-        state.index.markDelete(id);
-        state.live.delete(id);
-        removed++;
-      }
-    }
+    for (const id of [...state.live]) if (!wanted.has(id) && remove(state, id)) removed++;
     const missing = rows.filter((r) => !state.live.has(r.id));
     const vectors = repo.getVectors(embedderId, missing.map((r) => r.chunkHash));
-    const needed = state.index.getCurrentCount() + missing.length;
-    if (needed > state.index.getMaxElements()) state.index.resizeIndex(Math.ceil(needed * 1.25) + 16);
+    room(state, missing.length);
     let added = 0;
     let withoutVector = 0;
     for (const r of missing) {
@@ -190,26 +186,41 @@ export function createVectorIndexes(deps: {
     return { added, removed };
   };
 
-  const emptyState = (capacity: number): Loaded => ({
-    index: fresh(capacity),
-    meta: { version: 1, embedderId, dimensions, generation: -1, file: '', m: params.m, efConstruction: params.efConstruction, deleted: [] },
-    live: new Set(),
-    saved: false,
-  });
+  /** The whole check against the database: load, patch or rebuild. Writers, and a reader's first look. */
+  const check = (c: string, state: Loaded | null, generation: number): { state: Loaded; added: number; removed: number; rebuilt: boolean; loaded: boolean } => {
+    const rows = repo.chunksOfCollection(c);
+    const wanted = new Map(rows.map((r) => [r.id, r.chunkHash] as const));
+    let fromDisk = false;
+    const disk = files.savedGeneration(c);
+    if (!state || (disk !== null && disk > state.meta.generation && disk <= generation)) {
+      // A file at a later generation (a full re-index's, say) costs less to load and patch than patching here.
+      const next = tryLoad(c);
+      if (next) {
+        state = next;
+        fromDisk = true;
+      }
+    }
+    let rebuilt = false;
+    if (state && tooFar(state, wanted)) state = null;
+    if (!state) {
+      state = emptyState(rows.length + 16);
+      rebuilt = true;
+      fromDisk = false;
+    }
+    const { added, removed } = patch(c, state, rows, wanted);
+    if (rebuilt && rows.length > 0) logger?.info({ collection: c, vectors: added }, 'vector index rebuilt from stored vectors');
+    return { state, added, removed, rebuilt, loaded: fromDisk };
+  };
 
-  const persistOrKeep = (c: string, state: Loaded, generation: number, persist: boolean): void => {
-    if (state.saved && state.meta.generation === generation) return;
-    if (!persist) {
-      state.meta = { ...state.meta, generation };
-      return;
+  /** The same points in a new graph, without the tombstones. */
+  const compact = (state: Loaded): Loaded => {
+    const next = emptyState(state.live.size + 16);
+    for (const id of [...state.live].sort((a, b) => a - b)) {
+      next.index.addPoint(state.index.getPoint(id), id);
+      next.live.add(id);
     }
-    try {
-      save(c, state, generation);
-    } catch (err) {
-      // A read-only data folder still serves queries from memory.
-      state.meta = { ...state.meta, generation };
-      logger?.warn({ collection: c, err: (err as Error).message }, 'could not save vector index');
-    }
+    next.meta = { ...next.meta, generation: state.meta.generation };
+    return next;
   };
 
   const sync: VectorIndexes['sync'] = (c, opts = {}) => {
@@ -217,47 +228,69 @@ export function createVectorIndexes(deps: {
     const generation = opts.generation ?? repo.collectionState(c)?.generation ?? 0;
     let state = loaded.get(c) ?? null;
     if (state && state.meta.generation === generation && (state.saved || !persist)) {
-      return { added: 0, removed: 0, rebuilt: false, size: state.live.size };
+      if (!persist || !needsCompaction(state)) return { added: 0, removed: 0, rebuilt: false, size: state.live.size };
     }
-    const rows = repo.chunksOfCollection(c);
-    const wanted = new Map(rows.map((r) => [r.id, r.chunkHash] as const));
-    if (state && state.meta.generation !== generation && tooFar(state, wanted)) {
-      // A full re-index swapped the collection: its writer saved the new index before switching, and loading
-      // that file costs far less than rebuilding here, on the query path. What is loaded is still checked
-      // against the database below, like any index read from disk.
-      const disk = readMeta(c);
-      if (disk && disk.generation === generation && disk.file !== state.meta.file) {
+    if (!persist && state) {
+      // The query path: a later file saved by a writer is loaded whole; nothing is patched or rebuilt here.
+      const disk = files.savedGeneration(c);
+      if (disk !== null && disk > state.meta.generation) {
         const next = tryLoad(c);
         if (next) {
-          state = next;
-          logger?.info({ collection: c, generation }, 'vector index switched to the one a full re-index built');
+          loaded.set(c, next);
+          logger?.info({ collection: c, generation: next.meta.generation }, 'vector index loaded from the file a writer saved');
+          return { added: 0, removed: 0, rebuilt: false, size: next.live.size, loaded: true };
         }
       }
+      return { added: 0, removed: 0, rebuilt: false, size: state.live.size };
     }
-    if (!state) state = tryLoad(c);
+    let added = 0;
+    let removed = 0;
     let rebuilt = false;
-    if (state && tooFar(state, wanted)) state = null;
-    if (!state) {
-      state = emptyState(rows.length + 16);
-      rebuilt = true;
+    let fromDisk = false;
+    if (!state || state.meta.generation !== generation) {
+      const r = check(c, state, generation);
+      ({ state, added, removed, rebuilt } = r);
+      fromDisk = r.loaded;
+      // Saved again even when nothing changed in the graph (a rename moves no vector), so that the file names the
+      // generation readers compare against.
+      if (added + removed > 0 || rebuilt || state.meta.generation !== generation) state.saved = false;
+      state.meta = { ...state.meta, generation };
     }
-    const { added, removed } = patch(c, state, rows, wanted);
-    if (rebuilt && rows.length > 0) logger?.info({ collection: c, vectors: added }, 'vector index rebuilt from stored vectors');
-    persistOrKeep(c, state, generation, persist);
     loaded.set(c, state);
-    return { added, removed, rebuilt, size: state.live.size };
+    if (!persist) return { added, removed, rebuilt, size: state.live.size, loaded: fromDisk };
+    // Saved first, so the change is searchable by every reader before any compaction starts.
+    if (!state.saved) save(c, state, generation);
+    let compacted = false;
+    if (needsCompaction(state)) {
+      const before = deletedOf(state).size;
+      state = compact(state);
+      loaded.set(c, state);
+      save(c, state, generation);
+      compacted = true;
+      logger?.info({ collection: c, tombstones: before, vectors: state.live.size }, 'vector index compacted');
+    }
+    return { added, removed, rebuilt, size: state.live.size, loaded: fromDisk, compacted };
   };
 
-  const removeFiles = (c: string, keep?: string): void => {
-    const meta = readMeta(c);
-    for (const f of [meta?.file ? path.join(dir, meta.file) : null, metaPath(c)]) {
-      if (!f || (keep && f === path.join(dir, keep))) continue;
-      try {
-        unlinkSync(f);
-      } catch {
-        /* already gone */
-      }
+  const apply: VectorIndexes['apply'] = (c, change) => {
+    let state = loaded.get(c) ?? null;
+    if (!state || state.meta.generation !== change.generation - 1) {
+      // Another writer (the request thread deleting a document, a CLI run) saved since this one last looked.
+      if (files.savedGeneration(c) !== change.generation - 1) return false;
+      state = tryLoad(c);
+      if (!state || state.meta.generation !== change.generation - 1) return false;
+      loaded.set(c, state);
     }
+    for (const id of change.removed) remove(state, id);
+    room(state, change.added.length);
+    for (const { id, vector } of change.added) {
+      if (state.live.has(id) || vector.length !== dimensions) continue;
+      state.index.addPoint(Array.from(vector), id);
+      state.live.add(id);
+    }
+    state.meta = { ...state.meta, generation: change.generation };
+    state.saved = false;
+    return true;
   };
 
   const adopt: VectorIndexes['adopt'] = (from, to, generation, rows) => {
@@ -266,34 +299,25 @@ export function createVectorIndexes(deps: {
     if (state && tooFar(state, wanted)) state = null;
     if (!state) state = emptyState(rows.length + 16);
     patch(to, state, rows, wanted);
-    const previous = readMeta(to)?.file;
-    const shadowFile = state.meta.file;
     state.saved = false;
+    const shadowFile = files.readMeta(from)?.file;
     save(to, state, generation);
-    // save() removed the shadow's index file (the state's previous file); the shadow's meta and the target's
-    // old index file are left.
-    for (const f of [previous && previous !== state.meta.file ? path.join(dir, previous) : null, metaPath(from), shadowFile ? path.join(dir, shadowFile) : null]) {
-      if (!f || f === path.join(dir, state.meta.file)) continue;
-      try {
-        unlinkSync(f);
-      } catch {
-        /* already gone */
-      }
-    }
+    files.remove(from, state.meta.file === shadowFile ? state.meta.file : undefined);
     loaded.delete(from);
     loaded.set(to, state);
   };
 
   return {
     sync,
+    apply,
     adopt,
     discard(c) {
       loaded.delete(c);
-      removeFiles(c);
+      files.remove(c);
     },
     savedGeneration(c) {
-      const meta = readMeta(c);
-      return meta && meta.file && existsSync(path.join(dir, meta.file)) ? meta.generation : null;
+      const meta = files.readMeta(c);
+      return meta && meta.file && existsSync(path.join(deps.dir, meta.file)) ? meta.generation : null;
     },
     search(c, vector, k, allowed) {
       const state = loaded.get(c);
@@ -305,14 +329,14 @@ export function createVectorIndexes(deps: {
         if (n === 0) return [];
         // Below a few thousand allowed vectors an exact scan costs about what a filtered graph walk does,
         // and a graph walk through a sparse filter can strand itself in regions with no allowed node.
-        if (ids.length <= EXACT_SCAN_LIMIT) return exactSearch(state.index, query, ids, n);
+        if (ids.length <= EXACT_SCAN_LIMIT) return exactSearch(repo.chunkVectors(embedderId, ids), vector, n);
         let ef = Math.max(params.efSearch, n);
         for (;;) {
           state.index.setEf(ef);
           const res = state.index.searchKnn(query, n, (label) => allowed.has(label));
           if (res.neighbors.length >= n || ef >= ids.length) {
             state.index.setEf(params.efSearch);
-            return res.neighbors.length >= n ? toHits(res) : exactSearch(state.index, query, ids, n);
+            return res.neighbors.length >= n ? toHits(res) : exactSearch(repo.chunkVectors(embedderId, ids), vector, n);
           }
           ef *= 4;
         }
@@ -324,6 +348,10 @@ export function createVectorIndexes(deps: {
     size(c) {
       return loaded.get(c)?.live.size ?? 0;
     },
+    deletedCount(c) {
+      const state = loaded.get(c);
+      return state ? state.index.getCurrentCount() - state.live.size : 0;
+    },
     close() {
       loaded.clear();
     },
@@ -332,50 +360,32 @@ export function createVectorIndexes(deps: {
 
 const EXACT_SCAN_LIMIT = 2000;
 
+function needsCompaction(state: Loaded): boolean {
+  const deleted = state.index.getCurrentCount() - state.live.size;
+  return deleted >= COMPACT_MIN && deleted > state.index.getCurrentCount() * COMPACT_SHARE;
+}
+
 function toHits(res: { neighbors: number[]; distances: number[] }): VectorHit[] {
   const hits: VectorHit[] = [];
   for (let i = 0; i < res.neighbors.length; i++) hits.push({ chunkId: res.neighbors[i]!, score: 1 - res.distances[i]! });
   return hits;
 }
 
-function exactSearch(index: Hnsw, query: number[], ids: readonly number[], n: number): VectorHit[] {
-  const scored = ids.map((id) => {
-    const v = index.getPoint(id);
+/**
+ * The exact top n of some points, from the stored vectors: one statement for all of them, where hnswlib's
+ * getPoint builds a JavaScript array element by element (about 30 ms for 1,000 points of 384 dimensions).
+ */
+function exactSearch(vectors: ReadonlyMap<number, Float32Array>, query: Float32Array, n: number): VectorHit[] {
+  const scored: VectorHit[] = [];
+  for (const [id, v] of vectors) {
     let s = 0;
     for (let i = 0; i < query.length; i++) s += query[i]! * v[i]!;
-    return { chunkId: id, score: s };
-  });
+    scored.push({ chunkId: id, score: s });
+  }
   return scored.sort((a, b) => b.score - a.score || a.chunkId - b.chunkId).slice(0, n);
 }
 
 function deletedOf(state: Loaded): Set<number> {
   const all = state.index.getIdsList();
   return new Set(all.filter((id) => !state.live.has(id)));
-}
-
-export function fileSafe(collection: string): string {
-  if (SAFE_NAME.test(collection)) return collection;
-  return Buffer.from(collection).toString('hex');
-}
-
-function fsyncFile(file: string): void {
-  const fd = openSync(file, 'r+');
-  try {
-    fsyncSync(fd);
-  } finally {
-    closeSync(fd);
-  }
-}
-
-function fsyncDir(dir: string): void {
-  try {
-    const fd = openSync(dir, 'r');
-    try {
-      fsyncSync(fd);
-    } finally {
-      closeSync(fd);
-    }
-  } catch {
-    /* not every platform can fsync a directory */
-  }
 }

@@ -142,6 +142,8 @@ export interface DocumentStore {
   replaceDocument(doc: NewDocument, chunks: ChunkInput[], vectors: Map<string, Float32Array>, modelId: string): {
     removedChunkIds: number[];
     chunkIds: number[];
+    /** The collection's generation this change moved it to. */
+    generation: number;
   };
   /** Removes a document and its chunks; returns the removed chunk ids. */
   deleteDocument(id: string): number[];

@@ -87,7 +87,7 @@ export function buildBenchStore({ chunks, queries = 500, log = () => {}, keepDir
     db.close();
     if (keepDir === undefined) rmSync(dir, { recursive: true, force: true });
   };
-  return { db, repo, indexes, qTexts, qVec, storeSeconds, indexSeconds, close };
+  return { db, repo, indexes, indexDir: path.join(dir, 'index'), qTexts, qVec, storeSeconds, indexSeconds, close };
 }
 
 /**

@@ -2,8 +2,9 @@
 
 import type { PageBreak } from '../../types.js';
 import type { ChunkRef, ChunkSpan, ChunkStore, ChunkView, FtsRow, LexicalStore, VectorStore } from '../types.js';
+import type { Statement } from 'better-sqlite3';
 import type { Db } from './db.js';
-import { documentFilterSql } from './document-filter.js';
+import { filteredDocumentsSql } from './document-filter.js';
 import { blobToVector } from './vector-blob.js';
 
 /** A column weight as FTS5's rank function text takes it (a plain decimal, never NaN or an exponent). */
@@ -35,6 +36,16 @@ export function sqliteChunks(db: Db): ChunkStore & VectorStore {
       SELECT k.id, v.vector FROM chunks k JOIN vectors v ON v.model_id = ? AND v.chunk_hash = k.chunk_hash
       WHERE k.id IN (SELECT value FROM json_each(?))`),
     vector: db.prepare('SELECT vector FROM vectors WHERE model_id = ? AND chunk_hash = ?'),
+  };
+  // A filter's statement depends only on how many conditions of each kind it has: prepared once per shape.
+  const shapes = new Map<string, Statement<unknown[]>>();
+  const cached = (sql: string): Statement<unknown[]> => {
+    let s = shapes.get(sql);
+    if (!s) {
+      s = db.prepare(sql).pluck();
+      if (shapes.size < 64) shapes.set(sql, s);
+    }
+    return s;
   };
   return {
     chunksOfCollection(collection) {
@@ -90,11 +101,10 @@ export function sqliteChunks(db: Db): ChunkStore & VectorStore {
       );
     },
     chunkIdsMatching(collection, filter) {
-      const f = documentFilterSql(filter);
-      const rows = db
-        .prepare(`SELECT k.id FROM chunks k JOIN documents d ON d.id = k.document_id WHERE ${['d.collection = ?', ...f.terms].join(' AND ')}`)
-        .pluck()
-        .all(collection, ...f.params) as number[];
+      if (filter.documentIds?.length === 0) return new Set();
+      const f = filteredDocumentsSql(collection, filter);
+      // The documents first (index lookups), then their chunks through chunks_by_document.
+      const rows = cached(`SELECT k.id FROM chunks k WHERE k.document_id IN (${f.sql})`).all(...f.params) as number[];
       return new Set(rows);
     },
     getVectors(modelId, hashes) {
@@ -150,14 +160,14 @@ export function sqliteFtsSearch(db: Db, collectionExists: (name: string) => bool
     }
     // With a document filter, the filter sits in the same statement, so LIMIT counts only rows that pass it.
     if (filter?.documentIds?.length === 0) return [];
-    const f = documentFilterSql(filter);
+    const f = filteredDocumentsSql(collection, filter);
     return db
       .prepare(
         `SELECT f.rowid AS chunkId, -f.rank AS score
-         FROM chunks_fts f JOIN chunks k ON k.id = f.rowid JOIN documents d ON d.id = k.document_id
-         WHERE chunks_fts MATCH ? AND f.rank MATCH ? AND d.collection = ?${f.terms.map((x) => ` AND ${x}`).join('')}
+         FROM chunks_fts f JOIN chunks k ON k.id = f.rowid
+         WHERE chunks_fts MATCH ? AND f.rank MATCH ? AND k.document_id IN (${f.sql})
          ORDER BY f.rank LIMIT ?`,
       )
-      .all(match, rank, collection, ...f.params, limit) as FtsRow[];
+      .all(match, rank, ...f.params, limit) as FtsRow[];
   };
 }

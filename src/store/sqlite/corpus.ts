@@ -8,6 +8,19 @@ import { vectorToBlob } from './vector-blob.js';
 
 const now = (): string => new Date().toISOString();
 
+/**
+ * Statements prepared on first use, so that a store opened on an older schema (a migration test reading it
+ * before `migrate`) can still use what that schema has.
+ */
+function lazy<T extends Record<string, () => unknown>>(defs: T): { [K in keyof T]: ReturnType<T[K]> } {
+  const out = {} as { [K in keyof T]: ReturnType<T[K]> };
+  for (const [k, make] of Object.entries(defs)) {
+    let v: unknown;
+    Object.defineProperty(out, k, { get: () => (v ??= make()) });
+  }
+  return out;
+}
+
 const SIGNATURE_SQL =
   "SELECT coalesce(group_concat(name || char(31) || generation, char(30)), '') FROM (SELECT name, generation FROM collections ORDER BY name)";
 
@@ -17,25 +30,26 @@ export function readChangeSignature(conn: Db): string {
 }
 
 export function sqliteCollections(db: Db): CollectionStore {
-  const st = {
-    ensure: db.prepare('INSERT INTO collections (name, created_at) VALUES (?, ?) ON CONFLICT(name) DO NOTHING'),
-    get: db.prepare(`
-      SELECT c.name, c.embedder_id AS embedderId, c.dimensions, c.generation,
-        (SELECT count(*) FROM documents d WHERE d.collection = c.name) AS documents,
-        (SELECT count(*) FROM chunks k JOIN documents d ON d.id = k.document_id WHERE d.collection = c.name) AS chunks
-      FROM collections c WHERE c.name = ?`),
-    state: db.prepare('SELECT name, embedder_id AS embedderId, dimensions, generation FROM collections WHERE name = ?'),
+  const st = lazy({
+    ensure: () => db.prepare('INSERT INTO collections (name, created_at) VALUES (?, ?) ON CONFLICT(name) DO NOTHING'),
+    // The counts are kept in the row by every write (migration 8), not counted here.
+    get: () => db.prepare(`
+      SELECT name, embedder_id AS embedderId, dimensions, generation, document_count AS documents, chunk_count AS chunks
+      FROM collections WHERE name = ?`),
+    state: () => db.prepare('SELECT name, embedder_id AS embedderId, dimensions, generation FROM collections WHERE name = ?'),
     // Shadow collections of a running full re-index are not collections anyone asked for.
-    list: db.prepare("SELECT name FROM collections WHERE substr(name, 1, 9) <> '~rebuild:' ORDER BY name"),
-    setEmbedder: db.prepare('UPDATE collections SET embedder_id = ?, dimensions = ? WHERE name = ?'),
-    bump: db.prepare('UPDATE collections SET generation = generation + 1 WHERE name = ? RETURNING generation'),
-    setState: db.prepare('UPDATE collections SET embedder_id = ?, dimensions = ?, generation = ? WHERE name = ?'),
-    drop: db.prepare('DELETE FROM collections WHERE name = ?'),
-    signature: db.prepare(SIGNATURE_SQL).pluck(),
-    addSource: db.prepare('INSERT INTO sources (collection, root, added_at) VALUES (?, ?, ?) ON CONFLICT DO NOTHING'),
-    listSources: db.prepare('SELECT collection, root FROM sources ORDER BY collection, root'),
-    listSourcesOf: db.prepare('SELECT collection, root FROM sources WHERE collection = ? ORDER BY root'),
-  };
+    list: () => db.prepare(`
+      SELECT name, embedder_id AS embedderId, dimensions, generation, document_count AS documents, chunk_count AS chunks
+      FROM collections WHERE substr(name, 1, 9) <> '~rebuild:' ORDER BY name`),
+    setEmbedder: () => db.prepare('UPDATE collections SET embedder_id = ?, dimensions = ? WHERE name = ?'),
+    bump: () => db.prepare('UPDATE collections SET generation = generation + 1 WHERE name = ? RETURNING generation'),
+    setState: () => db.prepare('UPDATE collections SET embedder_id = ?, dimensions = ?, generation = ? WHERE name = ?'),
+    drop: () => db.prepare('DELETE FROM collections WHERE name = ?'),
+    signature: () => db.prepare(SIGNATURE_SQL).pluck(),
+    addSource: () => db.prepare('INSERT INTO sources (collection, root, added_at) VALUES (?, ?, ?) ON CONFLICT DO NOTHING'),
+    listSources: () => db.prepare('SELECT collection, root FROM sources ORDER BY collection, root'),
+    listSourcesOf: () => db.prepare('SELECT collection, root FROM sources WHERE collection = ? ORDER BY root'),
+  });
   const collections: CollectionStore = {
     ensureCollection(name) {
       st.ensure.run(name, now());
@@ -47,7 +61,7 @@ export function sqliteCollections(db: Db): CollectionStore {
       return (st.state.get(name) as CollectionState | undefined) ?? null;
     },
     listCollections() {
-      return (st.list.all() as { name: string }[]).map((r) => collections.getCollection(r.name)!);
+      return st.list.all() as CollectionRow[];
     },
     setCollectionEmbedder(name, embedderId, dimensions) {
       st.setEmbedder.run(embedderId, dimensions, name);
@@ -92,22 +106,28 @@ const toDoc = (r: Record<string, unknown>): DocumentRecord => ({
 });
 
 export function sqliteDocuments(db: Db, bumpGeneration: (collection: string) => number): DocumentStore {
-  const st = {
-    bySource: db.prepare('SELECT * FROM documents WHERE collection = ? AND source = ?'),
-    byId: db.prepare('SELECT * FROM documents WHERE id = ?'),
-    text: db.prepare('SELECT text FROM documents WHERE id = ?'),
-    byContent: db.prepare('SELECT id, source FROM documents WHERE collection = ? AND content_hash = ? LIMIT 1'),
-    of: db.prepare('SELECT * FROM documents WHERE collection = ? ORDER BY source'),
-    count: db.prepare('SELECT count(*) AS n FROM documents'),
-    countOf: db.prepare('SELECT count(*) AS n FROM documents WHERE collection = ?'),
-    keys: db.prepare(`
+  const st = lazy({
+    bySource: () => db.prepare('SELECT * FROM documents WHERE collection = ? AND source = ?'),
+    byId: () => db.prepare('SELECT * FROM documents WHERE id = ?'),
+    text: () => db.prepare('SELECT text FROM documents WHERE id = ?'),
+    byContent: () => db.prepare('SELECT id, source FROM documents WHERE collection = ? AND content_hash = ? LIMIT 1'),
+    of: () => db.prepare('SELECT * FROM documents WHERE collection = ? ORDER BY source'),
+    count: () => db.prepare('SELECT coalesce(sum(document_count), 0) AS n FROM collections'),
+    countOf: () => db.prepare('SELECT coalesce(sum(document_count), 0) AS n FROM collections WHERE name = ?'),
+    // Every change to a collection's documents or chunks moves its counts in the same transaction.
+    addCounts: () => db.prepare('UPDATE collections SET document_count = document_count + ?, chunk_count = chunk_count + ? WHERE name = ?'),
+    collectionOf: () => db.prepare('SELECT collection FROM documents WHERE id = ?').pluck(),
+    deleteMeta: () => db.prepare('DELETE FROM document_metadata WHERE document_id = ?'),
+    insertMeta: () => db.prepare('INSERT INTO document_metadata (document_id, collection, key, value) VALUES (?, ?, ?, ?)'),
+    copyMeta: () => db.prepare('INSERT INTO document_metadata (document_id, collection, key, value) SELECT ?, ?, key, value FROM document_metadata WHERE document_id = ?'),
+    keys: () => db.prepare(`
       SELECT id, source, root, content_hash AS contentHash, settings_key AS settingsKey, updated_at AS updatedAt
       FROM documents WHERE collection = ? ORDER BY source`),
-    chunkIdsOf: db.prepare('SELECT id FROM chunks WHERE document_id = ?'),
-    deleteFts: db.prepare('DELETE FROM chunks_fts WHERE rowid = ?'),
-    deleteChunksOf: db.prepare('DELETE FROM chunks WHERE document_id = ?'),
-    delete: db.prepare('DELETE FROM documents WHERE id = ?'),
-    upsert: db.prepare(`
+    chunkIdsOf: () => db.prepare('SELECT id FROM chunks WHERE document_id = ?'),
+    deleteFts: () => db.prepare('DELETE FROM chunks_fts WHERE rowid = ?'),
+    deleteChunksOf: () => db.prepare('DELETE FROM chunks WHERE document_id = ?'),
+    delete: () => db.prepare('DELETE FROM documents WHERE id = ?'),
+    upsert: () => db.prepare(`
       INSERT INTO documents (id, collection, source, root, title, format, content_hash, byte_size, page_count,
         effective_date, metadata, text, settings_key, created_at, updated_at)
       VALUES (@id, @collection, @source, @root, @title, @format, @contentHash, @byteSize, @pageCount,
@@ -116,21 +136,21 @@ export function sqliteDocuments(db: Db, bumpGeneration: (collection: string) => 
         format = excluded.format, content_hash = excluded.content_hash, byte_size = excluded.byte_size,
         page_count = excluded.page_count, effective_date = excluded.effective_date, metadata = excluded.metadata,
         text = excluded.text, settings_key = excluded.settings_key, updated_at = excluded.updated_at`),
-    insertChunk: db.prepare(`
+    insertChunk: () => db.prepare(`
       INSERT INTO chunks (document_id, ordinal, text, start_offset, end_offset, heading_path, page_start, page_end,
         page_breaks, token_count, chunk_hash)
       VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`),
-    insertFts: db.prepare('INSERT INTO chunks_fts (rowid, title, heading, body) VALUES (?, ?, ?, ?)'),
-    insertVector: db.prepare('INSERT INTO vectors (model_id, chunk_hash, dimensions, vector) VALUES (?, ?, ?, ?) ON CONFLICT DO NOTHING'),
-    copy: db.prepare(`
+    insertFts: () => db.prepare('INSERT INTO chunks_fts (rowid, title, heading, body) VALUES (?, ?, ?, ?)'),
+    insertVector: () => db.prepare('INSERT INTO vectors (model_id, chunk_hash, dimensions, vector) VALUES (?, ?, ?, ?) ON CONFLICT DO NOTHING'),
+    copy: () => db.prepare(`
       INSERT INTO documents (id, collection, source, root, title, format, content_hash, byte_size, page_count,
         effective_date, metadata, text, settings_key, created_at, updated_at)
       SELECT @id, @collection, @source, @root, title, format, content_hash, byte_size, page_count,
         effective_date, metadata, text, settings_key, created_at, @now
       FROM documents WHERE id = @fromId`),
-    moveChunks: db.prepare('UPDATE chunks SET document_id = ? WHERE document_id = ?'),
-    ftsSourceOf: db.prepare('SELECT id, heading_path AS headingPath, text FROM chunks WHERE document_id = ? ORDER BY id'),
-  };
+    moveChunks: () => db.prepare('UPDATE chunks SET document_id = ? WHERE document_id = ?'),
+    ftsSourceOf: () => db.prepare('SELECT id, heading_path AS headingPath, text FROM chunks WHERE document_id = ? ORDER BY id'),
+  });
 
   // Documents of a shadow collection (a full re-index in progress) get no FTS rows until they are swapped in:
   // every query's BM25 runs over the one FTS table, and a second copy of a collection in it made queries
@@ -173,8 +193,15 @@ export function sqliteDocuments(db: Db, bumpGeneration: (collection: string) => 
     replaceDocument(doc, chunks, vectors, modelId) {
       return db
         .transaction(() => {
+          const was = st.collectionOf.get(doc.id) as string | undefined;
           const removedChunkIds = removeChunksOf(doc.id, doc.collection);
+          if (was !== undefined) st.addCounts.run(-1, -removedChunkIds.length, was);
           st.upsert.run({ ...doc, metadata: JSON.stringify(doc.metadata), now: now() });
+          st.deleteMeta.run(doc.id);
+          for (const [key, value] of Object.entries(doc.metadata)) {
+            if (typeof value === 'string') st.insertMeta.run(doc.id, doc.collection, key, value);
+          }
+          st.addCounts.run(1, chunks.length, doc.collection);
           const chunkIds: number[] = [];
           for (const c of chunks) {
             const pageBreaks = c.pageBreaks && c.pageBreaks.length > 0 ? JSON.stringify(c.pageBreaks.map((b) => [b.at, b.page])) : null;
@@ -187,8 +214,8 @@ export function sqliteDocuments(db: Db, bumpGeneration: (collection: string) => 
             const v = vectors.get(c.chunkHash);
             if (v) st.insertVector.run(modelId, c.chunkHash, v.length, vectorToBlob(v));
           }
-          bumpGeneration(doc.collection);
-          return { removedChunkIds, chunkIds };
+          const generation = bumpGeneration(doc.collection);
+          return { removedChunkIds, chunkIds, generation };
         })
         .immediate();
     },
@@ -199,6 +226,7 @@ export function sqliteDocuments(db: Db, bumpGeneration: (collection: string) => 
           if (!d) return [];
           const removed = removeChunksOf(id, d.collection);
           st.delete.run(id);
+          st.addCounts.run(-1, -removed.length, d.collection);
           bumpGeneration(d.collection);
           return removed;
         })
@@ -213,8 +241,11 @@ export function sqliteDocuments(db: Db, bumpGeneration: (collection: string) => 
           const from = st.byId.get(fromId) as { collection: string; title: string } | undefined;
           if (!from) throw new Error(`moveDocument: no document ${fromId}`);
           st.copy.run({ ...to, fromId, now: now() });
+          st.copyMeta.run(to.id, to.collection, fromId);
           const moved = st.moveChunks.run(to.id, fromId).changes;
           st.delete.run(fromId);
+          st.addCounts.run(-1, -moved, from.collection);
+          st.addCounts.run(1, moved, to.collection);
           if (isShadowCollection(from.collection) && !isShadowCollection(to.collection)) {
             for (const c of st.ftsSourceOf.all(to.id) as { id: number; headingPath: string; text: string }[]) {
               insertFts(c.id, from.title, JSON.parse(c.headingPath) as string[], c.text);

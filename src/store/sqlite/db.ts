@@ -5,6 +5,9 @@ import { MIGRATIONS, runMigration } from './migrations.js';
 
 export type Db = Database.Database;
 
+/** Largest part of the database file read through a memory map. */
+const MMAP_BYTES = 1024 * 1024 * 1024;
+
 /** Opens (creating if needed) the SQLite store in WAL mode and brings its schema up to date. */
 export function openDatabase(file: string, opts: { readonly?: boolean } = {}): Db {
   if (file !== ':memory:') mkdirSync(path.dirname(file), { recursive: true });
@@ -14,6 +17,10 @@ export function openDatabase(file: string, opts: { readonly?: boolean } = {}): D
   db.pragma('busy_timeout = 10000');
   db.pragma('foreign_keys = ON');
   db.pragma('synchronous = NORMAL');
+  // Reads through a memory map instead of a read() per page (sqlite.org/mmap.html): the exact scan of a selective
+  // filter reads a thousand scattered vectors, 3x faster measured this way at 100k chunks (docs/benchmarks.md).
+  // The map is address space, not memory: pages are the file's own, shared with the OS cache.
+  db.pragma(`mmap_size = ${MMAP_BYTES}`);
   if (!opts.readonly) migrate(db);
   return db;
 }

@@ -204,4 +204,30 @@ export const MIGRATIONS: readonly Migration[] = [
     expires_at TEXT NOT NULL
   );
   `,
+  // 8: what the query path and the collection list read without scanning. Each collection keeps its document
+  // and chunk counts, updated in the transaction of every change (src/store/sqlite/corpus.ts), so /metrics and
+  // /v1/collections no longer count the chunks with a join on each call. Document metadata is also kept as
+  // key-value rows with an index, so a metadata filter finds its documents by lookup instead of running
+  // json_extract over every document of the collection; only text values are kept, the only ones a filter (a
+  // string) could ever equal. And an index on content hashes, which every upload looks up.
+  `
+  ALTER TABLE collections ADD COLUMN document_count INTEGER NOT NULL DEFAULT 0;
+  ALTER TABLE collections ADD COLUMN chunk_count INTEGER NOT NULL DEFAULT 0;
+  UPDATE collections SET
+    document_count = (SELECT count(*) FROM documents d WHERE d.collection = collections.name),
+    chunk_count = (SELECT count(*) FROM chunks k JOIN documents d ON d.id = k.document_id WHERE d.collection = collections.name);
+
+  CREATE TABLE document_metadata (
+    document_id TEXT NOT NULL REFERENCES documents(id) ON DELETE CASCADE,
+    collection TEXT NOT NULL,
+    key TEXT NOT NULL,
+    value TEXT NOT NULL,
+    PRIMARY KEY (document_id, key)
+  ) WITHOUT ROWID;
+  CREATE INDEX document_metadata_by_value ON document_metadata(collection, key, value, document_id);
+  INSERT INTO document_metadata (document_id, collection, key, value)
+  SELECT d.id, d.collection, j.key, j.value FROM documents d, json_each(d.metadata) j WHERE j.type = 'text';
+
+  CREATE INDEX documents_by_content ON documents(collection, content_hash);
+  `,
 ];

@@ -1,0 +1,179 @@
+import { mkdtempSync, readdirSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import path from 'node:path';
+import { afterEach, beforeEach, describe, expect, it } from 'vitest';
+import { createVectorIndexes, openDatabase, SqliteStore, type Db, type Repository, type VectorIndexes } from '../../src/store/index.js';
+
+// The vector index changes in place: a writer adds a document's points and marks a removed document's points
+// deleted (hnswlib's addPoint / markDelete), saves the file with the generation it holds, and readers load that
+// file instead of adding the points again. The service's HNSW settings (src/config/schema.ts defaults).
+const DIMS = 32;
+const params = { m: 16, efConstruction: 200, efSearch: 128 };
+
+/** mulberry32, a small seeded generator (any fixed sequence will do). */
+function rng(seed: number): () => number {
+  let a = seed >>> 0;
+  return () => {
+    a = (a + 0x6d2b79f5) >>> 0;
+    let t = a;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+function unitVector(rand: () => number): Float32Array {
+  const v = new Float32Array(DIMS);
+  for (let i = 0; i < DIMS; i++) v[i] = rand() * 2 - 1;
+  const n = Math.hypot(...v);
+  return v.map((x) => x / n);
+}
+
+describe('a vector index changed in place', () => {
+  let dir: string;
+  let db: Db;
+  let repo: Repository;
+  const rand = rng(20261204);
+  const vectorOf = new Map<string, Float32Array>();
+
+  beforeEach(() => {
+    dir = mkdtempSync(path.join(tmpdir(), 'sb-hnsw-place-'));
+    db = openDatabase(path.join(dir, 'db.sqlite'));
+    repo = new SqliteStore(db);
+    repo.ensureCollection('c');
+  });
+  afterEach(() => {
+    db.close();
+    rmSync(dir, { recursive: true, force: true });
+  });
+
+  const make = (): VectorIndexes => createVectorIndexes({ repo, dir: path.join(dir, 'index'), embedderId: 'emb', dimensions: DIMS, params });
+
+  /** Writes a document of `n` chunks with fresh random vectors and tells `idx` as the pipeline does. */
+  const write = (idx: VectorIndexes | null, id: string, n: number): boolean => {
+    const chunks = Array.from({ length: n }, (_, i) => ({
+      ordinal: i, text: `${id}-${i}`, start: 0, end: 1, headingPath: [], pageStart: null, pageEnd: null, tokenCount: 1, chunkHash: `${id}-${i}-${vectorOf.size}`,
+    }));
+    const vectors = new Map(chunks.map((c) => [c.chunkHash, unitVector(rand)]));
+    for (const [h, v] of vectors) vectorOf.set(h, v);
+    const r = repo.replaceDocument(
+      { id, collection: 'c', source: `${id}.txt`, root: null, title: id, format: 'text', contentHash: id, byteSize: 1, pageCount: null, effectiveDate: null, metadata: {}, text: 'x', settingsKey: 's' },
+      chunks,
+      vectors,
+      'emb',
+    );
+    return idx ? idx.apply('c', { generation: r.generation, removed: r.removedChunkIds, added: r.chunkIds.map((cid, i) => ({ id: cid, vector: vectors.get(chunks[i]!.chunkHash)! })) }) : false;
+  };
+  const remove = (idx: VectorIndexes, id: string): boolean => {
+    const removed = repo.deleteDocument(id);
+    return idx.apply('c', { generation: repo.collectionState('c')!.generation, removed, added: [] });
+  };
+
+  // Reference: exact cosine similarity (inner product of unit vectors) over every stored chunk.
+  const exactTop = (q: Float32Array, k: number): number[] => {
+    const rows = repo.chunksOfCollection('c');
+    return rows
+      .map((r) => {
+        const v = vectorOf.get(r.chunkHash)!;
+        let s = 0;
+        for (let i = 0; i < DIMS; i++) s += v[i]! * q[i]!;
+        return { id: r.id, s };
+      })
+      .sort((a, b) => b.s - a.s || a.id - b.id)
+      .slice(0, k)
+      .map((x) => x.id);
+  };
+  const recallAt10 = (idx: VectorIndexes, queries: number): number => {
+    let found = 0;
+    for (let i = 0; i < queries; i++) {
+      const q = unitVector(rand);
+      const truth = new Set(exactTop(q, 10));
+      found += idx.search('c', q, 10).filter((h) => truth.has(h.chunkId)).length;
+    }
+    return found / (queries * 10);
+  };
+
+  it('keeps recall@10 at 0.99 or more against exact cosine search through seeded adds, updates and deletions', () => {
+    const idx = make();
+    for (let d = 0; d < 100; d++) write(null, `d${d}`, 20);
+    idx.sync('c');
+    let inPlace = 0;
+    let live = Array.from({ length: 100 }, (_, d) => `d${d}`);
+    for (let step = 0; step < 150; step++) {
+      const r = rand();
+      if (r < 0.4) {
+        const id = `n${step}`;
+        inPlace += write(idx, id, 20) ? 1 : 0;
+        live.push(id);
+      } else if (r < 0.7) {
+        inPlace += write(idx, live[Math.floor(rand() * live.length)]!, 20) ? 1 : 0; // an update: new chunk ids
+      } else {
+        const id = live[Math.floor(rand() * live.length)]!;
+        inPlace += remove(idx, id) ? 1 : 0;
+        live = live.filter((x) => x !== id);
+      }
+    }
+    expect(inPlace).toBe(150); // every change went in place: none needed a check against the database
+    expect(idx.size('c')).toBe(repo.chunksOfCollection('c').length);
+    // With the tombstones still in the graph (hnswlib searches through deleted points without returning them).
+    expect(idx.deletedCount('c')).toBeGreaterThan(1000);
+    expect(recallAt10(idx, 200)).toBeGreaterThanOrEqual(0.99);
+    const s = idx.sync('c');
+    expect(s).toMatchObject({ added: 0, removed: 0, rebuilt: false });
+    expect(s.size).toBe(repo.chunksOfCollection('c').length);
+    // And as a reader loads it from the file the writer saved (compacted by then).
+    const reader = make();
+    reader.sync('c', { persist: false });
+    expect(recallAt10(reader, 200)).toBeGreaterThanOrEqual(0.99);
+  });
+
+  it('lets a reader load the file a writer saved, without adding points itself, and keep what it has until then', () => {
+    const writer = make();
+    for (let d = 0; d < 10; d++) write(writer, `d${d}`, 5);
+    writer.sync('c');
+    const reader = make();
+    expect(reader.sync('c', { persist: false })).toMatchObject({ size: 50, added: 0, rebuilt: false });
+    // Written, not yet saved: the reader keeps the index it has (the query path never patches).
+    expect(write(writer, 'd10', 5)).toBe(true);
+    expect(reader.sync('c', { persist: false })).toMatchObject({ size: 50, added: 0, rebuilt: false });
+    // Saved: the reader loads the file.
+    writer.sync('c');
+    expect(reader.sync('c', { persist: false })).toEqual({ size: 55, added: 0, removed: 0, rebuilt: false, loaded: true });
+    expect(remove(writer, 'd3')).toBe(true);
+    writer.sync('c');
+    expect(reader.sync('c', { persist: false })).toMatchObject({ size: 50, added: 0, removed: 0, loaded: true });
+    const gone = new Set(repo.chunksOfDocuments(['d3']).map((r) => r.id));
+    expect(gone.size).toBe(0);
+    const present = new Set(repo.chunksOfCollection('c').map((r) => r.id));
+    for (const h of reader.search('c', unitVector(rand), 50)) expect(present.has(h.chunkId)).toBe(true);
+  });
+
+  it('applies a change made by another writer after loading that writer\'s file', () => {
+    const a = make();
+    const b = make();
+    for (let d = 0; d < 4; d++) write(a, `d${d}`, 5);
+    a.sync('c');
+    expect(write(b, 'd4', 5)).toBe(true); // b had no index: it loads a's file, which holds the generation before
+    b.sync('c');
+    expect(write(a, 'd5', 5)).toBe(true); // a is behind b's save: it loads b's file first
+    expect(a.sync('c')).toMatchObject({ added: 0, removed: 0, rebuilt: false, size: 30 });
+  });
+
+  it('compacts on the writer once a quarter of the graph is tombstones, after saving, and never on the query path', () => {
+    const writer = make();
+    for (let d = 0; d < 40; d++) write(writer, `d${d}`, 20);
+    writer.sync('c');
+    const reader = make();
+    reader.sync('c', { persist: false });
+    for (let d = 0; d < 15; d++) remove(writer, `d${d}`); // 300 of 800 points deleted
+    // A reader whose database moved on with no saved file keeps its graph: no rebuild on the query path.
+    expect(reader.sync('c', { persist: false })).toMatchObject({ rebuilt: false, size: 800 });
+    const s = writer.sync('c');
+    expect(s).toMatchObject({ compacted: true, size: 500, rebuilt: false });
+    expect(writer.deletedCount('c')).toBe(0);
+    expect(readdirSync(path.join(dir, 'index')).filter((f) => f.endsWith('.hnsw'))).toHaveLength(1);
+    expect(reader.sync('c', { persist: false })).toMatchObject({ loaded: true, size: 500 });
+    expect(reader.deletedCount('c')).toBe(0);
+    expect(recallAt10(reader, 100)).toBeGreaterThanOrEqual(0.99);
+  });
+});
