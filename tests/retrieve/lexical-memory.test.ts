@@ -174,24 +174,27 @@ describe('in-memory BM25 index against FTS5', () => {
     }
   });
 
-  it('follows the database: a changed collection is rebuilt before it answers, deletions included', () => {
+  it('follows the database change by change: an added, then deleted, rows are applied in place before it answers, never by reading the table again', () => {
     generate(repo, 3, 60);
     const q = [{ term: 'ferry', weight: 1 }, { term: 'timetable', weight: 2 }];
     compare('trams', q, 6, 20, WEIGHTS[0]!);
-    const builds = mem.stats().builds;
+    expect(mem.stats().builds).toBe(1);
+    const applied = mem.stats().applied;
     addDoc(repo, 'trams', 'new', 'Ferry timetable', [{ heading: ['Ferry timetable'], text: 'The ferry timetable changes at the weekend.' }]);
     compare('trams', q, 6, 20, WEIGHTS[0]!);
-    expect(mem.stats().builds).toBe(builds + 1);
+    expect(mem.stats().applied).toBe(applied + 1);
     // Deleting rows changes the row count and lengths both engines read (tests/store/lexical-statistics.test.ts
     // checks them against a fresh ingest), so the scores still agree.
     for (let d = 0; d < 30; d += 3) repo.deleteDocument(`d${d}`);
     repo.deleteDocument('new');
     compare('trams', q, 6, 20, WEIGHTS[0]!);
     compare('ferries', q, 6, 20, WEIGHTS[2]!);
-    // A query that changes nothing does not rebuild.
-    const after = mem.stats().builds;
+    expect(mem.stats().builds).toBe(1);
+    expect(mem.stats().deletedRows + mem.stats().mutableRows).toBeGreaterThan(0);
+    // A query that changes nothing applies nothing.
+    const after = mem.stats().applied;
     compare('trams', q, 6, 20, WEIGHTS[1]!);
-    expect(mem.stats().builds).toBe(after);
+    expect(mem.stats().applied).toBe(after);
   });
 
   it('declines a word FTS5 splits into a phrase of several tokens (the caller then asks FTS5)', () => {
@@ -250,14 +253,38 @@ describe('retriever with the in-memory lexical engine', () => {
       expect(mem.stats().building).toBe(true);
       await mem.whenReady();
       expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), want, 30);
-      // A write makes it stale: no answer from the old index, then the rebuilt one agrees with FTS5 again.
+      // One written document is applied inside the next query, which then agrees with FTS5 at once.
       addDoc(repo, 'trams', 'late', 'Depot refund', [{ heading: ['Depot refund'], text: 'Depot refund desk hours.' }]);
-      expect(mem.search('trams', q, 30, WEIGHTS[0]!)).toBeNull();
-      await mem.whenReady();
       const again = repo.searchFts('trams', toWeightedMatch([{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }], { maxRepeat: 6 })!, 30, WEIGHTS[0]!);
       expect(again.map((h) => h.chunkId)).toContain(repo.chunksOfDocuments(['late'])[0]!.id);
       expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), again, 30);
-      expect(mem.stats().builds).toBe(2);
+      expect(mem.stats().builds).toBe(1);
+    } finally {
+      mem.close();
+      repo.close();
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+
+  it('applies a long run of changes in the background and never answers from a half-applied one', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-lexmem-'));
+    const repo = openStore(path.join(dir, 'store.db'));
+    const mem = createLexicalMemory(repo, { background: true, minRebuildGapMs: 0, syncLimit: 5 });
+    try {
+      for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
+      generate(repo, 5, 50);
+      await mem.whenReady();
+      const terms = [{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }];
+      const q = phraseCounts(terms, { maxRepeat: 6 });
+      for (let d = 0; d < 50; d += 2) repo.deleteDocument(`d${d}`);
+      generate(repo, 6, 40);
+      // More logged changes than a query applies itself: FTS5 answers until all of them are in.
+      expect(mem.search('trams', q, 30, WEIGHTS[0]!)).toBeNull();
+      expect(mem.stats().building).toBe(true);
+      await mem.whenReady();
+      const want = repo.searchFts('trams', toWeightedMatch(terms, { maxRepeat: 6 })!, 30, WEIGHTS[0]!);
+      expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), want, 30);
+      expect(mem.stats().builds).toBe(1);
     } finally {
       mem.close();
       repo.close();
