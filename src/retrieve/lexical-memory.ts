@@ -26,19 +26,15 @@
 // background in slices while FTS5 answers.
 
 import type { FtsWeights, Repository } from '../store/index.js';
-import { B, buildLexicalIndex, K1, NO_COLLECTION, splitByCollection } from './lexical-build.js';
+import { buildLexicalIndex, NO_COLLECTION, splitByCollection } from './lexical-build.js';
+import { createScorer } from './lexical-score.js';
 import { finish } from './lexical-segment.js';
-import { LexicalState, type CollectionIndex, type MergePlan } from './lexical-state.js';
+import { LexicalState, type MergePlan } from './lexical-state.js';
 import type { PhraseCount } from './query-text.js';
-import { topK } from './top-k.js';
 
 /** What the in-memory index reads from the store: lexical snapshots, the change log and the tokenizer. */
 export type LexicalSource = Pick<Repository, 'lexicalSnapshot' | 'lexicalHead' | 'lexicalChanges' | 'concurrentReads' | 'queryTokenizer'>;
 
-/** A column weight as the FTS5 path hands it to bm25() (six decimals, else 1: store/sqlite/chunks.ts). */
-function ftsWeight(x: number): number {
-  return Number.isFinite(x) && x >= 0 ? Number(x.toFixed(6)) : 1;
-}
 
 export interface LexicalMemoryStats {
   ready: boolean;
@@ -70,6 +66,8 @@ export interface LexicalMemory {
    * into several tokens (a phrase needs positions, which this index does not keep). The caller then asks FTS5.
    */
   search(collection: string, phrases: readonly PhraseCount[], limit: number, w: FtsWeights, allowed?: ReadonlySet<number>): { chunkId: number; score: number }[] | null;
+  /** Starts bringing the index up to date without waiting: a short run of changes now, a long one in the background. */
+  refresh(): void;
   /** Loads, or applies every logged change, now (synchronously), finishing any background work first. */
   syncNow(): void;
   /** Resolves once the index holds every change logged at call time (or later). */
@@ -105,12 +103,6 @@ interface Job {
   step(): void;
 }
 
-interface Layout {
-  version: number;
-  bases: number[];
-  mutableBase: number;
-  ids: Float64Array;
-}
 
 export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOptions = {}): LexicalMemory {
   const background = (opts.background ?? false) && store.concurrentReads;
@@ -129,12 +121,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
   let builds = 0;
   let buildMs = 0;
   let closed = false;
-  const layouts = new WeakMap<CollectionIndex, Layout>();
-  // Scratch space for one query, grown to the largest collection.
-  let acc = new Float64Array(0);
-  let seen = new Uint8Array(0);
-  let mask = new Uint8Array(0);
-  let touched = new Uint32Array(0);
+  const scorer = createScorer();
 
   const fail = (err: unknown): void => {
     // A half-applied change cannot be trusted: drop the index; the next load reads the table again.
@@ -275,31 +262,6 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     for (let j = job; j; j = job) while (!j.settled) j.step();
   };
 
-  /** Slot table of a collection: each segment's rows, then the mutable segment's. */
-  const layoutOf = (col: CollectionIndex): Layout => {
-    const had = layouts.get(col);
-    if (had && had.version === col.version) return had;
-    const bases: number[] = [];
-    let n = 0;
-    for (const ref of col.segments) {
-      bases.push(n);
-      n += ref.seg.ids.length;
-    }
-    const ids = new Float64Array(n + col.mutable.length);
-    col.segments.forEach((ref, k) => ids.set(ref.seg.ids, bases[k]));
-    col.mutable.forEach((m, r) => (ids[n + r] = m.id));
-    const out = { version: col.version, bases, mutableBase: n, ids };
-    layouts.set(col, out);
-    if (acc.length < ids.length) {
-      const size = Math.ceil(ids.length * 1.25);
-      acc = new Float64Array(size);
-      seen = new Uint8Array(size);
-      mask = new Uint8Array(size);
-      touched = new Uint32Array(size);
-    }
-    return out;
-  };
-
   return {
     search(collection, phrases, limit, w, allowed) {
       if (closed || limit <= 0) return limit <= 0 ? [] : null;
@@ -310,72 +272,10 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
       // Tokenize as FTS5 would; a word that is several tokens makes a phrase, which needs positions.
       const looked = tokens(phrases.map((p) => p.term));
       if (looked.some((t) => t.length > 1)) return null;
-      const wt = ftsWeight(w.title);
-      const wh = ftsWeight(w.heading);
-      const wb = ftsWeight(w.body);
-      const avgdl = statRows > 0 ? statTokens / statRows : 1;
-      const lay = layoutOf(col);
-      for (const ref of col.segments) {
-        if (ref.normAvgdl === avgdl && ref.norm) continue;
-        const norm = ref.norm ?? new Float64Array(ref.seg.ids.length);
-        for (let r = 0; r < norm.length; r++) norm[r] = K1 * (1 - B + (B * ref.seg.lengths[r]!) / avgdl);
-        ref.norm = norm;
-        ref.normAvgdl = avgdl;
-      }
-      if (allowed) {
-        for (const id of allowed) {
-          const at = s.locate(id);
-          if (!at || at.col !== col) continue;
-          mask[at.ref ? lay.bases[col.segments.indexOf(at.ref)]! + at.r : lay.mutableBase + at.r] = 1;
-        }
-      }
-      let nTouched = 0;
-      const hit = (slot: number, f: number, norm: number, mult: number): void => {
-        if (seen[slot] === 0) {
-          seen[slot] = 1;
-          touched[nTouched++] = slot;
-        }
-        acc[slot] = acc[slot]! + (mult * (f * (K1 + 1))) / (f + norm);
-      };
-      try {
-        for (let i = 0; i < phrases.length; i++) {
-          const toks = looked[i]!;
-          if (toks.length === 0) continue; // an empty phrase matches nothing and adds nothing
-          const term = toks[0]!;
-          const nHit = s.df.get(term) ?? 0;
-          if (nHit === 0) continue;
-          let idf = Math.log((statRows - nHit + 0.5) / (nHit + 0.5));
-          if (idf <= 0) idf = 1e-6;
-          const mult = phrases[i]!.count * idf;
-          col.segments.forEach((ref, k) => {
-            const seg = ref.seg;
-            const t = seg.terms.get(term);
-            if (t === undefined) return;
-            const base = lay.bases[k]!;
-            const norm = ref.norm!;
-            for (let p = seg.start[t]!; p < seg.start[t + 1]!; p++) {
-              const r = seg.local[p]!;
-              if (ref.deleted[r] !== 0) continue;
-              if (allowed && mask[base + r] === 0) continue;
-              hit(base + r, wt * seg.tfTitle[p]! + wh * seg.tfHeading[p]! + wb * seg.tfBody[p]!, norm[r]!, mult);
-            }
-          });
-          for (const r of col.mutablePostings.get(term) ?? []) {
-            const row = col.mutable[r]!;
-            if (row.deleted || (allowed && mask[lay.mutableBase + r] === 0)) continue;
-            const tf = row.terms.get(term)!;
-            hit(lay.mutableBase + r, wt * tf[0] + wh * tf[1] + wb * tf[2], K1 * (1 - B + (B * row.length) / avgdl), mult);
-          }
-        }
-        return topK(touched, nTouched, acc, lay.ids, limit);
-      } finally {
-        for (let i = 0; i < nTouched; i++) {
-          const slot = touched[i]!;
-          acc[slot] = 0;
-          seen[slot] = 0;
-        }
-        if (allowed) mask.fill(0, 0, lay.ids.length);
-      }
+      return scorer.score(s, col, { rows: statRows, tokens: statTokens }, phrases.map((p, i) => ({ term: looked[i]![0], count: p.count })), limit, w, allowed);
+    },
+    refresh() {
+      usable();
     },
     syncNow() {
       if (closed) return;
@@ -406,7 +306,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
         rows: s?.live ?? 0,
         terms: s?.df.size ?? 0,
         postings: st.postings,
-        arrayBytes: st.postings * (4 + 2 + 2 + 2 + 4) + rowsHeld * (8 + 4 + 4 + 1 + 8) + acc.length * (8 + 1 + 1 + 4),
+        arrayBytes: st.postings * (4 + 2 + 2 + 2 + 4) + rowsHeld * (8 + 4 + 4 + 1 + 8) + scorer.scratchBytes(),
         buildMs,
         builds,
         segments: st.segments,
