@@ -13,13 +13,23 @@ import type { LexicalDelta, LexicalField, LexicalRowChange, LexicalSnapshot, Lex
 import { readChangeSignature } from './corpus.js';
 import type { Db } from './db.js';
 import { decodeAverages, decodeRowLength } from './fts5-record.js';
-import { createQueryTokenizer, createRowTokenizer } from './query-tokenizer.js';
+import { createQueryTokenizer, createRowTokenizer, type RowTokenizer } from './query-tokenizer.js';
 
 const FTS_TABLE = 'chunks_fts';
 const DEFAULT_TOKENIZE = 'porter unicode61 remove_diacritics 2';
 /** Rows read and tokenized together when following the change log. */
 const DELTA_BATCH = 256;
 const HEAD_SQL = "SELECT coalesce((SELECT seq FROM sqlite_sequence WHERE name = 'lexical_log'), 0)";
+
+const statements = new WeakMap<Db, Map<string, Database.Statement>>();
+/** A statement prepared once per connection (a delta is read after every change; preparing costs more than the read). */
+function stmt(conn: Db, sql: string): Database.Statement {
+  let m = statements.get(conn);
+  if (!m) statements.set(conn, (m = new Map()));
+  let st = m.get(sql);
+  if (!st) m.set(sql, (st = conn.prepare(sql)));
+  return st;
+}
 
 function tokenizeSpec(conn: Db): string {
   const sql = conn.prepare('SELECT sql FROM sqlite_master WHERE name = ?').pluck().get(FTS_TABLE) as string | undefined;
@@ -53,18 +63,19 @@ function readTransaction<T>(conn: Db, afterRelease: () => void, read: (release: 
  * The rows logged after `since`, each read as it is now with its postings (tokenized again from the fields the
  * regular content table keeps, by the index's own tokenizer) and its length from FTS5's docsize record.
  */
-function openDelta(conn: Db, since: number, afterRelease: () => void): LexicalDelta {
+function openDelta(conn: Db, since: number, afterRelease: () => void, tokenize: RowTokenizer): LexicalDelta {
   return readTransaction(conn, afterRelease, (release) => {
-    const head = conn.prepare(HEAD_SQL).pluck().get() as number;
-    const first = conn.prepare('SELECT min(seq) FROM lexical_log').pluck().get() as number | null;
+    const head = stmt(conn, HEAD_SQL).pluck().get() as number;
+    const first = stmt(conn, 'SELECT min(seq) FROM lexical_log').pluck().get() as number | null;
     // Complete when nothing is missing between `since` and the oldest entry still kept.
     const complete = head <= since || (first !== null && first <= since + 1);
-    const ids = complete ? (conn.prepare('SELECT DISTINCT chunk_id FROM lexical_log WHERE seq > ? ORDER BY chunk_id').pluck().all(since) as number[]) : [];
-    const avg = decodeAverages(conn.prepare(`SELECT block FROM ${FTS_TABLE}_data WHERE id = 1`).pluck().get() as Buffer | undefined);
-    const readRow = conn.prepare(`
-      SELECT c.c0, c.c1, c.c2, s.sz, d.collection FROM ${FTS_TABLE}_content c JOIN ${FTS_TABLE}_docsize s ON s.id = c.id
-      LEFT JOIN chunks k ON k.id = c.id LEFT JOIN documents d ON d.id = k.document_id WHERE c.id = ?`).raw();
-    const spec = tokenizeSpec(conn);
+    const ids = complete ? (stmt(conn, 'SELECT DISTINCT chunk_id FROM lexical_log WHERE seq > ? ORDER BY chunk_id').pluck().all(since) as number[]) : [];
+    const avg = decodeAverages(stmt(conn, `SELECT block FROM ${FTS_TABLE}_data WHERE id = 1`).pluck().get() as Buffer | undefined);
+    const readRow = stmt(
+      conn,
+      `SELECT c.c0, c.c1, c.c2, s.sz, d.collection FROM ${FTS_TABLE}_content c JOIN ${FTS_TABLE}_docsize s ON s.id = c.id
+      LEFT JOIN chunks k ON k.id = c.id LEFT JOIN documents d ON d.id = k.document_id WHERE c.id = ?`,
+    ).raw();
     return {
       head,
       complete,
@@ -72,8 +83,7 @@ function openDelta(conn: Db, since: number, afterRelease: () => void): LexicalDe
       tokens: avg.tokens,
       count: ids.length,
       *changes(): Generator<LexicalRowChange> {
-        const tokenize = createRowTokenizer(spec);
-        try {
+        {
           for (let at = 0; at < ids.length; at += DELTA_BATCH) {
             const batch = ids.slice(at, at + DELTA_BATCH);
             const found = batch.map((id) => readRow.get(id) as [string | null, string | null, string | null, Buffer, string | null] | undefined);
@@ -93,8 +103,6 @@ function openDelta(conn: Db, since: number, afterRelease: () => void): LexicalDe
               yield { rowId: batch[i]!, row: { collection: r[4], length, postings: rowPostings } };
             }
           }
-        } finally {
-          tokenize.close();
         }
       },
       release,
@@ -138,6 +146,9 @@ function openSnapshot(conn: Db, afterRelease: () => void): LexicalSnapshot {
 export function sqliteLexical(db: Db): Omit<LexicalStore, 'searchFts'> {
   const concurrentReads = !db.memory;
   const head = db.prepare(HEAD_SQL).pluck();
+  // One private tokenizer for every delta (an in-memory database of its own), made on first use.
+  let rowTokenizer: RowTokenizer | null = null;
+  const tokenizer = (): RowTokenizer => (rowTokenizer ??= createRowTokenizer(tokenizeSpec(db)));
   /** `open` on the store's connection, or on a read-only connection of its own when `concurrent`. */
   const onConnection = <T>(concurrent: boolean | undefined, open: (conn: Db, afterRelease: () => void) => T): T => {
     if (!concurrent || !concurrentReads) return open(db, () => undefined);
@@ -156,7 +167,7 @@ export function sqliteLexical(db: Db): Omit<LexicalStore, 'searchFts'> {
       return head.get() as number;
     },
     lexicalChanges(since, opts = {}) {
-      return onConnection(opts.concurrent, (conn, after) => openDelta(conn, since, after));
+      return onConnection(opts.concurrent, (conn, after) => openDelta(conn, since, after, tokenizer()));
     },
     queryTokenizer(): QueryTokenizer {
       return createQueryTokenizer(tokenizeSpec(db));
