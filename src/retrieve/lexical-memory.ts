@@ -96,6 +96,13 @@ export interface LexicalMemoryOptions {
   onError?: (err: unknown) => void;
 }
 
+/** The change log was pruned past the position the index holds: only a whole read can bring it up to date. */
+class LogGap extends Error {
+  constructor() {
+    super('the lexical change log no longer reaches back to the in-memory index; reading the table again');
+  }
+}
+
 interface Job {
   gen: Generator<void, void, void>;
   settled: boolean;
@@ -124,9 +131,10 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
   const scorer = createScorer();
 
   const fail = (err: unknown): void => {
-    // A half-applied change cannot be trusted: drop the index; the next load reads the table again.
+    // A half-applied change cannot be trusted: drop the index; the next load reads the table again (at once when
+    // the log was merely pruned past it, after the retry gap when something went wrong).
     state = null;
-    lastFailure = performance.now();
+    if (!(err instanceof LogGap)) lastFailure = performance.now();
     opts.onError?.(err);
   };
 
@@ -147,7 +155,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     const s = state!;
     const delta = store.lexicalChanges(s.head, { concurrent });
     try {
-      if (!delta.complete) throw new Error('the lexical change log no longer reaches back to the index; reading the table again');
+      if (!delta.complete) throw new LogGap();
       let i = 0;
       for (const ch of delta.changes()) {
         s.remove(ch.rowId);
@@ -254,7 +262,8 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
       return null;
     }
     runNow(catchUp(false));
-    return state && state.head === head ? state : null;
+    if (!state && !background && performance.now() - lastFailure >= minGap) runNow(load(false));
+    return state && state.head >= head ? state : null;
   };
 
   /** Finishes background work now. */

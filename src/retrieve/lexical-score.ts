@@ -18,7 +18,9 @@ interface Layout {
   version: number;
   bases: number[];
   mutableBase: number;
+  /** Chunk id of each slot; room for more mutable rows past `size`. */
   ids: Float64Array;
+  size: number;
 }
 
 /** A query term as the index spells it (undefined: an empty phrase) and how often the query repeats it. */
@@ -41,20 +43,28 @@ export function createScorer(): {
 
   const layoutOf = (col: CollectionIndex): Layout => {
     const had = layouts.get(col);
-    if (had && had.version === col.version) return had;
-    const bases: number[] = [];
-    let n = 0;
-    for (const ref of col.segments) {
-      bases.push(n);
-      n += ref.seg.ids.length;
+    let out: Layout;
+    if (had && had.version === col.version && had.mutableBase + col.mutable.length <= had.ids.length) {
+      // Only rows appended to the mutable segment since: write their ids into the room left.
+      for (let r = had.size - had.mutableBase; r < col.mutable.length; r++) had.ids[had.mutableBase + r] = col.mutable[r]!.id;
+      had.size = had.mutableBase + col.mutable.length;
+      out = had;
+    } else {
+      const bases: number[] = [];
+      let n = 0;
+      for (const ref of col.segments) {
+        bases.push(n);
+        n += ref.seg.ids.length;
+      }
+      const size = n + col.mutable.length;
+      const ids = new Float64Array(size + Math.max(64, col.mutable.length, Math.ceil(size / 64)));
+      col.segments.forEach((ref, k) => ids.set(ref.seg.ids, bases[k]));
+      col.mutable.forEach((m, r) => (ids[n + r] = m.id));
+      out = { version: col.version, bases, mutableBase: n, ids, size };
+      layouts.set(col, out);
     }
-    const ids = new Float64Array(n + col.mutable.length);
-    col.segments.forEach((ref, k) => ids.set(ref.seg.ids, bases[k]));
-    col.mutable.forEach((m, r) => (ids[n + r] = m.id));
-    const out = { version: col.version, bases, mutableBase: n, ids };
-    layouts.set(col, out);
-    if (acc.length < ids.length) {
-      const size = Math.ceil(ids.length * 1.25);
+    if (acc.length < out.size) {
+      const size = Math.ceil(out.size * 1.25);
       acc = new Float64Array(size);
       seen = new Uint8Array(size);
       mask = new Uint8Array(size);
@@ -131,7 +141,7 @@ export function createScorer(): {
           acc[slot] = 0;
           seen[slot] = 0;
         }
-        if (allowed) mask.fill(0, 0, lay.ids.length);
+        if (allowed) mask.fill(0, 0, lay.size);
       }
     },
   };

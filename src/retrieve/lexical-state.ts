@@ -34,7 +34,10 @@ export interface CollectionIndex {
   mutable: MutableRow[];
   /** Term → positions in `mutable`. */
   mutablePostings: Map<string, number[]>;
-  /** Bumped on every change to the collection's segments (the query's slot table is rebuilt from it). */
+  /**
+   * Bumped when the list of segments changes (a flush or a merge): the query's slot table is rebuilt then, and
+   * only extended while rows are appended to the mutable segment (deletions are read from the markers).
+   */
   version: number;
 }
 
@@ -129,7 +132,6 @@ export class LexicalState {
       this.tokens -= row.length;
     }
     this.live--;
-    at.col.version++;
     return true;
   }
 
@@ -154,7 +156,6 @@ export class LexicalState {
     this.where.set(id, { col, ref: null, r });
     this.live++;
     this.tokens += length;
-    col.version++;
   }
 
   /** Turns a full mutable segment into an immutable one (a few hundred rows: done at once). */

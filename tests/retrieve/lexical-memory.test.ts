@@ -8,6 +8,7 @@ import { phraseCounts, toWeightedMatch, type WeightedTerm } from '../../src/retr
 import { DEFAULT_RM3 } from '../../src/retrieve/rm3.js';
 import { createRetriever } from '../../src/retrieve/retriever.js';
 import { openStore, type FtsWeights, type Repository, type SqliteStore, type VectorIndexes } from '../../src/store/index.js';
+import { sqliteLexical } from '../../src/store/sqlite/lexical.js';
 import { tempRuntime } from '../fixtures/runtime.js';
 import { mulberry32 } from '../fixtures/random.js';
 import { waitFor } from '../fixtures/wait.js';
@@ -195,6 +196,38 @@ describe('in-memory BM25 index against FTS5', () => {
     const after = mem.stats().applied;
     compare('trams', q, 6, 20, WEIGHTS[1]!);
     expect(mem.stats().applied).toBe(after);
+  });
+
+  it('reads the table again, at once, when the change log was pruned past what it holds', () => {
+    generate(repo, 4, 40);
+    const q = [{ term: 'depot', weight: 1 }, { term: 'refund', weight: 2 }];
+    compare('trams', q, 6, 20, WEIGHTS[0]!);
+    addDoc(repo, 'trams', 'gap', 'Depot refund', [{ heading: ['Depot refund'], text: 'Refund desk at the depot.' }]);
+    // What a writer opening the store does to entries older than it keeps (store/sqlite/lexical.ts).
+    repo.db.prepare('DELETE FROM lexical_log').run();
+    compare('trams', q, 6, 20, WEIGHTS[0]!);
+    expect(mem.stats().builds).toBe(2);
+  });
+
+  it('is kept short: a writer opening the store drops entries older than it keeps, and a reader still behind them reads the table again', () => {
+    generate(repo, 8, 30);
+    const head = repo.lexicalHead();
+    expect(head).toBeGreaterThan(20);
+    sqliteLexical(repo.db, { logKeep: 10 });
+    const kept = repo.db.prepare('SELECT count(*) FROM lexical_log').pluck().get() as number;
+    expect(kept).toBe(10);
+    expect(repo.lexicalHead()).toBe(head);
+    const complete = (since: number): boolean => {
+      const d = repo.lexicalChanges(since);
+      try {
+        return d.complete;
+      } finally {
+        d.release();
+      }
+    };
+    expect(complete(0)).toBe(false);
+    expect(complete(head - 10)).toBe(true);
+    expect(complete(head - 11)).toBe(false);
   });
 
   it('declines a word FTS5 splits into a phrase of several tokens (the caller then asks FTS5)', () => {

@@ -17,6 +17,11 @@ import { createQueryTokenizer, createRowTokenizer, type RowTokenizer } from './q
 
 const FTS_TABLE = 'chunks_fts';
 const DEFAULT_TOKENIZE = 'porter unicode61 remove_diacritics 2';
+/**
+ * Log entries kept: a writer opening the store drops older ones. A reader further behind than this reads the table
+ * again (a full re-index of 100k chunks logs about 300k entries; an entry is a few dozen bytes on disk).
+ */
+export const LEXICAL_LOG_KEEP = 1_000_000;
 /** Rows read and tokenized together when following the change log. */
 const DELTA_BATCH = 256;
 const HEAD_SQL = "SELECT coalesce((SELECT seq FROM sqlite_sequence WHERE name = 'lexical_log'), 0)";
@@ -143,8 +148,14 @@ function openSnapshot(conn: Db, afterRelease: () => void): LexicalSnapshot {
   });
 }
 
-export function sqliteLexical(db: Db): Omit<LexicalStore, 'searchFts'> {
+export function sqliteLexical(db: Db, opts: { logKeep?: number } = {}): Omit<LexicalStore, 'searchFts'> {
   const concurrentReads = !db.memory;
+  const keep = opts.logKeep ?? LEXICAL_LOG_KEEP;
+  // (A store opened on a schema before migration 7, as a migration test does, has no log yet.)
+  if (!db.readonly && db.prepare("SELECT 1 FROM sqlite_master WHERE name = 'lexical_log'").get() !== undefined) {
+    const span = db.prepare('SELECT coalesce(max(seq) - min(seq), 0) FROM lexical_log').pluck().get() as number;
+    if (span >= keep) db.prepare('DELETE FROM lexical_log WHERE seq <= (SELECT max(seq) FROM lexical_log) - ?').run(keep);
+  }
   const head = db.prepare(HEAD_SQL).pluck();
   // One private tokenizer for every delta (an in-memory database of its own), made on first use.
   let rowTokenizer: RowTokenizer | null = null;
