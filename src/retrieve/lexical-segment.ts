@@ -66,7 +66,7 @@ export interface RowSource {
 }
 
 /** Builds a segment, yielding every `every` rows of each pass (a background merge gives the event loop a turn). */
-export function* buildSegment(src: RowSource, every = 2048): Generator<void, Segment, void> {
+export function* buildSegment(src: RowSource, every = 256): Generator<void, Segment, void> {
   const n = src.count;
   const ids = new Float64Array(n);
   const lengths = new Uint32Array(n);

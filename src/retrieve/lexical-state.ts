@@ -160,8 +160,8 @@ export class LexicalState {
 
   /** Turns a full mutable segment into an immutable one (a few hundred rows: done at once). */
   flushIfFull(col: CollectionIndex, force = false): void {
-    const rows = col.mutable.filter((m) => !m.deleted);
     if (!force && col.mutable.length < this.opts.mutableRows) return;
+    const rows = col.mutable.filter((m) => !m.deleted);
     if (rows.length > 0) {
       rows.sort((a, b) => a.id - b.id);
       const src: RowSource = { count: rows.length, id: (i) => rows[i]!.id, length: (i) => rows[i]!.length, terms: (i) => mutableTerms(rows[i]!) };
