@@ -7,11 +7,12 @@ import { createLexicalMemory, type LexicalMemory } from '../../src/retrieve/lexi
 import { phraseCounts, toWeightedMatch, type WeightedTerm } from '../../src/retrieve/query-text.js';
 import { DEFAULT_RM3 } from '../../src/retrieve/rm3.js';
 import { createRetriever } from '../../src/retrieve/retriever.js';
+import { createDocumentApi } from '../../src/runtime.js';
 import { openStore, type FtsWeights, type Repository, type SqliteStore, type VectorIndexes } from '../../src/store/index.js';
 import { sqliteLexical } from '../../src/store/sqlite/lexical.js';
 import { tempRuntime } from '../fixtures/runtime.js';
 import { mulberry32 } from '../fixtures/random.js';
-import { waitFor } from '../fixtures/wait.js';
+import { waitFor, withDeadline } from '../fixtures/wait.js';
 
 // The in-memory index must rank exactly as the FTS5 path: the reference is SQLite's own FTS5 bm25() through
 // repo.searchFts (itself checked against Robertson and Zaragoza's BM25 in tests/store/bm25.test.ts). Every
@@ -351,6 +352,26 @@ describe('retriever with the in-memory lexical engine', () => {
       expect(after.map((h) => h.chunkId)).toEqual(first.map((h) => h.chunkId));
       after.forEach((h, i) => expect(h.score).toBeCloseTo(first[i]!.score, 9));
     } finally {
+      t.cleanup();
+    }
+  });
+
+  it('applies the rows of a finished upload job when the job ends, before any query, without reading the table again', async () => {
+    const t = await tempRuntime({ retrieval: { lexicalEngine: 'memory' } });
+    const { queue, documents } = createDocumentApi(t.rt, 'thread');
+    try {
+      const index = t.rt.lexicalIndex!;
+      await index.whenReady();
+      expect(index.stats().builds).toBe(1);
+      const out = await documents.upload('c', 'ferry-bikes.md', new TextEncoder().encode('# Bikes on the ferry\n\nFolding bikes travel free on the Quarrel Lane ferry.'));
+      expect(out.status).toBe('queued');
+      await withDeadline(queue.idle(), { what: 'the upload job to finish', timeoutMs: 20_000 });
+      // The job thread wrote the rows; this thread heard the job end and applied them from the change log.
+      expect(index.stats().head).toBe(t.rt.repo.lexicalHead());
+      expect(index.stats().applied).toBeGreaterThan(0);
+      expect(index.stats().builds).toBe(1);
+    } finally {
+      await queue.close();
       t.cleanup();
     }
   });
