@@ -31,7 +31,7 @@ import {
   type JobQueue,
 } from './jobs/index.js';
 import type { CompletionClient } from './answer/index.js';
-import { createLexicalMemory, createRetriever, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
+import { createLexicalMemory, createRetriever, type LexicalMemory, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
 import { createOriginals, createVectorIndexes, openStore, storePaths, type JobStore, type Repository, type Store, type VectorIndexes } from './store/index.js';
 
 export interface Runtime {
@@ -49,6 +49,8 @@ export interface Runtime {
   extractiveAnswerer: Answerer;
   ingestor: Ingestor;
   metrics: Metrics;
+  /** The in-memory lexical index, when `retrieval.lexicalEngine` is "memory". */
+  lexicalIndex?: LexicalMemory;
   close(): void;
 }
 
@@ -117,7 +119,8 @@ export async function createRuntime(
         }
       }),
   };
-  // The in-memory BM25 index builds on a second connection between queries, which FTS5 answers meanwhile.
+  // The in-memory BM25 index loads on a second connection between queries, which FTS5 answers meanwhile; after
+  // that it follows the store's lexical change log (a long run of changes is applied in the background too).
   const lexLog = logger.child({ stage: 'lexical-index' });
   const lexicalIndex =
     config.retrieval.lexicalEngine === 'memory'
@@ -247,6 +250,7 @@ export async function createRuntime(
     extractiveAnswerer,
     ingestor,
     metrics,
+    ...(lexicalIndex ? { lexicalIndex } : {}),
     close() {
       lexicalIndex?.close();
       indexes.close();
@@ -379,7 +383,11 @@ export function createDocumentApi(
               jobMaxSeconds: rt.config.limits.jobMaxSeconds,
             },
           },
-    ...(opts.onJobDone ? { onJobDone: opts.onJobDone } : {}),
+    onJobDone: (job) => {
+      // The job's rows are in the change log: apply them now rather than in the next query.
+      rt.lexicalIndex?.refresh();
+      opts.onJobDone?.(job);
+    },
   });
   return { queue, documents: createDocumentService(ctx, queue) };
 }

@@ -1,8 +1,11 @@
-// Builds the in-memory lexical index (lexical-memory.ts) from one snapshot of the store's lexical index:
-// statistics, row lengths, each row's collection and the postings, copied into typed arrays. The build is a
-// generator that yields between slices, so a background build gives the event loop a turn now and then.
+// The first load of the in-memory lexical index (lexical-memory.ts) from one snapshot of the store's lexical
+// index: statistics, row lengths, each row's collection and the postings, copied into typed arrays, then cut
+// into one segment per collection (lexical-segment.ts). Later changes are applied from the store's change log;
+// this runs once per process (and again only if the log no longer reaches back to what the index holds).
+// The build is a generator that yields between slices, so a background build gives the event loop a turn.
 
 import type { LexicalSnapshot } from '../store/index.js';
+import { buildSegment, type RowSource, type Segment } from './lexical-segment.js';
 import { slotOf } from './top-k.js';
 
 export const K1 = 1.2;
@@ -13,17 +16,21 @@ const SLICE_MS = 15;
 /** The built index: immutable once published. */
 export interface LexicalIndexData {
   signature: string;
+  /** The store's lexical change log position the snapshot was read at. */
+  head: number;
   builtAt: number;
   buildMs: number;
   nRow: number;
+  /** Tokens over every row (FTS5's averages record). */
+  tokens: number;
   avgdl: number;
   /** Row ids in ascending order, one per slot. */
   rowids: Float64Array;
   /** Collection ordinal of each slot (-1: a row with no chunk). */
   collectionOf: Int32Array;
   collections: Map<string, number>;
-  /** k1 * (1 - b + b * |d| / avgdl) per slot: the length part of the BM25 denominator. */
-  lengthNorm: Float64Array;
+  /** Tokens of each slot's row over all fields (|d|). */
+  lengths: Uint32Array;
   terms: Map<string, number>;
   /** Postings of term t: [start[t], start[t + 1]). */
   start: Uint32Array;
@@ -63,11 +70,11 @@ export function* buildLexicalIndex(snap: LexicalSnapshot): Generator<void, Lexic
     // Row lengths, in row id order: one slot per row.
     const nSizes = snap.lengthCount;
     const rowids = new Float64Array(nSizes);
-    const lengthNorm = new Float64Array(nSizes);
+    const lengths = new Uint32Array(nSizes);
     let nDocs = 0;
     for (const [id, d] of snap.rowLengths()) {
       rowids[nDocs] = id;
-      lengthNorm[nDocs++] = K1 * (1 - B + (B * d) / avgdl);
+      lengths[nDocs++] = d;
       if ((nDocs & 1023) === 0 && due()) {
         yield;
         sliceStart = performance.now();
@@ -140,14 +147,16 @@ export function* buildLexicalIndex(snap: LexicalSnapshot): Generator<void, Lexic
     starts[terms.size] = n;
     return {
       signature: snap.signature,
+      head: snap.head,
       builtAt: Date.now(),
       buildMs: performance.now() - t0,
       nRow,
+      tokens: snap.tokens,
       avgdl,
       rowids,
       collectionOf,
       collections,
-      lengthNorm,
+      lengths,
       terms,
       start: starts.slice(0, terms.size + 1),
       slot: slot.slice(0, n),
@@ -158,4 +167,68 @@ export function* buildLexicalIndex(snap: LexicalSnapshot): Generator<void, Lexic
   } finally {
     snap.release();
   }
+}
+
+/** The rows of no collection (an index row whose chunk is gone: it still counts in FTS5's statistics). */
+export const NO_COLLECTION = '\u0000';
+
+/**
+ * Cuts a whole-table index into one segment per collection (rows of no collection under NO_COLLECTION), plus
+ * every term's document frequency over the whole table, which BM25's idf reads.
+ */
+export function* splitByCollection(data: LexicalIndexData): Generator<void, { segments: Map<string, Segment>; df: Map<string, number> }, void> {
+  const nSlots = data.rowids.length;
+  const nTerms = data.terms.size;
+  const termList: string[] = new Array<string>(nTerms);
+  for (const [term, t] of data.terms) termList[t] = term;
+  const df = new Map<string, number>();
+  for (let t = 0; t < nTerms; t++) df.set(termList[t]!, data.start[t + 1]! - data.start[t]!);
+  // A forward list per slot: its postings, in term order.
+  const fwdStart = new Uint32Array(nSlots + 1);
+  for (let p = 0; p < data.slot.length; p++) {
+    const at = data.slot[p]! + 1;
+    fwdStart[at] = fwdStart[at]! + 1;
+  }
+  for (let i = 0; i < nSlots; i++) fwdStart[i + 1] = fwdStart[i + 1]! + fwdStart[i]!;
+  const fill = fwdStart.slice(0, nSlots);
+  const fwdTerm = new Uint32Array(data.slot.length);
+  const fwdPosting = new Uint32Array(data.slot.length);
+  for (let t = 0; t < nTerms; t++) {
+    for (let p = data.start[t]!; p < data.start[t + 1]!; p++) {
+      const s = data.slot[p]!;
+      const at = fill[s]!;
+      fill[s] = at + 1;
+      fwdTerm[at] = t;
+      fwdPosting[at] = p;
+    }
+    if ((t & 4095) === 4095) yield;
+  }
+  const names = new Map<number, string>();
+  for (const [name, c] of data.collections) names.set(c, name);
+  const bySlot = new Map<string, number[]>();
+  for (const name of data.collections.keys()) bySlot.set(name, []);
+  for (let s = 0; s < nSlots; s++) {
+    const c = data.collectionOf[s]!;
+    const name = c < 0 ? NO_COLLECTION : names.get(c)!;
+    let list = bySlot.get(name);
+    if (!list) bySlot.set(name, (list = []));
+    list.push(s);
+  }
+  const segments = new Map<string, Segment>();
+  for (const [name, slots] of bySlot) {
+    const src: RowSource = {
+      count: slots.length,
+      id: (i) => data.rowids[slots[i]!]!,
+      length: (i) => data.lengths[slots[i]!]!,
+      *terms(i) {
+        const s = slots[i]!;
+        for (let at = fwdStart[s]!; at < fwdStart[s + 1]!; at++) {
+          const p = fwdPosting[at]!;
+          yield [termList[fwdTerm[at]!]!, data.tfTitle[p]!, data.tfHeading[p]!, data.tfBody[p]!];
+        }
+      },
+    };
+    segments.set(name, yield* buildSegment(src));
+  }
+  return { segments, df };
 }

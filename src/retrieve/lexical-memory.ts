@@ -1,62 +1,76 @@
-// An in-memory inverted index that scores exactly as the FTS5 path does, without FTS5's per-row bm25() work.
+// An in-memory inverted index that scores exactly as the FTS5 path does, without FTS5's per-row bm25() work, and
+// follows the database change by change.
 //
 // Why: FTS5 evaluates bm25() once per matching row and per query phrase, and a term's weight can only be
 // carried by repeating its phrase (query-text.ts). RM3's second pass matches tens of thousands of rows with
 // 30–60 phrases, which dominates hybrid latency at 100k chunks (docs/benchmarks.md, "Retrieval speed").
 // Here a term is looked up once, its weight is a multiplier, and scores accumulate in a typed array.
 //
-// Exactness: the index is a copy of the store's own lexical index (FTS5's, read through the store's lexical
-// snapshot: src/store/sqlite/lexical.ts), so terms are FTS5's tokens (porter stemming and diacritic folding
-// included), query words are tokenized by the store's tokenizer, and the statistics are the ones FTS5's bm25()
-// reads: N, the total token count (avgdl = total / N), each row's length |d|, and n(t) from the postings.
-// The formula is the one of SQLite's fts5_aux.c, fts5Bm25Function (sqlite.org/fts5.html, "The bm25()
-// function"; summarised here from that source, which also clamps a non-positive idf to 1e-6):
+// Exactness: the index holds the store's own lexical rows (FTS5's, read through the store: src/store/sqlite/
+// lexical.ts), so terms are FTS5's tokens (porter stemming and diacritic folding included), query words are
+// tokenized by the store's tokenizer, and the statistics are the ones FTS5's bm25() reads: N and the total token
+// count (avgdl = total / N) from FTS5's averages record, each row's length |d|, and n(t), the rows holding the
+// term, over the whole table (every collection, as FTS5 counts). The formula is the one of SQLite's fts5_aux.c,
+// fts5Bm25Function (sqlite.org/fts5.html, "The bm25() function"; summarised here from that source, which also
+// clamps a non-positive idf to 1e-6):
 //   score = sum over phrases i of idf_i * f_i * (k1 + 1) / (f_i + k1 * (1 - b + b * |d| / avgdl))
 //   f_i   = sum over the phrase's instances in the row of the weight of the instance's column
 //   idf_i = ln((N - n_i + 0.5) / (n_i + 0.5)), clamped to 1e-6 when <= 0;  k1 = 1.2, b = 0.75
-// FTS5's statistics span the whole table (every collection), so this index does too, and keeps each row's
-// collection to answer for one. tests/retrieve/lexical-memory.test.ts checks ids and scores against FTS5.
+// tests/retrieve/lexical-memory.test.ts checks ids and scores against FTS5, after random changes and merges too.
 //
-// Staying in step: the index is tagged with the store's change signature (every collection's generation) read
-// in the same snapshot as the postings. A query whose collections table says otherwise is not answered here
-// (the caller falls back to FTS5) and a rebuild starts; the new index replaces the old one only once whole.
+// Staying in step: the whole table is read once, at the first query (or start-up); after that the store's lexical
+// change log (every chunk row inserted, deleted or moved, from any process) says which rows to read again, and
+// only those are applied (lexical-state.ts: per-collection segments, a mutable segment, deletion markers,
+// background merges). A query answers only once every logged change is applied: a short gap is closed inside
+// the query (one changed document costs milliseconds); a long one (a full re-index) is applied in the
+// background in slices while FTS5 answers.
 
 import type { FtsWeights, Repository } from '../store/index.js';
-import { buildLexicalIndex, K1, type LexicalIndexData } from './lexical-build.js';
+import { buildLexicalIndex, NO_COLLECTION, splitByCollection } from './lexical-build.js';
+import { createScorer } from './lexical-score.js';
+import { finish } from './lexical-segment.js';
+import { LexicalState, type MergePlan } from './lexical-state.js';
 import type { PhraseCount } from './query-text.js';
-import { slotOf, topK } from './top-k.js';
 
-/** What the in-memory index reads from the store: the change signature, lexical snapshots and the tokenizer. */
-export type LexicalSource = Pick<Repository, 'changeSignature' | 'lexicalSnapshot' | 'concurrentReads' | 'queryTokenizer'>;
+/** What the in-memory index reads from the store: lexical snapshots, the change log and the tokenizer. */
+export type LexicalSource = Pick<Repository, 'lexicalSnapshot' | 'lexicalHead' | 'lexicalChanges' | 'concurrentReads' | 'queryTokenizer'>;
 
-/** A column weight as the FTS5 path hands it to bm25() (six decimals, else 1: store/sqlite/chunks.ts). */
-function ftsWeight(x: number): number {
-  return Number.isFinite(x) && x >= 0 ? Number(x.toFixed(6)) : 1;
-}
 
 export interface LexicalMemoryStats {
   ready: boolean;
+  /** Loading or applying a long run of changes in the background. */
   building: boolean;
   rows: number;
   terms: number;
   postings: number;
-  /** Bytes held by the typed arrays (the term map's strings not counted). */
+  /** Bytes held by the segments' typed arrays (the term maps' strings and the mutable segment not counted). */
   arrayBytes: number;
   buildMs: number;
+  /** Whole loads of the table (the first, and one after any failure to follow the log). */
   builds: number;
+  segments: number;
+  mutableRows: number;
+  deletedRows: number;
+  merges: number;
+  /** Changed rows applied from the change log. */
+  applied: number;
+  /** The change log position the index holds. */
+  head: number;
 }
 
 export interface LexicalMemory {
   /**
    * The top `limit` chunks of `collection` for the weighted phrases, scored as FTS5's bm25() with the column
    * weights `w`, best first (ties by chunk id). `allowed` restricts to those chunk ids. Null when this index
-   * cannot answer now: not built yet, behind the database, or a query word FTS5 splits into several tokens
-   * (a phrase needs positions, which this index does not keep). The caller then asks FTS5.
+   * cannot answer now: not loaded yet, a long run of changes still being applied, or a query word FTS5 splits
+   * into several tokens (a phrase needs positions, which this index does not keep). The caller then asks FTS5.
    */
   search(collection: string, phrases: readonly PhraseCount[], limit: number, w: FtsWeights, allowed?: ReadonlySet<number>): { chunkId: number; score: number }[] | null;
-  /** Builds (or rebuilds) now, synchronously, when the database has moved on. */
+  /** Starts bringing the index up to date without waiting: a short run of changes now, a long one in the background. */
+  refresh(): void;
+  /** Loads, or applies every logged change, now (synchronously), finishing any background work first. */
   syncNow(): void;
-  /** Resolves once an index matching the database at call time (or later) is in place. */
+  /** Resolves once the index holds every change logged at call time (or later). */
   whenReady(): Promise<void>;
   stats(): LexicalMemoryStats;
   close(): void;
@@ -64,118 +78,197 @@ export interface LexicalMemory {
 
 export interface LexicalMemoryOptions {
   /**
-   * true: build in slices from a concurrent snapshot (one read transaction on a connection of its own) and
-   * give the event loop a turn between slices; queries are answered by FTS5 meanwhile. false: build inside the
-   * first query that needs it. A store without concurrent reads (in memory) always builds synchronously.
+   * true: load and apply long runs of changes in slices from a concurrent read (a connection of its own), giving
+   * the event loop a turn between slices, and merge segments in the background; queries are answered by FTS5
+   * until the index holds every change. false: all of it inside the call that needs it. A store without
+   * concurrent reads (in memory) loads synchronously.
    */
   background?: boolean;
-  /**
-   * Least time between the starts of two rebuilds while collections keep changing (default 5 s); never less
-   * than twice the last build's duration, so rebuilding takes at most about a third of one core.
-   */
+  /** Least time before a failed load or catch-up is tried again (default 5 s); FTS5 answers meanwhile. */
   minRebuildGapMs?: number;
+  /** Logged changes a query applies itself before answering; past this, they are applied in the background. */
+  syncLimit?: number;
+  /** Rows the mutable segment of a collection takes before it becomes immutable (default 1024). */
+  mutableRows?: number;
+  /** Segments of one size tier merged into one (default 4). */
+  mergeFactor?: number;
   onBuilt?: (info: { rows: number; terms: number; postings: number; ms: number }) => void;
   onError?: (err: unknown) => void;
 }
 
+/** The change log was pruned past the position the index holds: only a whole read can bring it up to date. */
+class LogGap extends Error {
+  constructor() {
+    super('the lexical change log no longer reaches back to the in-memory index; reading the table again');
+  }
+}
+
+interface Job {
+  gen: Generator<void, void, void>;
+  settled: boolean;
+  done: Promise<void>;
+  step(): void;
+}
+
+
 export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOptions = {}): LexicalMemory {
   const background = (opts.background ?? false) && store.concurrentReads;
   const minGap = opts.minRebuildGapMs ?? 5000;
-  const signature = (): string => store.changeSignature();
+  const syncLimit = opts.syncLimit ?? 4096;
+  const stateOpts = { mutableRows: opts.mutableRows ?? 1024, mergeFactor: Math.max(2, opts.mergeFactor ?? 4) };
   const tokens = store.queryTokenizer();
 
-  let current: LexicalIndexData | null = null;
-  let building: { done: Promise<void> } | null = null;
-  let lastStart = -Infinity;
+  let state: LexicalState | null = null;
+  /** N and the token total as FTS5's averages record has them at the state's log position. */
+  let statRows = 0;
+  let statTokens = 0;
+  let job: Job | null = null;
+  let merging = false;
   let lastFailure = -Infinity;
   let builds = 0;
+  let buildMs = 0;
   let closed = false;
-  // Scratch space for one query, sized to the current snapshot.
-  let acc = new Float64Array(0);
-  let seen = new Uint8Array(0);
-  let mask = new Uint8Array(0);
-  let touched = new Uint32Array(0);
+  const scorer = createScorer();
 
-  const publish = (s: LexicalIndexData): void => {
-    current = s;
+  const fail = (err: unknown): void => {
+    // A half-applied change cannot be trusted: drop the index; the next load reads the table again (at once when
+    // the log was merely pruned past it, after the retry gap when something went wrong).
+    state = null;
+    if (!(err instanceof LogGap)) lastFailure = performance.now();
+    opts.onError?.(err);
+  };
+
+  function* load(concurrent: boolean): Generator<void, void, void> {
+    const t0 = performance.now();
+    const data = yield* buildLexicalIndex(store.lexicalSnapshot({ concurrent }));
+    const { segments, df } = yield* splitByCollection(data);
+    state = LexicalState.fromLoad(stateOpts, segments, df, data.head);
+    statRows = data.nRow;
+    statTokens = data.tokens;
     builds++;
-    if (acc.length < s.rowids.length) {
-      acc = new Float64Array(s.rowids.length);
-      seen = new Uint8Array(s.rowids.length);
-      mask = new Uint8Array(s.rowids.length);
-      touched = new Uint32Array(s.rowids.length);
-    }
-    opts.onBuilt?.({ rows: s.rowids.length, terms: s.terms.size, postings: s.slot.length, ms: s.buildMs });
-  };
+    buildMs = performance.now() - t0;
+    const st = state.stats();
+    opts.onBuilt?.({ rows: state.live, terms: state.df.size, postings: st.postings, ms: buildMs });
+  }
 
-  const buildSync = (): void => {
-    if (closed || performance.now() - lastFailure < minGap) return;
+  function* catchUp(concurrent: boolean): Generator<void, void, void> {
+    const s = state!;
+    const delta = store.lexicalChanges(s.head, { concurrent });
     try {
-      const steps = buildLexicalIndex(store.lexicalSnapshot());
-      for (;;) {
-        const r = steps.next();
-        if (r.done) {
-          publish(r.value);
-          return;
-        }
+      if (!delta.complete) throw new LogGap();
+      let i = 0;
+      for (const ch of delta.changes()) {
+        s.remove(ch.rowId);
+        if (ch.row) s.add(ch.rowId, ch.row.collection ?? NO_COLLECTION, ch.row.length, ch.row.postings);
+        if (++i % 256 === 0) yield;
       }
-    } catch (err) {
-      // Not fatal: FTS5 answers instead, and the build is retried after the gap.
-      lastFailure = performance.now();
-      opts.onError?.(err);
+      for (const col of s.collections.values()) s.flushIfFull(col);
+      if (s.live !== delta.rows || s.tokens !== delta.tokens) {
+        throw new Error(`lexical statistics disagree after the change log: ${s.live} rows and ${s.tokens} tokens held, ${delta.rows} and ${delta.tokens} in FTS5`);
+      }
+      statRows = delta.rows;
+      statTokens = delta.tokens;
+      s.head = delta.head;
+      s.applied += delta.count;
+    } finally {
+      delta.release();
     }
-  };
+  }
 
-  const startBackground = (): void => {
-    if (building || closed) return;
-    lastStart = performance.now();
-    const done = new Promise<void>((resolve) => {
-      let steps: ReturnType<typeof buildLexicalIndex>;
-      try {
-        steps = buildLexicalIndex(store.lexicalSnapshot({ concurrent: true }));
-      } catch (err) {
-        building = null;
-        opts.onError?.(err);
-        resolve();
-        return;
-      }
-      const step = (): void => {
-        if (closed) {
-          steps.return(undefined as never);
-          resolve();
-          return;
-        }
+  /** Runs `gen` in slices on the event loop; `syncNow` may finish it early. */
+  const startJob = (gen: Generator<void, void, void>): Job => {
+    let resolve!: () => void;
+    const j: Job = {
+      gen,
+      settled: false,
+      done: new Promise<void>((r) => (resolve = r)),
+      step() {
+        if (j.settled) return;
         try {
-          const r = steps.next();
-          if (r.done) {
-            if (!closed) publish(r.value);
-            building = null;
-            resolve();
-            return;
+          if (closed || !j.gen.next().done) {
+            if (closed) j.gen.return();
+            else return;
           }
-          setImmediate(step);
         } catch (err) {
-          building = null;
-          opts.onError?.(err);
-          resolve();
+          fail(err);
         }
-      };
-      setImmediate(step);
-    });
-    building = { done };
+        j.settled = true;
+        if (job === j) job = null;
+        resolve();
+        scheduleMerge();
+      },
+    };
+    const tick = (): void => {
+      j.step();
+      if (!j.settled) setImmediate(tick);
+    };
+    setImmediate(tick);
+    return (job = j);
   };
 
-  /** The snapshot if it matches the database now; otherwise null, after starting (or doing) a rebuild. */
-  const usable = (): LexicalIndexData | null => {
-    const sig = signature();
-    if (current && current.signature === sig) return current;
-    if (!background) {
-      buildSync();
-      return current && (current as LexicalIndexData).signature === sig ? current : null;
+  const runNow = (gen: Generator<void, void, void>): void => {
+    try {
+      finish(gen);
+    } catch (err) {
+      fail(err);
     }
-    const gap = Math.max(minGap, 2 * (current?.buildMs ?? 0));
-    if (!building && performance.now() - lastStart >= gap) startBackground();
-    return null;
+    scheduleMerge();
+  };
+
+  /** Merges while a plan is due: in the background one slice at a time, else at once. */
+  const scheduleMerge = (): void => {
+    if (merging || closed || !state) return;
+    const s = state;
+    const plan: MergePlan | null = s.planMerge();
+    if (!plan) return;
+    const gen = s.mergeBuild(plan);
+    if (!background) {
+      s.publishMerge(plan, finish(gen));
+      scheduleMerge();
+      return;
+    }
+    merging = true;
+    const tick = (): void => {
+      if (closed) return;
+      try {
+        const r = gen.next();
+        if (!r.done) {
+          setImmediate(tick);
+          return;
+        }
+        if (state === s) s.publishMerge(plan, r.value);
+      } catch (err) {
+        opts.onError?.(err);
+      }
+      merging = false;
+      scheduleMerge();
+    };
+    setImmediate(tick);
+  };
+
+  /** The state if it holds every logged change now; otherwise null, after starting (or doing) the work. */
+  const usable = (): LexicalState | null => {
+    if (job || closed) return null;
+    if (!state) {
+      if (performance.now() - lastFailure < minGap) return null;
+      if (background) startJob(load(true));
+      else runNow(load(false));
+      if (!state) return null;
+    }
+    const head = store.lexicalHead();
+    if (state.head === head) return state;
+    if (background && head - state.head > syncLimit) {
+      startJob(catchUp(true));
+      return null;
+    }
+    runNow(catchUp(false));
+    if (!state && !background && performance.now() - lastFailure >= minGap) runNow(load(false));
+    return state && state.head >= head ? state : null;
+  };
+
+  /** Finishes background work now. */
+  const drain = (): void => {
+    for (let j = job; j; j = job) while (!j.settled) j.step();
   };
 
   return {
@@ -184,93 +277,58 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
       const s = usable();
       if (!s) return null;
       const col = s.collections.get(collection);
-      if (col === undefined) return [];
+      if (col === undefined || collection === NO_COLLECTION) return [];
       // Tokenize as FTS5 would; a word that is several tokens makes a phrase, which needs positions.
       const looked = tokens(phrases.map((p) => p.term));
-      const wt = ftsWeight(w.title);
-      const wh = ftsWeight(w.heading);
-      const wb = ftsWeight(w.body);
-      const n = s.rowids.length;
-      if (allowed) {
-        for (const id of allowed) {
-          const slot = slotOf(s.rowids, id);
-          if (slot >= 0) mask[slot] = 1;
-        }
-      }
-      let nTouched = 0;
-      try {
-        for (let i = 0; i < phrases.length; i++) {
-          const toks = looked[i]!;
-          if (toks.length > 1) return null;
-          if (toks.length === 0) continue; // an empty phrase matches nothing and adds nothing
-          const t = s.terms.get(toks[0]!);
-          if (t === undefined) continue;
-          const from = s.start[t]!;
-          const to = s.start[t + 1]!;
-          const nHit = to - from;
-          let idf = Math.log((s.nRow - nHit + 0.5) / (nHit + 0.5));
-          if (idf <= 0) idf = 1e-6;
-          const mult = phrases[i]!.count * idf;
-          for (let p = from; p < to; p++) {
-            const slot = s.slot[p]!;
-            if (s.collectionOf[slot] !== col) continue;
-            if (allowed && mask[slot] === 0) continue;
-            const f = wt * s.tfTitle[p]! + wh * s.tfHeading[p]! + wb * s.tfBody[p]!;
-            if (seen[slot] === 0) {
-              seen[slot] = 1;
-              touched[nTouched++] = slot;
-            }
-            acc[slot] = acc[slot]! + (mult * (f * (K1 + 1))) / (f + s.lengthNorm[slot]!);
-          }
-        }
-        return topK(touched, nTouched, acc, s.rowids, limit);
-      } finally {
-        for (let i = 0; i < nTouched; i++) {
-          const slot = touched[i]!;
-          acc[slot] = 0;
-          seen[slot] = 0;
-        }
-        if (allowed) mask.fill(0, 0, n);
-      }
+      if (looked.some((t) => t.length > 1)) return null;
+      return scorer.score(s, col, { rows: statRows, tokens: statTokens }, phrases.map((p, i) => ({ term: looked[i]![0], count: p.count })), limit, w, allowed);
+    },
+    refresh() {
+      usable();
     },
     syncNow() {
-      const sig = signature();
-      if (!current || current.signature !== sig) buildSync();
+      if (closed) return;
+      drain();
+      usable();
+      drain();
     },
     async whenReady() {
       for (;;) {
         if (closed) return;
-        const sig = signature();
-        if (current && current.signature === sig) return;
-        if (!background) {
-          buildSync();
-          if (!current || current.signature !== (signature())) return;
+        if (job) {
+          await job.done;
+          if (!state) return; // the work failed (reported through onError)
           continue;
         }
-        if (!building) startBackground();
-        if (!building) return;
-        await building.done;
-        if (!current) return; // the build failed (reported through onError)
+        if (usable()) return;
+        if (!job) return;
       }
     },
     stats() {
-      const s = current;
-      const postings = s?.slot.length ?? 0;
-      const rows = s?.rowids.length ?? 0;
+      const s = state;
+      const st = s?.stats() ?? { segments: 0, mutableRows: 0, postings: 0, deletedRows: 0 };
+      let rowsHeld = 0;
+      for (const col of s?.collections.values() ?? []) for (const ref of col.segments) rowsHeld += ref.seg.ids.length;
       return {
         ready: s !== null,
-        building: building !== null,
-        rows,
-        terms: s?.terms.size ?? 0,
-        postings,
-        arrayBytes: postings * (4 + 2 + 2 + 2) + rows * (8 + 4 + 8) + (s?.start.length ?? 0) * 4 + acc.length * (8 + 1 + 1 + 4),
-        buildMs: s?.buildMs ?? 0,
+        building: job !== null,
+        rows: s?.live ?? 0,
+        terms: s?.df.size ?? 0,
+        postings: st.postings,
+        arrayBytes: st.postings * (4 + 2 + 2 + 2 + 4) + rowsHeld * (8 + 4 + 4 + 1 + 8) + scorer.scratchBytes(),
+        buildMs,
         builds,
+        segments: st.segments,
+        mutableRows: st.mutableRows,
+        deletedRows: st.deletedRows,
+        merges: s?.merges ?? 0,
+        applied: s?.applied ?? 0,
+        head: s?.head ?? 0,
       };
     },
     close() {
       closed = true;
-      current = null;
+      state = null;
       tokens.close();
     },
   };

@@ -183,6 +183,8 @@ export interface VectorStore {
 export interface LexicalSnapshot {
   /** The change signature (CollectionStore.changeSignature) at the moment of the read. */
   readonly signature: string;
+  /** The lexical change log's last position at the moment of the read (LexicalStore.lexicalHead). */
+  readonly head: number;
   /** Rows counted in the index's statistics (N). */
   readonly rows: number;
   /** Tokens over every row and field of the statistics. */
@@ -197,6 +199,38 @@ export interface LexicalSnapshot {
   collectionNames(): string[];
   /** Every occurrence of every term: grouped by term, within a term by row id. */
   postings(): Iterable<[term: string, rowId: number, field: LexicalField]>;
+  release(): void;
+}
+
+/** One row of the lexical index as it is now, after a change logged for it. */
+export interface LexicalRowChange {
+  rowId: number;
+  /** The row's fields and length now; null when the index holds no such row (deleted, or not yet swapped in). */
+  row: {
+    /** Its chunk's collection; null for a row whose chunk is gone (it still counts in the statistics). */
+    collection: string | null;
+    /** Tokens over all fields, as the index records it. */
+    length: number;
+    /** Every occurrence of every term in the row, in no particular order. */
+    postings: [term: string, field: LexicalField][];
+  } | null;
+}
+
+/**
+ * The changes to the lexical index since a position of its change log, read in one transaction: the rows
+ * changed since, each as it is now, and the statistics now. Iterate `changes()` once, then `release()`.
+ */
+export interface LexicalDelta {
+  /** The log position this delta brings a reader to. */
+  readonly head: number;
+  /** False when the log no longer holds every change since the position asked for (pruned): read a snapshot. */
+  readonly complete: boolean;
+  /** Rows counted in the index's statistics (N) and tokens over them, now. */
+  readonly rows: number;
+  readonly tokens: number;
+  /** How many distinct rows changed. */
+  readonly count: number;
+  changes(): Iterable<LexicalRowChange>;
   release(): void;
 }
 
@@ -215,6 +249,10 @@ export interface LexicalStore {
    * while other work goes on (only when `concurrentReads`).
    */
   lexicalSnapshot(opts?: { concurrent?: boolean }): LexicalSnapshot;
+  /** The lexical change log's last position: it moves whenever a row of the lexical index may have changed. */
+  lexicalHead(): number;
+  /** The rows changed after log position `since` (same `concurrent` as for snapshots). */
+  lexicalChanges(since: number, opts?: { concurrent?: boolean }): LexicalDelta;
   /** Whether a snapshot can be read beside ongoing writes (false for an in-memory database). */
   readonly concurrentReads: boolean;
   queryTokenizer(): QueryTokenizer;

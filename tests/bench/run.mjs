@@ -1,6 +1,7 @@
 // npm run bench: retrieval latency at 10k and 100k chunks, HNSW recall against exact search at 100k x 384, re-index,
-// ingest throughput, the HTTP load test, hostile inputs and the vector index changed in place (`npm run bench -- <part>`
-// runs one part: latency, hnsw, reindex, ingest, load, hostile, hostile-http, vector).
+// ingest throughput, the HTTP load test, hostile inputs, the vector and the lexical index changed in place
+// (`npm run bench -- <part>` runs one part: latency, hnsw, reindex, ingest, cranfield, load, hostile, hostile-http,
+// vector, lexical).
 // Prints Markdown tables for docs/benchmarks.md and writes the recall/latency chart next to it.
 import { execFileSync } from 'node:child_process';
 import { writeFileSync } from 'node:fs';
@@ -58,10 +59,27 @@ if (!only || only === 'reindex') {
   out.push(reindexMarkdown(r));
 }
 // The ingest and load benchmarks are scripts of their own (each can also be run alone); their Markdown joins this report.
-for (const [part, script] of [['ingest', 'ingest.mjs'], ['load', 'load.mjs'], ['hostile', 'hostile.mjs'], ['hostile-http', 'hostile-http.mjs'], ['vector', 'vector-change.mjs']]) {
+for (const [part, script, flags = []] of [
+  ['ingest', 'ingest.mjs'],
+  ['cranfield', 'ingest-cranfield.mjs'],
+  ['load', 'load.mjs'],
+  ['hostile', 'hostile.mjs'],
+  ['hostile-http', 'hostile-http.mjs'],
+  ['vector', 'vector-change.mjs', ['--expose-gc']],
+  ['lexical', 'lexical-change.mjs', ['--expose-gc']],
+]) {
   if (only && only !== part) continue;
   log(`${part}: tests/bench/${script}`);
-  out.push(`\n### ${{ ingest: 'Ingest', load: 'Load', hostile: 'Hostile inputs', 'hostile-http': 'Hostile inputs through the upload API', vector: 'Vector index changed in place' }[part]}\n`);
-  out.push(execFileSync(process.execPath, [path.join(root, 'tests', 'bench', script)], { encoding: 'utf8', stdio: ['ignore', 'pipe', 'inherit'], maxBuffer: 64 * 2 ** 20 }).trim());
+  const titles = {
+    ingest: 'Ingest',
+    cranfield: 'Ingest, Cranfield as text files',
+    load: 'Load',
+    hostile: 'Hostile inputs',
+    'hostile-http': 'Hostile inputs through the upload API',
+    vector: 'Vector index changed in place',
+    lexical: 'Lexical index during changes',
+  };
+  out.push(`\n### ${titles[part]}\n`);
+  out.push(execFileSync(process.execPath, [...flags, path.join(root, 'tests', 'bench', script)], { encoding: 'utf8', stdio: ['ignore', 'pipe', 'inherit'], maxBuffer: 64 * 2 ** 20 }).trim());
 }
 process.stdout.write(`${out.join('\n')}\n`);

@@ -7,10 +7,12 @@ import { createLexicalMemory, type LexicalMemory } from '../../src/retrieve/lexi
 import { phraseCounts, toWeightedMatch, type WeightedTerm } from '../../src/retrieve/query-text.js';
 import { DEFAULT_RM3 } from '../../src/retrieve/rm3.js';
 import { createRetriever } from '../../src/retrieve/retriever.js';
+import { createDocumentApi } from '../../src/runtime.js';
 import { openStore, type FtsWeights, type Repository, type SqliteStore, type VectorIndexes } from '../../src/store/index.js';
+import { sqliteLexical } from '../../src/store/sqlite/lexical.js';
 import { tempRuntime } from '../fixtures/runtime.js';
 import { mulberry32 } from '../fixtures/random.js';
-import { waitFor } from '../fixtures/wait.js';
+import { waitFor, withDeadline } from '../fixtures/wait.js';
 
 // The in-memory index must rank exactly as the FTS5 path: the reference is SQLite's own FTS5 bm25() through
 // repo.searchFts (itself checked against Robertson and Zaragoza's BM25 in tests/store/bm25.test.ts). Every
@@ -174,24 +176,59 @@ describe('in-memory BM25 index against FTS5', () => {
     }
   });
 
-  it('follows the database: a changed collection is rebuilt before it answers, deletions included', () => {
+  it('follows the database change by change: an added, then deleted, rows are applied in place before it answers, never by reading the table again', () => {
     generate(repo, 3, 60);
     const q = [{ term: 'ferry', weight: 1 }, { term: 'timetable', weight: 2 }];
     compare('trams', q, 6, 20, WEIGHTS[0]!);
-    const builds = mem.stats().builds;
+    expect(mem.stats().builds).toBe(1);
+    const applied = mem.stats().applied;
     addDoc(repo, 'trams', 'new', 'Ferry timetable', [{ heading: ['Ferry timetable'], text: 'The ferry timetable changes at the weekend.' }]);
     compare('trams', q, 6, 20, WEIGHTS[0]!);
-    expect(mem.stats().builds).toBe(builds + 1);
+    expect(mem.stats().applied).toBe(applied + 1);
     // Deleting rows changes the row count and lengths both engines read (tests/store/lexical-statistics.test.ts
     // checks them against a fresh ingest), so the scores still agree.
     for (let d = 0; d < 30; d += 3) repo.deleteDocument(`d${d}`);
     repo.deleteDocument('new');
     compare('trams', q, 6, 20, WEIGHTS[0]!);
     compare('ferries', q, 6, 20, WEIGHTS[2]!);
-    // A query that changes nothing does not rebuild.
-    const after = mem.stats().builds;
+    expect(mem.stats().builds).toBe(1);
+    expect(mem.stats().deletedRows + mem.stats().mutableRows).toBeGreaterThan(0);
+    // A query that changes nothing applies nothing.
+    const after = mem.stats().applied;
     compare('trams', q, 6, 20, WEIGHTS[1]!);
-    expect(mem.stats().builds).toBe(after);
+    expect(mem.stats().applied).toBe(after);
+  });
+
+  it('reads the table again, at once, when the change log was pruned past what it holds', () => {
+    generate(repo, 4, 40);
+    const q = [{ term: 'depot', weight: 1 }, { term: 'refund', weight: 2 }];
+    compare('trams', q, 6, 20, WEIGHTS[0]!);
+    addDoc(repo, 'trams', 'gap', 'Depot refund', [{ heading: ['Depot refund'], text: 'Refund desk at the depot.' }]);
+    // What a writer opening the store does to entries older than it keeps (store/sqlite/lexical.ts).
+    repo.db.prepare('DELETE FROM lexical_log').run();
+    compare('trams', q, 6, 20, WEIGHTS[0]!);
+    expect(mem.stats().builds).toBe(2);
+  });
+
+  it('is kept short: a writer opening the store drops entries older than it keeps, and a reader still behind them reads the table again', () => {
+    generate(repo, 8, 30);
+    const head = repo.lexicalHead();
+    expect(head).toBeGreaterThan(20);
+    sqliteLexical(repo.db, { logKeep: 10 });
+    const kept = repo.db.prepare('SELECT count(*) FROM lexical_log').pluck().get() as number;
+    expect(kept).toBe(10);
+    expect(repo.lexicalHead()).toBe(head);
+    const complete = (since: number): boolean => {
+      const d = repo.lexicalChanges(since);
+      try {
+        return d.complete;
+      } finally {
+        d.release();
+      }
+    };
+    expect(complete(0)).toBe(false);
+    expect(complete(head - 10)).toBe(true);
+    expect(complete(head - 11)).toBe(false);
   });
 
   it('declines a word FTS5 splits into a phrase of several tokens (the caller then asks FTS5)', () => {
@@ -250,14 +287,38 @@ describe('retriever with the in-memory lexical engine', () => {
       expect(mem.stats().building).toBe(true);
       await mem.whenReady();
       expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), want, 30);
-      // A write makes it stale: no answer from the old index, then the rebuilt one agrees with FTS5 again.
+      // One written document is applied inside the next query, which then agrees with FTS5 at once.
       addDoc(repo, 'trams', 'late', 'Depot refund', [{ heading: ['Depot refund'], text: 'Depot refund desk hours.' }]);
-      expect(mem.search('trams', q, 30, WEIGHTS[0]!)).toBeNull();
-      await mem.whenReady();
       const again = repo.searchFts('trams', toWeightedMatch([{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }], { maxRepeat: 6 })!, 30, WEIGHTS[0]!);
       expect(again.map((h) => h.chunkId)).toContain(repo.chunksOfDocuments(['late'])[0]!.id);
       expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), again, 30);
-      expect(mem.stats().builds).toBe(2);
+      expect(mem.stats().builds).toBe(1);
+    } finally {
+      mem.close();
+      repo.close();
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+
+  it('applies a long run of changes in the background and never answers from a half-applied one', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-lexmem-'));
+    const repo = openStore(path.join(dir, 'store.db'));
+    const mem = createLexicalMemory(repo, { background: true, minRebuildGapMs: 0, syncLimit: 5 });
+    try {
+      for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
+      generate(repo, 5, 50);
+      await mem.whenReady();
+      const terms = [{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }];
+      const q = phraseCounts(terms, { maxRepeat: 6 });
+      for (let d = 0; d < 50; d += 2) repo.deleteDocument(`d${d}`);
+      generate(repo, 6, 40);
+      // More logged changes than a query applies itself: FTS5 answers until all of them are in.
+      expect(mem.search('trams', q, 30, WEIGHTS[0]!)).toBeNull();
+      expect(mem.stats().building).toBe(true);
+      await mem.whenReady();
+      const want = repo.searchFts('trams', toWeightedMatch(terms, { maxRepeat: 6 })!, 30, WEIGHTS[0]!);
+      expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), want, 30);
+      expect(mem.stats().builds).toBe(1);
     } finally {
       mem.close();
       repo.close();
@@ -291,6 +352,26 @@ describe('retriever with the in-memory lexical engine', () => {
       expect(after.map((h) => h.chunkId)).toEqual(first.map((h) => h.chunkId));
       after.forEach((h, i) => expect(h.score).toBeCloseTo(first[i]!.score, 9));
     } finally {
+      t.cleanup();
+    }
+  });
+
+  it('applies the rows of a finished upload job when the job ends, before any query, without reading the table again', async () => {
+    const t = await tempRuntime({ retrieval: { lexicalEngine: 'memory' } });
+    const { queue, documents } = createDocumentApi(t.rt, 'thread');
+    try {
+      const index = t.rt.lexicalIndex!;
+      await index.whenReady();
+      expect(index.stats().builds).toBe(1);
+      const out = await documents.upload('c', 'ferry-bikes.md', new TextEncoder().encode('# Bikes on the ferry\n\nFolding bikes travel free on the Quarrel Lane ferry.'));
+      expect(out.status).toBe('queued');
+      await withDeadline(queue.idle(), { what: 'the upload job to finish', timeoutMs: 20_000 });
+      // The job thread wrote the rows; this thread heard the job end and applied them from the change log.
+      expect(index.stats().head).toBe(t.rt.repo.lexicalHead());
+      expect(index.stats().applied).toBeGreaterThan(0);
+      expect(index.stats().builds).toBe(1);
+    } finally {
+      await queue.close();
       t.cleanup();
     }
   });

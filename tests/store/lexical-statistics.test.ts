@@ -1,8 +1,9 @@
-import { mkdirSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
+import fc from 'fast-check';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { createLexicalMemory } from '../../src/retrieve/lexical-memory.js';
+import { createLexicalMemory, type LexicalMemory } from '../../src/retrieve/lexical-memory.js';
 import { phraseCounts, toWeightedMatch, type WeightedTerm } from '../../src/retrieve/query-text.js';
 import type { Runtime } from '../../src/runtime.js';
 import type { FtsWeights } from '../../src/store/index.js';
@@ -211,5 +212,83 @@ describe('lexical statistics after changes in place', () => {
       });
       expect(want.fts5.some((h) => h.length > 0)).toBe(true);
     }
+  });
+
+  it('rank alike in an in-memory index kept through a random sequence of adds, updates, renames, deletes, incremental and full re-indexes and merges, in two collections', async () => {
+    // One index follows the store from the start, by its change log alone: tiny mutable segments and pairwise
+    // merges so that a short sequence turns rows into segments and merges them many times over.
+    type Op = { kind: 'add' | 'update' | 'rename' | 'delete' | 'reindex' | 'full'; col: 0 | 1; pick: number; seed: number };
+    const opArb: fc.Arbitrary<Op> = fc.record({
+      kind: fc.constantFrom<Op['kind']>('add', 'add', 'update', 'rename', 'delete', 'reindex', 'reindex', 'full'),
+      col: fc.constantFrom<0 | 1>(0, 1),
+      pick: fc.nat(1000),
+      seed: fc.nat(),
+    });
+    const names = ['c', 'd'] as const;
+    const seen = { merges: 0, kinds: new Set<string>() };
+    await fc.assert(
+      fc.asyncProperty(fc.array(opArb, { minLength: 12, maxLength: 24 }), async (ops) => {
+        const folders = names.map((n) => {
+          const dir = path.join(work, `run-${Math.random().toString(36).slice(2)}`, n);
+          mkdirSync(dir, { recursive: true });
+          return dir;
+        });
+        let next = 0;
+        const write = (col: number, seed: number, name = `notice-${next++}.md`): void => writeFileSync(path.join(folders[col]!, name), notice(mulberry32(seed), seed % 100));
+        for (let i = 0; i < 6; i++) write(i % 2, 1000 + i);
+        const rt = await runtime();
+        for (const c of [0, 1]) await rt.ingestor.ingestPath(folders[c]!, { collection: names[c]! });
+        const mem: LexicalMemory = createLexicalMemory(rt.repo, { mutableRows: 3, mergeFactor: 2 });
+        try {
+          const queries = Array.from({ length: 8 }, (_, i) => randomQuery(mulberry32(i + 1)));
+          const check = (what: string): void => {
+            const keys = chunkKeys(rt);
+            for (const c of names) {
+              for (const q of queries) {
+                const want = rt.repo.searchFts(c, toWeightedMatch(q, { maxRepeat: 6 })!, 50, WEIGHTS).map((h) => ({ key: keys.get(h.chunkId)!, score: h.score }));
+                const hits = mem.search(c, phraseCounts(q, { maxRepeat: 6 }), 50, WEIGHTS);
+                expect(hits, `${what}: the in-memory index answers`).not.toBeNull();
+                expectSameRanking(hits!.map((h) => ({ key: keys.get(h.chunkId)!, score: h.score })), want, 50, `${what}, ${c}, ${JSON.stringify(q.map((t) => t.term))}`);
+              }
+            }
+          };
+          check('after the first ingest');
+          for (const [i, op] of ops.entries()) {
+            const folder = folders[op.col]!;
+            const present = readdirSync(folder).sort();
+            const target = present[op.pick % Math.max(1, present.length)];
+            if (op.kind === 'add' || !target) write(op.col, op.seed);
+            else if (op.kind === 'update') write(op.col, op.seed, target);
+            else if (op.kind === 'rename') writeFileSync(path.join(folder, `renamed-${next++}.md`), readFileSync(path.join(folder, target))), rmSync(path.join(folder, target));
+            else if (op.kind === 'delete') rmSync(path.join(folder, target));
+            else await rt.ingestor.reindex({ collection: names[op.col]!, full: op.kind === 'full' });
+            seen.kinds.add(op.kind);
+            if (op.kind === 'reindex' || op.kind === 'full') check(`step ${i + 1} (${op.kind})`);
+          }
+          for (const c of [0, 1]) await rt.ingestor.reindex({ collection: names[c]! });
+          check('at the end');
+          expect(mem.stats().builds, 'loaded once, then only changes applied').toBe(1);
+          seen.merges += mem.stats().merges;
+          // And as a fresh ingest of the final folders, read whole by a new index.
+          const fresh = await runtime();
+          for (const c of [0, 1]) await fresh.ingestor.ingestPath(folders[c]!, { collection: names[c]! });
+          for (const c of names) {
+            const got = rankAll(rt, c, queries, 1000);
+            const want = rankAll(fresh, c, queries, 1000);
+            const keys = chunkKeys(rt);
+            queries.forEach((q, i) => {
+              const hits = mem.search(c, phraseCounts(q, { maxRepeat: 6 }), 1000, WEIGHTS)!.map((h) => ({ key: keys.get(h.chunkId)!, score: h.score }));
+              expectSameRanking(hits, want.memory[i]!, 1000, `kept index against a fresh ingest, ${c}, query ${i}`);
+              expectSameRanking(got.memory[i]!, want.memory[i]!, 1000, `reloaded index against a fresh ingest, ${c}, query ${i}`);
+            });
+          }
+        } finally {
+          mem.close();
+        }
+      }),
+      { seed: 2026, numRuns: 5 },
+    );
+    expect(seen.merges, 'segments were merged along the way').toBeGreaterThan(0);
+    for (const kind of ['add', 'update', 'rename', 'delete', 'reindex', 'full']) expect([...seen.kinds], kind).toContain(kind);
   });
 });

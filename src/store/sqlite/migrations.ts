@@ -230,4 +230,24 @@ export const MIGRATIONS: readonly Migration[] = [
 
   CREATE INDEX documents_by_content ON documents(collection, content_hash);
   `,
+  // 9: the lexical change log. Every chunk row inserted, deleted or moved to another document appends its id, so an
+  // in-memory copy of the lexical index (src/retrieve/lexical-memory.ts) can follow the database by re-reading just
+  // those rows, in this process or another (a CLI ingest, the job thread), instead of rebuilding whole. Triggers
+  // on chunks rather than code in the writers: every path that changes a chunk is logged, a cascade included.
+  // AUTOINCREMENT so a position in the log is never handed out twice, even after old entries are pruned.
+  `
+  CREATE TABLE lexical_log (
+    seq INTEGER PRIMARY KEY AUTOINCREMENT,
+    chunk_id INTEGER NOT NULL
+  );
+  CREATE TRIGGER lexical_log_chunk_insert AFTER INSERT ON chunks BEGIN
+    INSERT INTO lexical_log (chunk_id) VALUES (new.id);
+  END;
+  CREATE TRIGGER lexical_log_chunk_delete AFTER DELETE ON chunks BEGIN
+    INSERT INTO lexical_log (chunk_id) VALUES (old.id);
+  END;
+  CREATE TRIGGER lexical_log_chunk_move AFTER UPDATE OF document_id ON chunks BEGIN
+    INSERT INTO lexical_log (chunk_id) VALUES (new.id);
+  END;
+  `,
 ];

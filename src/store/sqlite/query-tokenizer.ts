@@ -1,5 +1,5 @@
 import Database from 'better-sqlite3';
-import type { QueryTokenizer } from '../types.js';
+import type { LexicalField, QueryTokenizer } from '../types.js';
 
 /**
  * FTS5's tokens for query words, from a private in-memory FTS5 table with the store's tokenizer: each word
@@ -30,4 +30,32 @@ export function createQueryTokenizer(spec: string): QueryTokenizer {
     return words.map((w) => cache.get(w)!);
   };
   return Object.assign(fn, { close: () => mem.close() });
+}
+
+/** The postings of whole rows (title, heading, body), tokenized exactly as the lexical index tokenizes them. */
+export interface RowTokenizer {
+  (rows: readonly [title: string, heading: string, body: string][]): [term: string, field: LexicalField][][];
+  close(): void;
+}
+
+/**
+ * FTS5's postings of rows, from a private in-memory FTS5 table of the store's three columns and tokenizer: the
+ * rows are inserted, fts5vocab lists every instance with its column, the table is emptied again.
+ */
+export function createRowTokenizer(spec: string): RowTokenizer {
+  const mem = new Database(':memory:');
+  // Contentless, so that emptying it is one 'delete-all' command rather than tokenizing every row again.
+  mem.exec(`CREATE VIRTUAL TABLE tok USING fts5(title, heading, body, content='', tokenize='${spec.replace(/'/g, "''")}');
+    CREATE VIRTUAL TABLE tok_instance USING fts5vocab(tok, instance);`);
+  const insert = mem.prepare('INSERT INTO tok (rowid, title, heading, body) VALUES (?, ?, ?, ?)');
+  const read = mem.prepare('SELECT doc, term, col FROM tok_instance').raw();
+  const clear = mem.prepare("INSERT INTO tok (tok) VALUES ('delete-all')");
+  const run = mem.transaction((rows: readonly [string, string, string][]) => {
+    rows.forEach((r, i) => insert.run(i + 1, r[0], r[1], r[2]));
+    const out: [string, LexicalField][][] = rows.map(() => []);
+    for (const [doc, term, col] of read.all() as [number, string, LexicalField][]) out[doc - 1]!.push([term, col]);
+    clear.run();
+    return out;
+  });
+  return Object.assign((rows: readonly [string, string, string][]) => (rows.length === 0 ? [] : run(rows)), { close: () => mem.close() });
 }

@@ -1,0 +1,247 @@
+// The changing part of the in-memory lexical index (lexical-memory.ts): per collection, a list of immutable
+// segments with deletion markers and one small mutable segment; over every collection, the statistics BM25 reads
+// (N, the token total and each term's document frequency, all over the whole table as FTS5 counts them) and
+// where each row lives.
+//
+// A row added or updated goes to its collection's mutable segment; a row removed is marked deleted where it is,
+// and its terms leave the document frequencies at once (through the segment's forward lists). When the mutable
+// segment fills it becomes an immutable segment; segments of one size tier are merged in the background (a merge
+// reads only immutable data, and its result is published in one step, with any rows deleted meanwhile marked).
+// Every change is applied between two queries (JavaScript runs one at a time), and a query answers only when the
+// whole log up to the database's head has been applied: it never sees half a change.
+
+import { buildSegment, checkedTf, finish, mergeSource, type RowSource, type Segment } from './lexical-segment.js';
+
+/** An immutable segment in use: its deletion markers and the length part of BM25's denominator, cached per avgdl. */
+export interface SegmentRef {
+  readonly seg: Segment;
+  readonly deleted: Uint8Array;
+  live: number;
+  normAvgdl: number;
+  norm: Float64Array | null;
+}
+
+export interface MutableRow {
+  id: number;
+  length: number;
+  terms: Map<string, [title: number, heading: number, body: number]>;
+  deleted: boolean;
+}
+
+export interface CollectionIndex {
+  readonly name: string;
+  segments: SegmentRef[];
+  mutable: MutableRow[];
+  /** Term → positions in `mutable`. */
+  mutablePostings: Map<string, number[]>;
+  /**
+   * Bumped when the list of segments changes (a flush or a merge): the query's slot table is rebuilt then, and
+   * only extended while rows are appended to the mutable segment (deletions are read from the markers).
+   */
+  version: number;
+}
+
+interface Location {
+  col: CollectionIndex;
+  /** The segment holding the row, or null for the mutable segment. */
+  ref: SegmentRef | null;
+  r: number;
+}
+
+export interface StateOptions {
+  /** Rows the mutable segment takes before it becomes an immutable segment. */
+  mutableRows: number;
+  /** Segments of one size tier that are merged into one. */
+  mergeFactor: number;
+}
+
+export interface MergePlan {
+  col: CollectionIndex;
+  inputs: SegmentRef[];
+}
+
+const newRef = (seg: Segment, deleted = new Uint8Array(seg.ids.length)): SegmentRef => {
+  let live = 0;
+  for (let r = 0; r < seg.ids.length; r++) if (deleted[r] === 0) live++;
+  return { seg, deleted, live, normAvgdl: NaN, norm: null };
+};
+
+export class LexicalState {
+  readonly collections = new Map<string, CollectionIndex>();
+  readonly df = new Map<string, number>();
+  private readonly where = new Map<number, Location>();
+  /** Rows present (must equal FTS5's N) and their tokens. */
+  live = 0;
+  tokens = 0;
+  head = 0;
+  merges = 0;
+  applied = 0;
+
+  constructor(private readonly opts: StateOptions) {}
+
+  /** The first load: one segment per collection. */
+  static fromLoad(opts: StateOptions, segments: Map<string, Segment>, df: Map<string, number>, head: number): LexicalState {
+    const s = new LexicalState(opts);
+    for (const [term, n] of df) s.df.set(term, n);
+    for (const [name, seg] of segments) {
+      const col = s.collection(name);
+      if (seg.ids.length === 0) continue;
+      const ref = newRef(seg);
+      col.segments.push(ref);
+      for (let r = 0; r < seg.ids.length; r++) {
+        s.where.set(seg.ids[r]!, { col, ref, r });
+        s.tokens += seg.lengths[r]!;
+      }
+      s.live += seg.ids.length;
+    }
+    s.head = head;
+    return s;
+  }
+
+  /** Where a row lives now. */
+  locate(id: number): Readonly<Location> | undefined {
+    return this.where.get(id);
+  }
+
+  collection(name: string): CollectionIndex {
+    let col = this.collections.get(name);
+    if (!col) this.collections.set(name, (col = { name, segments: [], mutable: [], mutablePostings: new Map(), version: 0 }));
+    return col;
+  }
+
+  private dfAdd(term: string, d: number): void {
+    const n = (this.df.get(term) ?? 0) + d;
+    if (n > 0) this.df.set(term, n);
+    else this.df.delete(term);
+  }
+
+  /** Takes a row out wherever it is; false if the index did not hold it. */
+  remove(id: number): boolean {
+    const at = this.where.get(id);
+    if (!at) return false;
+    this.where.delete(id);
+    if (at.ref) {
+      at.ref.deleted[at.r] = 1;
+      at.ref.live--;
+      for (let i = at.ref.seg.fwdStart[at.r]!; i < at.ref.seg.fwdStart[at.r + 1]!; i++) this.dfAdd(at.ref.seg.termList[at.ref.seg.fwd[i]!]!, -1);
+      this.tokens -= at.ref.seg.lengths[at.r]!;
+    } else {
+      const row = at.col.mutable[at.r]!;
+      row.deleted = true;
+      for (const term of row.terms.keys()) this.dfAdd(term, -1);
+      this.tokens -= row.length;
+    }
+    this.live--;
+    return true;
+  }
+
+  /** Adds a row (after `remove` of any older version) to its collection's mutable segment. */
+  add(id: number, collection: string, length: number, postings: Iterable<[string, 'title' | 'heading' | 'body']>): void {
+    const col = this.collection(collection);
+    const terms = new Map<string, [number, number, number]>();
+    for (const [term, field] of postings) {
+      let tf = terms.get(term);
+      if (!tf) terms.set(term, (tf = [0, 0, 0]));
+      const k = field === 'title' ? 0 : field === 'heading' ? 1 : 2;
+      tf[k] = checkedTf(tf[k] + 1);
+    }
+    const r = col.mutable.length;
+    col.mutable.push({ id, length, terms, deleted: false });
+    for (const term of terms.keys()) {
+      this.dfAdd(term, 1);
+      let list = col.mutablePostings.get(term);
+      if (!list) col.mutablePostings.set(term, (list = []));
+      list.push(r);
+    }
+    this.where.set(id, { col, ref: null, r });
+    this.live++;
+    this.tokens += length;
+  }
+
+  /** Turns a full mutable segment into an immutable one (a few hundred rows: done at once). */
+  flushIfFull(col: CollectionIndex, force = false): void {
+    if (!force && col.mutable.length < this.opts.mutableRows) return;
+    const rows = col.mutable.filter((m) => !m.deleted);
+    if (rows.length > 0) {
+      rows.sort((a, b) => a.id - b.id);
+      const src: RowSource = { count: rows.length, id: (i) => rows[i]!.id, length: (i) => rows[i]!.length, terms: (i) => mutableTerms(rows[i]!) };
+      const ref = newRef(finish(buildSegment(src)));
+      col.segments.push(ref);
+      for (let r = 0; r < rows.length; r++) this.where.set(rows[r]!.id, { col, ref, r });
+    }
+    col.mutable = [];
+    col.mutablePostings = new Map();
+    col.version++;
+  }
+
+  /**
+   * The next merge: `mergeFactor` segments of one size tier (tier = floor(log_factor(live rows / mutableRows)))
+   * of one collection, smallest tier first; or one segment more than a third deleted, to reclaim it.
+   */
+  planMerge(): MergePlan | null {
+    const f = this.opts.mergeFactor;
+    for (const col of this.collections.values()) {
+      const tiers = new Map<number, SegmentRef[]>();
+      for (const ref of col.segments) {
+        if (ref.live * 3 < ref.seg.ids.length * 2) return { col, inputs: [ref] };
+        const tier = Math.max(0, Math.floor(Math.log(Math.max(1, ref.live) / this.opts.mutableRows) / Math.log(f)));
+        let list = tiers.get(tier);
+        if (!list) tiers.set(tier, (list = []));
+        list.push(ref);
+      }
+      for (const tier of [...tiers.keys()].sort((a, b) => a - b)) {
+        const list = tiers.get(tier)!;
+        if (list.length >= f) return { col, inputs: list.slice(0, f) };
+      }
+    }
+    return null;
+  }
+
+  /** Builds a merge's segment from the inputs' live rows as they are now; yields between slices. */
+  mergeBuild(plan: MergePlan): Generator<void, Segment, void> {
+    return buildSegment(mergeSource(plan.inputs.map((ref) => ({ seg: ref.seg, deleted: ref.deleted.slice() }))));
+  }
+
+  /** Swaps a merge's inputs for its result in one step; rows deleted or moved during the merge are marked deleted. */
+  publishMerge(plan: MergePlan, seg: Segment): void {
+    const inputs = new Set(plan.inputs);
+    if (!plan.inputs.every((ref) => plan.col.segments.includes(ref))) return; // the collection was reloaded meanwhile
+    const first = plan.col.segments.indexOf(plan.inputs[0]!);
+    plan.col.segments = plan.col.segments.filter((x) => !inputs.has(x));
+    plan.col.version++;
+    this.merges++;
+    if (seg.ids.length === 0) return;
+    const deleted = new Uint8Array(seg.ids.length);
+    const ref = newRef(seg, deleted);
+    for (let r = 0; r < seg.ids.length; r++) {
+      const at = this.where.get(seg.ids[r]!);
+      if (at && at.ref && inputs.has(at.ref)) this.where.set(seg.ids[r]!, { col: plan.col, ref, r });
+      else {
+        deleted[r] = 1;
+        ref.live--;
+      }
+    }
+    plan.col.segments.splice(Math.min(first, plan.col.segments.length), 0, ref);
+  }
+
+  stats(): { segments: number; mutableRows: number; postings: number; deletedRows: number } {
+    let segments = 0;
+    let mutableRows = 0;
+    let postings = 0;
+    let deletedRows = 0;
+    for (const col of this.collections.values()) {
+      segments += col.segments.length;
+      mutableRows += col.mutable.length;
+      for (const ref of col.segments) {
+        postings += ref.seg.local.length;
+        deletedRows += ref.seg.ids.length - ref.live;
+      }
+    }
+    return { segments, mutableRows, postings, deletedRows };
+  }
+}
+
+function* mutableTerms(row: MutableRow): Generator<[string, number, number, number]> {
+  for (const [term, tf] of row.terms) yield [term, tf[0], tf[1], tf[2]];
+}
+
