@@ -1,9 +1,10 @@
-// `sourcebound serve`: the HTTP service. Listens, seeds an empty store, loads the vector indexes, and shuts
-// down cleanly on SIGTERM or SIGINT.
+// `sourcebound serve`: the HTTP service. Holds the port with a stand-in while the runtime is built, then
+// listens, seeds an empty store, loads the vector indexes, and shuts down cleanly on SIGTERM or SIGINT.
 
 import { authEnforced, checkAuthConfig } from '../api/auth.js';
 import { createRuntime, createServer } from '../runtime.js';
 import { prepare } from './prepare.js';
+import { startStandIn } from './stand-in.js';
 import { EXIT, type CliContext } from './context.js';
 
 // How often a server started by an npm script checks that npm is still there.
@@ -13,7 +14,15 @@ export async function serve(ctx: CliContext): Promise<number> {
   const cfg = ctx.config();
   checkAuthConfig(cfg.auth, cfg.server.host);
   const logger = ctx.logger(cfg);
-  const rt = await createRuntime(cfg, logger);
+  // The port answers from the first moment: a stand-in holds it while the runtime is built.
+  const standIn = await startStandIn(cfg.server.host, cfg.server.port);
+  let rt: Awaited<ReturnType<typeof createRuntime>>;
+  try {
+    rt = await createRuntime(cfg, logger);
+  } catch (err) {
+    await standIn.close();
+    throw err;
+  }
   logger.info(
     { auth: authEnforced(cfg.auth, cfg.server.host) ? `required (${cfg.auth.keys.length} keys)` : 'off (loopback only)' },
     'access control',
@@ -50,7 +59,9 @@ export async function serve(ctx: CliContext): Promise<number> {
       if (process.ppid !== launcher) void shutdown('launcher exited');
     }, PARENT_CHECK_MS).unref();
   }
-  await app.listen({ host: cfg.server.host, port: cfg.server.port });
+  // The stand-in hands the port over (the same one when the configuration asked for any free port).
+  await standIn.close();
+  await app.listen({ host: cfg.server.host, port: standIn.port });
   try {
     await prepare(rt);
   } catch (err) {
