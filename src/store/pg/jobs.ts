@@ -31,8 +31,12 @@ const checkLease = (leaseMs: number): void => {
   if (!Number.isSafeInteger(leaseMs) || leaseMs < 1) throw new Error(`a lease of ${leaseMs} ms is not a positive whole number of milliseconds`);
 };
 
-/** A job is claimable when queued, or running under a lease that has expired. */
-const CLAIMABLE = "(state = 'queued' OR (state = 'running' AND lease_expires_at <= now()))";
+/**
+ * A job is claimable when queued, or running under a lease that has expired and with attempts left ($1: the most
+ * attempts, or NULL for no limit). The limit sits in the claim itself: a lease that runs out between failing the
+ * exhausted jobs and claiming must not hand one out again.
+ */
+const CLAIMABLE = "(state = 'queued' OR (state = 'running' AND lease_expires_at <= now() AND ($1::int IS NULL OR attempts < $1::int)))";
 
 export function pgJobs(pool: PgPool): AsyncJobStore {
   const finish = async (id: string, holder: string, state: 'succeeded' | 'failed', result: unknown, error: string | null): Promise<boolean> => {
@@ -63,6 +67,7 @@ export function pgJobs(pool: PgPool): AsyncJobStore {
     async claimNext(owner: JobOwner, opts) {
       checkLease(opts.leaseMs);
       const kinds = opts.kinds ? [...opts.kinds] : null;
+      const max = opts.maxAttempts ?? null;
       if (opts.maxAttempts !== undefined) {
         // Abandoned once too often: failed, not handed out again (a job that kills its worker would do so forever).
         await pool.query(
@@ -79,18 +84,18 @@ export function pgJobs(pool: PgPool): AsyncJobStore {
       for (let tries = 0; tries < 5; tries++) {
         const r = await pool.query(
           `WITH picked AS (
-             SELECT id FROM jobs WHERE ${CLAIMABLE} AND ($5::text[] IS NULL OR kind = ANY($5::text[]))
+             SELECT id FROM jobs WHERE ${CLAIMABLE} AND ($2::text[] IS NULL OR kind = ANY($2::text[]))
              ORDER BY created_at, id LIMIT 1 FOR UPDATE SKIP LOCKED
            )
-           UPDATE jobs j SET state = 'running', attempts = j.attempts + 1, started_at = now(), owner_pid = $1, owner_host = $2,
-             lease_holder = $3, heartbeat_at = now(), lease_expires_at = now() + $4 * interval '1 millisecond',
+           UPDATE jobs j SET state = 'running', attempts = j.attempts + 1, started_at = now(), owner_pid = $3, owner_host = $4,
+             lease_holder = $5, heartbeat_at = now(), lease_expires_at = now() + $6 * interval '1 millisecond',
              result = NULL, error = NULL
            FROM picked WHERE j.id = picked.id
            RETURNING j.*`,
-          [owner.pid, owner.host, owner.holder, opts.leaseMs, kinds],
+          [max, kinds, owner.pid, owner.host, owner.holder, opts.leaseMs],
         );
         if (r.rows[0]) return toJob(r.rows[0] as Row);
-        const left = await pool.query(`SELECT 1 FROM jobs WHERE ${CLAIMABLE} AND ($1::text[] IS NULL OR kind = ANY($1::text[])) LIMIT 1`, [kinds]);
+        const left = await pool.query(`SELECT 1 FROM jobs WHERE ${CLAIMABLE} AND ($2::text[] IS NULL OR kind = ANY($2::text[])) LIMIT 1`, [max, kinds]);
         if (left.rowCount === 0) return null;
       }
       return null;
