@@ -12,6 +12,7 @@ import type {
   JobOwner,
   JobRecord,
   JobState,
+  Lease,
   NewDocument,
 } from './types.js';
 
@@ -64,6 +65,16 @@ export interface AsyncJobStore {
   counts(): Promise<{ state: JobState; count: number }[]>;
 }
 
+/** Named leases (the re-index lock): one holder at a time, taken over once its holder stops renewing it. */
+export interface AsyncLeaseStore {
+  /** Takes the lease for `owner` when it is free, expired or already held by `owner`; else returns the live lease in the way. */
+  acquire(name: string, owner: JobOwner, ttlMs: number): Promise<{ acquired: true; lease: Lease } | { acquired: false; held: Lease }>;
+  /** Extends the lease if `holder` still holds it; false when it was lost. */
+  renew(name: string, holder: string, ttlMs: number): Promise<boolean>;
+  release(name: string, holder: string): Promise<void>;
+  get(name: string): Promise<Lease | null>;
+}
+
 /** Collections, documents and their versions, chunks, vectors and the change log. */
 export interface SystemOfRecord {
   readonly backend: 'postgres';
@@ -85,5 +96,6 @@ export interface SystemOfRecord {
   /** The last position of the change log (0 when empty). */
   changeHead(): Promise<number>;
   readonly jobs: AsyncJobStore;
+  readonly leases: AsyncLeaseStore;
   close(): Promise<void>;
 }

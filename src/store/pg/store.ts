@@ -4,6 +4,7 @@ import type { SystemOfRecord } from '../system-of-record.js';
 import { connectPool, type PgConnectOptions, type PgPool } from './connect.js';
 import { pgCorpus } from './corpus.js';
 import { pgJobs } from './jobs.js';
+import { pgLeases } from './leases.js';
 import { migratePg, type MigrationReport } from './migrations.js';
 
 export interface PgSystemOfRecord extends SystemOfRecord {
@@ -30,6 +31,7 @@ export async function openPgSystemOfRecord(url: string, opts: PgConnectOptions =
     pool,
     ...pgCorpus(pool),
     jobs: pgJobs(pool),
+    leases: pgLeases(pool),
     close: () => (closed ??= pool.end()),
   };
 }
