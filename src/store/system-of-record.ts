@@ -14,6 +14,8 @@ import type {
   JobState,
   Lease,
   NewDocument,
+  NewRating,
+  Rating,
 } from './types.js';
 
 /** One entry of the change log: a chunk that appeared or went, or a collection that was made. */
@@ -75,6 +77,13 @@ export interface AsyncLeaseStore {
   get(name: string): Promise<Lease | null>;
 }
 
+/** Staff ratings of answers from the reference desk. */
+export interface AsyncRatingStore {
+  add(r: NewRating): Promise<Rating>;
+  /** Oldest first; narrowed to one collection when given. */
+  list(opts?: { collection?: string }): Promise<Rating[]>;
+}
+
 /** Collections, documents and their versions, chunks, vectors and the change log. */
 export interface SystemOfRecord {
   readonly backend: 'postgres';
@@ -97,5 +106,6 @@ export interface SystemOfRecord {
   changeHead(): Promise<number>;
   readonly jobs: AsyncJobStore;
   readonly leases: AsyncLeaseStore;
+  readonly ratings: AsyncRatingStore;
   close(): Promise<void>;
 }

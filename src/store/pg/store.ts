@@ -5,6 +5,7 @@ import { connectPool, type PgConnectOptions, type PgPool } from './connect.js';
 import { pgCorpus } from './corpus.js';
 import { pgJobs } from './jobs.js';
 import { pgLeases } from './leases.js';
+import { pgRatings } from './ratings.js';
 import { migratePg, type MigrationReport } from './migrations.js';
 
 export interface PgSystemOfRecord extends SystemOfRecord {
@@ -32,6 +33,7 @@ export async function openPgSystemOfRecord(url: string, opts: PgConnectOptions =
     ...pgCorpus(pool),
     jobs: pgJobs(pool),
     leases: pgLeases(pool),
+    ratings: pgRatings(pool),
     close: () => (closed ??= pool.end()),
   };
 }
