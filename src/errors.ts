@@ -38,6 +38,7 @@ export const ERRORS = {
   },
   SB_ERR_LINK_INVALID: { status: 403, message: 'This file link is invalid or has expired; open the file again from the desk' },
   SB_ERR_UNKNOWN_FAILED_UPLOAD: { status: 404, message: 'No failed upload "%s" in this collection' },
+  SB_ERR_DATABASE_UNUSABLE: { status: 503, message: 'The PostgreSQL database cannot be used: %s' },
 } as const;
 
 export type ErrorCode = keyof typeof ERRORS;

@@ -10,6 +10,7 @@ import { fileURLToPath } from 'node:url';
 import type { FastifyInstance } from 'fastify';
 import { buildApp, type AnswerRequest as HttpAnswerRequest, type AppDeps } from './api/app.js';
 import { PACKAGE_ROOT, type Config } from './config/index.js';
+import { SourceboundError } from './errors.js';
 import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
 import { createIngestor, type DocumentLimits, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
@@ -59,6 +60,13 @@ export async function createRuntime(
   logger: Logger,
   opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder; processMetrics?: boolean } = {},
 ): Promise<Runtime> {
+  // The PostgreSQL system of record (src/store/pg/) is not on the query path yet: starting on SQLite instead
+  // would quietly write what the operator meant for PostgreSQL into a local file.
+  if (config.storage.backend !== 'sqlite') {
+    throw new SourceboundError('SB_ERR_CONFIG_INVALID', [
+      `  - storage.backend: "${config.storage.backend}" is not served by this release yet (its schema and writes exist, the query path reads SQLite only); use "sqlite"`,
+    ]);
+  }
   const paths = storePaths(config.dataDir);
   const store = openStore(paths.database);
   const repo: Repository = store;

@@ -38,6 +38,7 @@ describe('the error table', () => {
       SB_ERR_ORIGINAL_CHANGED: 409,
       SB_ERR_LINK_INVALID: 403,
       SB_ERR_UNKNOWN_FAILED_UPLOAD: 404,
+      SB_ERR_DATABASE_UNUSABLE: 503,
     });
   });
 

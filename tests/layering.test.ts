@@ -21,7 +21,7 @@ interface Analysis {
   edges: Map<string, string[]>;
   /** Each string literal that reads as SQL: file, line and the text. */
   sql: { file: string; line: number; text: string }[];
-  /** Files importing the database driver directly. */
+  /** Files importing a database driver directly (better-sqlite3, or node-postgres `pg`). */
   driver: string[];
 }
 
@@ -51,7 +51,7 @@ function analyse(root: string): Analysis {
     const sf = ts.createSourceFile(file, text, ts.ScriptTarget.Latest, true, file.endsWith('.mjs') ? ts.ScriptKind.JS : ts.ScriptKind.TS);
     const targets: string[] = [];
     const specifier = (spec: string): void => {
-      if (spec === 'better-sqlite3') driver.push(rel(file));
+      if (spec === 'better-sqlite3' || spec === 'pg' || spec.startsWith('pg/')) driver.push(rel(file));
       const target = resolve(file, spec);
       if (target) targets.push(rel(target));
     };
@@ -136,6 +136,8 @@ describe('the import graph of src/', () => {
   it('opens the database driver only in src/store/', () => {
     expect(driver.filter((f) => !f.startsWith('store/'))).toEqual([]);
     expect(driver).toContain('store/sqlite/db.ts');
+    // node-postgres is opened in one file, which owns the pool and its type parsers.
+    expect(driver.filter((f) => f.startsWith('store/pg/'))).toEqual(['store/pg/connect.ts']);
   });
 
   it('points stages one way: only commands import the composition root, and the store imports no other stage', () => {

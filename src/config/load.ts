@@ -30,6 +30,7 @@ export const ENV_BINDINGS: readonly EnvBinding[] = [
   { name: 'SOURCEBOUND_COMPLETION_URL', path: ['completion', 'baseUrl'], kind: 'string' },
   { name: 'SOURCEBOUND_COMPLETION_MODEL', path: ['completion', 'model'], kind: 'string' },
   { name: 'SOURCEBOUND_COMPLETION_API_KEY', path: ['completion', 'apiKey'], kind: 'string' },
+  { name: 'SOURCEBOUND_DATABASE_URL', path: ['storage', 'databaseUrl'], kind: 'string' },
 ];
 
 export interface LoadConfigOptions {

@@ -8,3 +8,4 @@ export { createVectorIndexes, type VectorIndexes, type VectorHit, type HnswParam
 export { storePaths } from './paths.js';
 export { createOriginals, type Originals } from './originals.js';
 export { checkStore, type CheckReport, type CheckProblem } from './check.js';
+export type * from './system-of-record.js';
