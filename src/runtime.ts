@@ -3,17 +3,17 @@
 // for real use; the CLI's commands, the job worker thread and the tests all start here. Imports run one way:
 // this file may import any stage, and no stage imports it.
 
-import { createAnswerer, createCompletionClient, createLexiconSource, loadTokenizer, readAnswerModel, type Answerer, type AnswererOptions } from './answer/index.js';
+import { createAnswerer, createCompletionClient, createLexiconSource, loadTokenizer, type Answerer } from './answer/index.js';
 import path from 'node:path';
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import type { FastifyInstance } from 'fastify';
 import { buildApp, type AnswerRequest as HttpAnswerRequest, type AppDeps } from './api/app.js';
 import { PACKAGE_ROOT, type Config } from './config/index.js';
-import { SourceboundError } from './errors.js';
+import { answererOptions, documentLimits, refuseUnservedBackend } from './runtime-options.js';
 import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
-import { createIngestor, type DocumentLimits, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
+import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
 import type { Logger } from './logger.js';
 import { createMetrics, type Metrics } from './api/metrics.js';
 import { createDeskService } from './api/desk-service.js';
@@ -60,13 +60,7 @@ export async function createRuntime(
   logger: Logger,
   opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder; processMetrics?: boolean } = {},
 ): Promise<Runtime> {
-  // The PostgreSQL system of record (src/store/pg/) is not on the query path yet: starting on SQLite instead
-  // would quietly write what the operator meant for PostgreSQL into a local file.
-  if (config.storage.backend !== 'sqlite') {
-    throw new SourceboundError('SB_ERR_CONFIG_INVALID', [
-      `  - storage.backend: "${config.storage.backend}" is not served by this release yet (its schema and writes exist, the query path reads SQLite only); use "sqlite"`,
-    ]);
-  }
+  refuseUnservedBackend(config);
   const paths = storePaths(config.dataDir);
   const store = openStore(paths.database);
   const repo: Repository = store;
@@ -268,29 +262,8 @@ export async function createRuntime(
 }
 
 /** The bounds on one document's work, from the `limits` section. */
-export function documentLimits(config: Readonly<Config>): DocumentLimits {
-  const l = config.limits;
-  return {
-    maxChars: l.documentMaxChars,
-    maxChunks: l.documentMaxChunks,
-    parseMaxSeconds: l.parseMaxSeconds,
-    htmlMaxDepth: l.htmlMaxDepth,
-    zipMaxInflatedBytes: l.zipMaxInflatedBytes,
-    zipMaxEntries: l.zipMaxEntries,
-  };
-}
 
 /** The answer stage's settings from a config: what the service runs, and what the calibration fit measures. */
-export function answererOptions(config: Readonly<Config>): AnswererOptions {
-  return {
-    k: config.retrieval.k,
-    contextBudgetTokens: config.answer.contextBudgetTokens,
-    minSupport: config.answer.minSupport,
-    rewriteWithCompletion: config.answer.rewriteWithCompletion,
-    minAnswerProbability: config.answer.minAnswerProbability,
-    ...(config.answer.modelFile ? { model: readAnswerModel(config.answer.modelFile) } : {}),
-  };
-}
 
 /** Runs an ingest as a recorded job, so its outcome can be read back later. */
 export async function ingestAsJob(
