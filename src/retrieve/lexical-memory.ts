@@ -376,7 +376,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
         rows: s?.live ?? 0,
         terms: s?.df.size ?? 0,
         postings: st.postings,
-        arrayBytes: st.postings * (4 + 2 + 2 + 2 + 4) + rowsHeld * (8 + 4 + 4 + 1 + 8) + scorer.scratchBytes(),
+        arrayBytes: st.postings * (4 + 2 + 2 + 2 + 4) + rowsHeld * (8 + 4 + 4 + 1) + scorer.scratchBytes(),
         buildMs,
         builds,
         segments: st.segments,

@@ -14,13 +14,11 @@ import type { LexicalRowChange } from '../store/index.js';
 import { NO_COLLECTION } from './lexical-build.js';
 import { buildSegment, checkedTf, finish, mergeSource, type RowSource, type Segment } from './lexical-segment.js';
 
-/** An immutable segment in use: its deletion markers and the length part of BM25's denominator, cached per avgdl. */
+/** An immutable segment in use and its deletion markers. */
 export interface SegmentRef {
   readonly seg: Segment;
   readonly deleted: Uint8Array;
   live: number;
-  normAvgdl: number;
-  norm: Float64Array | null;
 }
 
 export interface MutableRow {
@@ -79,7 +77,7 @@ export interface MergePlan {
 const newRef = (seg: Segment, deleted = new Uint8Array(seg.ids.length)): SegmentRef => {
   let live = 0;
   for (let r = 0; r < seg.ids.length; r++) if (deleted[r] === 0) live++;
-  return { seg, deleted, live, normAvgdl: NaN, norm: null };
+  return { seg, deleted, live };
 };
 
 export class LexicalState {

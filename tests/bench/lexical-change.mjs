@@ -4,7 +4,7 @@
 // against idle, and resident memory during the changes against steady.
 //
 //   npm run build && node --expose-gc tests/bench/lexical-change.mjs [--chunks 100000] [--changes 500] [--keep DIR]
-//     [--apply thread|query] [--json]
+//     [--apply thread|query] [--max-segment-rows N] [--json]
 //
 // Writes go through a second connection, as the job thread's do; the index is the service's (background loading
 // and merging, a long run of changes applied in slices, segments of at most 16,384 rows). Each change replaces one
@@ -32,6 +32,7 @@ const { values: args } = parseArgs({
     changes: { type: 'string', default: '500' },
     'queries-per-change': { type: 'string', default: '2' },
     apply: { type: 'string', default: 'thread' },
+    'max-segment-rows': { type: 'string', default: '16384' },
     keep: { type: 'string' },
     json: { type: 'boolean', default: false },
   },
@@ -89,7 +90,8 @@ const queries = Array.from({ length: 400 }, () => Array.from({ length: 3 + Math.
 const reader = openStore(file);
 const writer = openStore(file);
 if (!['thread', 'query'].includes(args.apply)) throw new Error('--apply is thread or query');
-const mem = createLexicalMemory(reader, { background: true, ...(args.apply === 'thread' ? { changeReader: createLexicalChangeThread(file) } : {}) });
+const MAX_SEGMENT_ROWS = Number(args['max-segment-rows']);
+const mem = createLexicalMemory(reader, { background: true, maxSegmentRows: MAX_SEGMENT_ROWS, ...(args.apply === 'thread' ? { changeReader: createLexicalChangeThread(file) } : {}) });
 const indexes = createVectorIndexes({ repo: reader, dir: path.join(dir, 'index'), embedderId: 'bench-384', dimensions: 384 });
 const embedder = { id: 'bench-384', dimensions: 384, semantic: true, maxTokens: 256, countTokens: (t) => t.split(' ').length, embed: async () => [] };
 // Counts the searches the index declined (FTS5 answered them instead).
@@ -166,6 +168,8 @@ const duringSummary = latencySummary(during);
 const result = {
   chunks: CHUNKS,
   apply: args.apply,
+  maxSegmentRows: MAX_SEGMENT_ROWS,
+  largestSegmentRows: s.largestSegmentRows,
   changes: CHANGES,
   loadSeconds,
   writeMsMedian: median(writeMs),
