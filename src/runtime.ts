@@ -32,7 +32,7 @@ import {
   type JobQueue,
 } from './jobs/index.js';
 import type { CompletionClient } from './answer/index.js';
-import { createLexicalMemory, createRetriever, type LexicalMemory, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
+import { createLexicalChangeThread, createLexicalMemory, createRetriever, type LexicalMemory, createWordNet, packagedWordNetDir, retrieverOptions, type Retriever } from './retrieve/index.js';
 import { createOriginals, createVectorIndexes, openStore, storePaths, type JobStore, type Repository, type Store, type VectorIndexes } from './store/index.js';
 
 export interface Runtime {
@@ -122,12 +122,14 @@ export async function createRuntime(
       }),
   };
   // The in-memory BM25 index loads on a second connection between queries, which FTS5 answers meanwhile; after
-  // that it follows the store's lexical change log (a long run of changes is applied in the background too).
+  // that it follows the store's lexical change log: a short run of changes is read on a thread of its own and
+  // applied between queries, a long one is applied in the background too.
   const lexLog = logger.child({ stage: 'lexical-index' });
   const lexicalIndex =
     config.retrieval.lexicalEngine === 'memory'
       ? createLexicalMemory(store, {
           background: true,
+          changeReader: createLexicalChangeThread(paths.database),
           onBuilt: (i) => lexLog.info(i, 'in-memory lexical index built'),
           onError: (err) => lexLog.warn({ err }, 'in-memory lexical index build failed; FTS5 answers meanwhile'),
         })

@@ -10,6 +10,7 @@ export {
   type LexicalEngine,
 } from './retriever.js';
 export { createLexicalMemory, type LexicalMemory, type LexicalMemoryStats } from './lexical-memory.js';
+export { createLexicalChangeThread, type LexicalChangeReader } from './lexical-thread.js';
 export { reciprocalRankFusion, type RankedList, type FusedItem } from './rrf.js';
 export { toWeightedMatch, termCounts, queryTerms, STOP_WORDS, type WeightedTerm } from './query-text.js';
 export { rm3Expand, DEFAULT_RM3, type Rm3Options } from './rm3.js';

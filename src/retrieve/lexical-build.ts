@@ -176,7 +176,7 @@ export const NO_COLLECTION = '\u0000';
  * Cuts a whole-table index into one segment per collection (rows of no collection under NO_COLLECTION), plus
  * every term's document frequency over the whole table, which BM25's idf reads.
  */
-export function* splitByCollection(data: LexicalIndexData): Generator<void, { segments: Map<string, Segment>; df: Map<string, number> }, void> {
+export function* splitByCollection(data: LexicalIndexData, maxRows = Infinity): Generator<void, { segments: Map<string, Segment[]>; df: Map<string, number> }, void> {
   const nSlots = data.rowids.length;
   const nTerms = data.terms.size;
   const termList: string[] = new Array<string>(nTerms);
@@ -214,21 +214,28 @@ export function* splitByCollection(data: LexicalIndexData): Generator<void, { se
     if (!list) bySlot.set(name, (list = []));
     list.push(s);
   }
-  const segments = new Map<string, Segment>();
-  for (const [name, slots] of bySlot) {
-    const src: RowSource = {
-      count: slots.length,
-      id: (i) => data.rowids[slots[i]!]!,
-      length: (i) => data.lengths[slots[i]!]!,
-      *terms(i) {
-        const s = slots[i]!;
-        for (let at = fwdStart[s]!; at < fwdStart[s + 1]!; at++) {
-          const p = fwdPosting[at]!;
-          yield [termList[fwdTerm[at]!]!, data.tfTitle[p]!, data.tfHeading[p]!, data.tfBody[p]!];
-        }
-      },
-    };
-    segments.set(name, yield* buildSegment(src));
+  const segments = new Map<string, Segment[]>();
+  for (const [name, all] of bySlot) {
+    const list: Segment[] = [];
+    segments.set(name, list);
+    // Segments of at most `maxRows` rows, so that no later merge needs a second copy of a large one.
+    const pieces = Math.max(1, Math.ceil(all.length / maxRows));
+    for (let k = 0; k < pieces; k++) {
+      const slots = all.slice(Math.floor((k * all.length) / pieces), Math.floor(((k + 1) * all.length) / pieces));
+      const src: RowSource = {
+        count: slots.length,
+        id: (i) => data.rowids[slots[i]!]!,
+        length: (i) => data.lengths[slots[i]!]!,
+        *terms(i) {
+          const s = slots[i]!;
+          for (let at = fwdStart[s]!; at < fwdStart[s + 1]!; at++) {
+            const p = fwdPosting[at]!;
+            yield [termList[fwdTerm[at]!]!, data.tfTitle[p]!, data.tfHeading[p]!, data.tfBody[p]!];
+          }
+        },
+      };
+      list.push(yield* buildSegment(src));
+    }
   }
   return { segments, df };
 }

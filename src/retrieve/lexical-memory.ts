@@ -21,20 +21,23 @@
 // Staying in step: the whole table is read once, at the first query (or start-up); after that the store's lexical
 // change log (every chunk row inserted, deleted or moved, from any process) says which rows to read again, and
 // only those are applied (lexical-state.ts: per-collection segments, a mutable segment, deletion markers,
-// background merges). A query answers only once every logged change is applied: a short gap is closed inside
-// the query (one changed document costs milliseconds); a long one (a full re-index) is applied in the
-// background in slices while FTS5 answers.
+// background merges). With a change thread (the service's: lexical-thread.ts), a short run of changes is read
+// and tokenized on that thread and applied here in one synchronous step between queries; until then queries are
+// answered by the index as it was (every change up to its position, none after: an earlier moment of the
+// database, never half a change), for at most `maxLagMs`. Without one, a short gap is closed inside the query
+// (one changed document costs milliseconds). A long run (a full re-index) is applied in the background in slices
+// while FTS5 answers.
 
-import type { FtsWeights, Repository } from '../store/index.js';
+import type { FtsWeights, LexicalRowChange, Repository } from '../store/index.js';
 import { buildLexicalIndex, NO_COLLECTION, splitByCollection } from './lexical-build.js';
 import { createScorer } from './lexical-score.js';
 import { finish } from './lexical-segment.js';
-import { LexicalState, type MergePlan } from './lexical-state.js';
+import { type LexicalDeltaInfo, LexicalState, type MergePlan } from './lexical-state.js';
+import type { LexicalChangeReader } from './lexical-thread.js';
 import type { PhraseCount } from './query-text.js';
 
 /** What the in-memory index reads from the store: lexical snapshots, the change log and the tokenizer. */
 export type LexicalSource = Pick<Repository, 'lexicalSnapshot' | 'lexicalHead' | 'lexicalChanges' | 'concurrentReads' | 'queryTokenizer'>;
-
 
 export interface LexicalMemoryStats {
   ready: boolean;
@@ -56,6 +59,10 @@ export interface LexicalMemoryStats {
   applied: number;
   /** The change log position the index holds. */
   head: number;
+  /** Change log reads done on the change thread and applied here. */
+  threadReads: number;
+  /** Rows of the largest segment (at most maxSegmentRows). */
+  largestSegmentRows: number;
 }
 
 export interface LexicalMemory {
@@ -86,8 +93,17 @@ export interface LexicalMemoryOptions {
   background?: boolean;
   /** Least time before a failed load or catch-up is tried again (default 5 s); FTS5 answers meanwhile. */
   minRebuildGapMs?: number;
-  /** Logged changes a query applies itself before answering; past this, they are applied in the background. */
+  /** Logged changes a query applies itself (or the change thread reads) at once; past this, in the background. */
   syncLimit?: number;
+  /**
+   * Reads short runs of changes on another thread (`background` only); the index then owns it and closes it.
+   * Queries are answered by the index at its last position meanwhile.
+   */
+  changeReader?: LexicalChangeReader;
+  /** Longest time queries are answered by an index behind the change log before FTS5 answers instead (1000 ms). */
+  maxLagMs?: number;
+  /** Most rows in one segment: the first load is cut into segments of this size and merges stop at it (16,384). */
+  maxSegmentRows?: number;
   /** Rows the mutable segment of a collection takes before it becomes immutable (default 1024). */
   mutableRows?: number;
   /** Segments of one size tier merged into one (default 4). */
@@ -110,12 +126,14 @@ interface Job {
   step(): void;
 }
 
-
 export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOptions = {}): LexicalMemory {
   const background = (opts.background ?? false) && store.concurrentReads;
   const minGap = opts.minRebuildGapMs ?? 5000;
   const syncLimit = opts.syncLimit ?? 4096;
-  const stateOpts = { mutableRows: opts.mutableRows ?? 1024, mergeFactor: Math.max(2, opts.mergeFactor ?? 4) };
+  const stateOpts = { mutableRows: opts.mutableRows ?? 1024, mergeFactor: Math.max(2, opts.mergeFactor ?? 4), maxSegmentRows: opts.maxSegmentRows ?? 16_384 };
+  const reader = background ? (opts.changeReader ?? null) : null;
+  if (!background) opts.changeReader?.close();
+  const maxLagMs = opts.maxLagMs ?? 1000;
   const tokens = store.queryTokenizer();
 
   let state: LexicalState | null = null;
@@ -128,6 +146,12 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
   let builds = 0;
   let buildMs = 0;
   let closed = false;
+  /** A read on the change thread in flight, whether that thread failed (then changes are read here), and since when
+   * queries have been answered by an index behind the log (-1: it was at the head when last looked at). */
+  let reading: Promise<void> | null = null;
+  let readerFailed = false;
+  let behindSince = -1;
+  let threadReads = 0;
   const scorer = createScorer();
 
   const fail = (err: unknown): void => {
@@ -141,7 +165,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
   function* load(concurrent: boolean): Generator<void, void, void> {
     const t0 = performance.now();
     const data = yield* buildLexicalIndex(store.lexicalSnapshot({ concurrent }));
-    const { segments, df } = yield* splitByCollection(data);
+    const { segments, df } = yield* splitByCollection(data, stateOpts.maxSegmentRows);
     state = LexicalState.fromLoad(stateOpts, segments, df, data.head);
     statRows = data.nRow;
     statTokens = data.tokens;
@@ -151,29 +175,50 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     opts.onBuilt?.({ rows: state.live, terms: state.df.size, postings: st.postings, ms: buildMs });
   }
 
+  /** Applies a delta to `s`, yielding every 256 rows (run to its end at once, it is one step between queries). */
+  function* apply(s: LexicalState, delta: LexicalDeltaInfo, changes: Iterable<LexicalRowChange>): Generator<void, void, void> {
+    if (!delta.complete) throw new LogGap();
+    yield* s.applyDelta(delta, changes);
+    statRows = delta.rows;
+    statTokens = delta.tokens;
+  }
+
   function* catchUp(concurrent: boolean): Generator<void, void, void> {
-    const s = state!;
-    const delta = store.lexicalChanges(s.head, { concurrent });
+    const delta = store.lexicalChanges(state!.head, { concurrent });
     try {
-      if (!delta.complete) throw new LogGap();
-      let i = 0;
-      for (const ch of delta.changes()) {
-        s.remove(ch.rowId);
-        if (ch.row) s.add(ch.rowId, ch.row.collection ?? NO_COLLECTION, ch.row.length, ch.row.postings);
-        if (++i % 256 === 0) yield;
-      }
-      for (const col of s.collections.values()) s.flushIfFull(col);
-      if (s.live !== delta.rows || s.tokens !== delta.tokens) {
-        throw new Error(`lexical statistics disagree after the change log: ${s.live} rows and ${s.tokens} tokens held, ${delta.rows} and ${delta.tokens} in FTS5`);
-      }
-      statRows = delta.rows;
-      statTokens = delta.tokens;
-      s.head = delta.head;
-      s.applied += delta.count;
+      yield* apply(state!, delta, delta.changes());
     } finally {
       delta.release();
     }
   }
+
+  /** Asks the change thread for the changes after the state's position; applies them in one step when they come. */
+  const readChanges = (): void => {
+    if (reading || !reader || readerFailed || closed || !state) return;
+    const s = state;
+    const since = s.head;
+    reading = reader
+      .read(since, syncLimit)
+      .then(
+        (set) => {
+          // Overtaken (reloaded, or brought up to date here meanwhile) or too long: the next query decides again.
+          if (closed || state !== s || s.head !== since || job || set === null) return;
+          runNow(apply(s, set, set.changes));
+          if (state !== s) return;
+          behindSince = -1;
+          threadReads++;
+        },
+        (err: unknown) => {
+          readerFailed = true;
+          opts.onError?.(err);
+        },
+      )
+      .finally(() => {
+        reading = null;
+        // Changes written while this read was in flight: read them too.
+        if (!closed && state && !job && state.head < store.lexicalHead()) readChanges();
+      });
+  };
 
   /** Runs `gen` in slices on the event loop; `syncNow` may finish it early. */
   const startJob = (gen: Generator<void, void, void>): Job => {
@@ -246,8 +291,12 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     setImmediate(tick);
   };
 
-  /** The state if it holds every logged change now; otherwise null, after starting (or doing) the work. */
-  const usable = (): LexicalState | null => {
+  /**
+   * The state that answers now: one holding every logged change, or (with a change thread, `sync` false) one behind
+   * by a short run of changes being read there, for at most `maxLagMs`; otherwise null, after starting (or doing)
+   * the work.
+   */
+  const usable = (sync = false): LexicalState | null => {
     if (job || closed) return null;
     if (!state) {
       if (performance.now() - lastFailure < minGap) return null;
@@ -256,10 +305,19 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
       if (!state) return null;
     }
     const head = store.lexicalHead();
-    if (state.head === head) return state;
+    if (state.head === head) {
+      behindSince = -1;
+      return state;
+    }
     if (background && head - state.head > syncLimit) {
       startJob(catchUp(true));
       return null;
+    }
+    if (reader && !readerFailed && !sync) {
+      const now = performance.now();
+      if (behindSince < 0) behindSince = now;
+      readChanges();
+      return now - behindSince <= maxLagMs ? state : null;
     }
     runNow(catchUp(false));
     if (!state && !background && performance.now() - lastFailure >= minGap) runNow(load(false));
@@ -289,33 +347,36 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     syncNow() {
       if (closed) return;
       drain();
-      usable();
+      usable(true);
       drain();
     },
     async whenReady() {
+      const target = store.lexicalHead();
       for (;;) {
         if (closed) return;
-        if (job) {
-          await job.done;
+        if (job || reading) {
+          await (job ? job.done : reading);
           if (!state) return; // the work failed (reported through onError)
           continue;
         }
-        if (usable()) return;
-        if (!job) return;
+        const s = usable();
+        if (s && s.head >= target) return;
+        if (!job && !reading) return;
       }
     },
     stats() {
       const s = state;
       const st = s?.stats() ?? { segments: 0, mutableRows: 0, postings: 0, deletedRows: 0 };
       let rowsHeld = 0;
-      for (const col of s?.collections.values() ?? []) for (const ref of col.segments) rowsHeld += ref.seg.ids.length;
+      let largest = 0;
+      for (const col of s?.collections.values() ?? []) for (const ref of col.segments) (rowsHeld += ref.seg.ids.length), (largest = Math.max(largest, ref.seg.ids.length));
       return {
         ready: s !== null,
         building: job !== null,
         rows: s?.live ?? 0,
         terms: s?.df.size ?? 0,
         postings: st.postings,
-        arrayBytes: st.postings * (4 + 2 + 2 + 2 + 4) + rowsHeld * (8 + 4 + 4 + 1 + 8) + scorer.scratchBytes(),
+        arrayBytes: st.postings * (4 + 2 + 2 + 2 + 4) + rowsHeld * (8 + 4 + 4 + 1) + scorer.scratchBytes(),
         buildMs,
         builds,
         segments: st.segments,
@@ -324,11 +385,14 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
         merges: s?.merges ?? 0,
         applied: s?.applied ?? 0,
         head: s?.head ?? 0,
+        threadReads,
+        largestSegmentRows: largest,
       };
     },
     close() {
       closed = true;
       state = null;
+      reader?.close();
       tokens.close();
     },
   };

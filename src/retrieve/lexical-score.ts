@@ -82,13 +82,11 @@ export function createScorer(): {
       const wb = ftsWeight(w.body);
       const avgdl = statRows > 0 ? stat.tokens / statRows : 1;
       const lay = layoutOf(col);
-      for (const ref of col.segments) {
-        if (ref.normAvgdl === avgdl && ref.norm) continue;
-        const norm = ref.norm ?? new Float64Array(ref.seg.ids.length);
-        for (let r = 0; r < norm.length; r++) norm[r] = K1 * (1 - B + (B * ref.seg.lengths[r]!) / avgdl);
-        ref.norm = norm;
-        ref.normAvgdl = avgdl;
-      }
+      // The length part of the denominator, k1 * (1 - b + b * |d| / avgdl), as c0 + c1 * |d|: worked out per
+      // posting rather than cached per row, since avgdl moves with every change (a cache would be recomputed for
+      // every row of the collection after each one). Equal to the formula to about 1e-16 relative.
+      const c0 = K1 * (1 - B);
+      const c1 = (K1 * B) / avgdl;
       if (allowed) {
         for (const id of allowed) {
           const at = s.locate(id);
@@ -119,19 +117,19 @@ export function createScorer(): {
             const t = seg.terms.get(term);
             if (t === undefined) return;
             const base = lay.bases[k]!;
-            const norm = ref.norm!;
+            const lengths = seg.lengths;
             for (let p = seg.start[t]!; p < seg.start[t + 1]!; p++) {
               const r = seg.local[p]!;
               if (ref.deleted[r] !== 0) continue;
               if (allowed && mask[base + r] === 0) continue;
-              hit(base + r, wt * seg.tfTitle[p]! + wh * seg.tfHeading[p]! + wb * seg.tfBody[p]!, norm[r]!, mult);
+              hit(base + r, wt * seg.tfTitle[p]! + wh * seg.tfHeading[p]! + wb * seg.tfBody[p]!, c0 + c1 * lengths[r]!, mult);
             }
           });
           for (const r of col.mutablePostings.get(term) ?? []) {
             const row = col.mutable[r]!;
             if (row.deleted || (allowed && mask[lay.mutableBase + r] === 0)) continue;
             const tf = row.terms.get(term)!;
-            hit(lay.mutableBase + r, wt * tf[0] + wh * tf[1] + wb * tf[2], K1 * (1 - B + (B * row.length) / avgdl), mult);
+            hit(lay.mutableBase + r, wt * tf[0] + wh * tf[1] + wb * tf[2], c0 + c1 * row.length, mult);
           }
         }
         return topK(touched, nTouched, acc, lay.ids, limit);

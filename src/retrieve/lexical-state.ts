@@ -10,15 +10,15 @@
 // Every change is applied between two queries (JavaScript runs one at a time), and a query answers only when the
 // whole log up to the database's head has been applied: it never sees half a change.
 
+import type { LexicalRowChange } from '../store/index.js';
+import { NO_COLLECTION } from './lexical-build.js';
 import { buildSegment, checkedTf, finish, mergeSource, type RowSource, type Segment } from './lexical-segment.js';
 
-/** An immutable segment in use: its deletion markers and the length part of BM25's denominator, cached per avgdl. */
+/** An immutable segment in use and its deletion markers. */
 export interface SegmentRef {
   readonly seg: Segment;
   readonly deleted: Uint8Array;
   live: number;
-  normAvgdl: number;
-  norm: Float64Array | null;
 }
 
 export interface MutableRow {
@@ -53,6 +53,20 @@ export interface StateOptions {
   mutableRows: number;
   /** Segments of one size tier that are merged into one. */
   mergeFactor: number;
+  /**
+   * Most live rows a merge writes into one segment: a merge holds its output beside its inputs until it is
+   * published, so this bounds the memory a merge adds (about 1.4 KiB a row of 120 words).
+   */
+  maxSegmentRows: number;
+}
+
+/** What a change log read says besides its rows: where it brings the index and the statistics there. */
+export interface LexicalDeltaInfo {
+  readonly head: number;
+  readonly complete: boolean;
+  readonly rows: number;
+  readonly tokens: number;
+  readonly count: number;
 }
 
 export interface MergePlan {
@@ -63,7 +77,7 @@ export interface MergePlan {
 const newRef = (seg: Segment, deleted = new Uint8Array(seg.ids.length)): SegmentRef => {
   let live = 0;
   for (let r = 0; r < seg.ids.length; r++) if (deleted[r] === 0) live++;
-  return { seg, deleted, live, normAvgdl: NaN, norm: null };
+  return { seg, deleted, live };
 };
 
 export class LexicalState {
@@ -79,20 +93,22 @@ export class LexicalState {
 
   constructor(private readonly opts: StateOptions) {}
 
-  /** The first load: one segment per collection. */
-  static fromLoad(opts: StateOptions, segments: Map<string, Segment>, df: Map<string, number>, head: number): LexicalState {
+  /** The first load: each collection's segments (at most `maxSegmentRows` rows each). */
+  static fromLoad(opts: StateOptions, segments: Map<string, Segment[]>, df: Map<string, number>, head: number): LexicalState {
     const s = new LexicalState(opts);
     for (const [term, n] of df) s.df.set(term, n);
-    for (const [name, seg] of segments) {
+    for (const [name, list] of segments) {
       const col = s.collection(name);
-      if (seg.ids.length === 0) continue;
-      const ref = newRef(seg);
-      col.segments.push(ref);
-      for (let r = 0; r < seg.ids.length; r++) {
-        s.where.set(seg.ids[r]!, { col, ref, r });
-        s.tokens += seg.lengths[r]!;
+      for (const seg of list) {
+        if (seg.ids.length === 0) continue;
+        const ref = newRef(seg);
+        col.segments.push(ref);
+        for (let r = 0; r < seg.ids.length; r++) {
+          s.where.set(seg.ids[r]!, { col, ref, r });
+          s.tokens += seg.lengths[r]!;
+        }
+        s.live += seg.ids.length;
       }
-      s.live += seg.ids.length;
     }
     s.head = head;
     return s;
@@ -158,12 +174,32 @@ export class LexicalState {
     this.tokens += length;
   }
 
+  /**
+   * Applies the rows changed since `head` (each removed, then added as it is now), then checks the statistics
+   * against the delta's; yields every 256 rows.
+   */
+  *applyDelta(delta: LexicalDeltaInfo, changes: Iterable<LexicalRowChange>): Generator<void, void, void> {
+    let i = 0;
+    for (const ch of changes) {
+      this.remove(ch.rowId);
+      if (ch.row) this.add(ch.rowId, ch.row.collection ?? NO_COLLECTION, ch.row.length, ch.row.postings);
+      if (++i % 256 === 0) yield;
+    }
+    for (const col of this.collections.values()) this.flushIfFull(col);
+    if (this.live !== delta.rows || this.tokens !== delta.tokens) {
+      throw new Error(`lexical statistics disagree after the change log: ${this.live} rows and ${this.tokens} tokens held, ${delta.rows} and ${delta.tokens} in FTS5`);
+    }
+    this.head = delta.head;
+    this.applied += delta.count;
+  }
+
   /** Turns a full mutable segment into an immutable one (a few hundred rows: done at once). */
   flushIfFull(col: CollectionIndex, force = false): void {
     if (!force && col.mutable.length < this.opts.mutableRows) return;
-    const rows = col.mutable.filter((m) => !m.deleted);
-    if (rows.length > 0) {
-      rows.sort((a, b) => a.id - b.id);
+    const all = col.mutable.filter((m) => !m.deleted).sort((a, b) => a.id - b.id);
+    // (A long run of changes applied in one step can fill it past maxSegmentRows: cut into pieces.)
+    for (let at = 0; at < all.length; at += this.opts.maxSegmentRows) {
+      const rows = all.slice(at, at + this.opts.maxSegmentRows);
       const src: RowSource = { count: rows.length, id: (i) => rows[i]!.id, length: (i) => rows[i]!.length, terms: (i) => mutableTerms(rows[i]!) };
       const ref = newRef(finish(buildSegment(src)));
       col.segments.push(ref);
@@ -176,14 +212,17 @@ export class LexicalState {
 
   /**
    * The next merge: `mergeFactor` segments of one size tier (tier = floor(log_factor(live rows / mutableRows)))
-   * of one collection, smallest tier first; or one segment more than a third deleted, to reclaim it.
+   * of one collection, smallest tier first, the smallest of the tier first and no more of them than fit in
+   * `maxSegmentRows` (at least two); or one segment more than a third deleted, to reclaim it.
    */
   planMerge(): MergePlan | null {
     const f = this.opts.mergeFactor;
+    const cap = this.opts.maxSegmentRows;
     for (const col of this.collections.values()) {
       const tiers = new Map<number, SegmentRef[]>();
       for (const ref of col.segments) {
         if (ref.live * 3 < ref.seg.ids.length * 2) return { col, inputs: [ref] };
+        if (ref.live * 2 > cap) continue; // no merge partner would fit beside it
         const tier = Math.max(0, Math.floor(Math.log(Math.max(1, ref.live) / this.opts.mutableRows) / Math.log(f)));
         let list = tiers.get(tier);
         if (!list) tiers.set(tier, (list = []));
@@ -191,7 +230,15 @@ export class LexicalState {
       }
       for (const tier of [...tiers.keys()].sort((a, b) => a - b)) {
         const list = tiers.get(tier)!;
-        if (list.length >= f) return { col, inputs: list.slice(0, f) };
+        if (list.length < f) continue;
+        const inputs: SegmentRef[] = [];
+        let rows = 0;
+        for (const ref of [...list].sort((a, b) => a.live - b.live)) {
+          if (inputs.length === f || rows + ref.live > cap) break;
+          inputs.push(ref);
+          rows += ref.live;
+        }
+        if (inputs.length >= 2) return { col, inputs };
       }
     }
     return null;

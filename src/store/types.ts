@@ -234,6 +234,16 @@ export interface LexicalDelta {
   release(): void;
 }
 
+/** A delta read in full (by the lexical change thread, src/lexical-worker.ts) and handed over as plain data. */
+export interface LexicalChangeSet {
+  readonly head: number;
+  readonly complete: boolean;
+  readonly rows: number;
+  readonly tokens: number;
+  readonly count: number;
+  readonly changes: readonly LexicalRowChange[];
+}
+
 /** Query words split into the index's own terms (stemmed and folded as the index does). */
 export interface QueryTokenizer {
   (words: readonly string[]): string[][];

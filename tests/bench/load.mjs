@@ -2,7 +2,8 @@
 // Load benchmark for issue "safe to expose": the demo corpus grown to about 10k chunks (copies of the
 // seed documents under new names), a real `sourcebound serve` process, and autocannon (a well-kept HTTP
 // load generator from the registry) against POST /v1/search (hybrid) and extractive POST /v1/answer.
-// Usage: npm run build && node tests/bench/load.mjs [--seconds 20] [--connections 8] [--json]
+// Usage: npm run build && node tests/bench/load.mjs [--seconds 20] [--connections 8] [--json] [--cpu-prof DIR]
+// (--cpu-prof: the server writes a V8 CPU profile of the whole run into DIR when it stops.)
 import { spawn } from 'node:child_process';
 import { cpSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
@@ -23,6 +24,7 @@ const { values: args } = parseArgs({
     connections: { type: 'string', default: '8' },
     chunks: { type: 'string', default: '10000' },
     json: { type: 'boolean', default: false },
+    'cpu-prof': { type: 'string' },
   },
 });
 const SEED = path.join(ROOT, 'seed-docs');
@@ -60,7 +62,8 @@ rt.close();
 
 const configFile = path.join(work, 'config.json');
 writeFileSync(configFile, JSON.stringify({ limits: { rateLimitPerMinute: 10_000_000 }, seed: { ingestOnEmpty: false } }));
-const server = spawn(process.execPath, [path.join(ROOT, 'dist', 'cli.js'), 'serve', '--log', 'json'], {
+const profile = args['cpu-prof'] ? ['--cpu-prof', '--cpu-prof-dir', path.resolve(args['cpu-prof'])] : [];
+const server = spawn(process.execPath, [...profile, path.join(ROOT, 'dist', 'cli.js'), 'serve', '--log', 'json'], {
   // The server logs at info, as deployed (the ready line is read from it; request logs are drained).
   env: { ...process.env, ...env, SOURCEBOUND_LOG_LEVEL: 'info', PORT: '0', SOURCEBOUND_CONFIG: configFile },
   stdio: ['ignore', 'inherit', 'pipe'],

@@ -4,6 +4,7 @@ import path from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import type { Embedder } from '../../src/embed/types.js';
 import { createLexicalMemory, type LexicalMemory } from '../../src/retrieve/lexical-memory.js';
+import { createLexicalChangeThread, type LexicalChangeReader } from '../../src/retrieve/lexical-thread.js';
 import { phraseCounts, toWeightedMatch, type WeightedTerm } from '../../src/retrieve/query-text.js';
 import { DEFAULT_RM3 } from '../../src/retrieve/rm3.js';
 import { createRetriever } from '../../src/retrieve/retriever.js';
@@ -326,6 +327,95 @@ describe('retriever with the in-memory lexical engine', () => {
     }
   });
 
+  it('reads a short run of changes on the change thread; queries answer from the index as it was until it is applied', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-lexmem-'));
+    const file = path.join(dir, 'store.db');
+    const repo = openStore(file);
+    const mem = createLexicalMemory(repo, { background: true, minRebuildGapMs: 0, changeReader: createLexicalChangeThread(file) });
+    try {
+      for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
+      generate(repo, 5, 50);
+      await mem.whenReady();
+      const terms = [{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }];
+      const q = phraseCounts(terms, { maxRepeat: 6 });
+      const fts = (): ReturnType<Repository['searchFts']> => repo.searchFts('trams', toWeightedMatch(terms, { maxRepeat: 6 })!, 30, WEIGHTS[0]!);
+      const before = fts();
+      const head = mem.stats().head;
+      addDoc(repo, 'trams', 'late', 'Depot refund', [{ heading: ['Depot refund'], text: 'Depot refund desk hours.' }]);
+      for (let d = 0; d < 12; d += 3) repo.deleteDocument(`d${d}`);
+      const after = fts();
+      expect(after.map((h) => h.chunkId)).toContain(repo.chunksOfDocuments(['late'])[0]!.id);
+      // Behind by a short run: answered at once, by the index as it was before both writes (none of either).
+      expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), before, 30);
+      expect(mem.stats().head).toBe(head);
+      await mem.whenReady();
+      expect(mem.stats().head).toBe(repo.lexicalHead());
+      expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), after, 30);
+      expect(mem.stats()).toMatchObject({ builds: 1, threadReads: 1 });
+    } finally {
+      mem.close();
+      repo.close();
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+
+  it('stops answering from an index behind the log after maxLagMs, and syncNow or a failed change thread applies the changes here', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-lexmem-'));
+    const repo = openStore(path.join(dir, 'store.db'));
+    let fail: (e: Error) => void = () => undefined;
+    const errors: unknown[] = [];
+    // A change thread that answers only when told to fail.
+    const reader: LexicalChangeReader = { read: () => new Promise((_, reject) => (fail = reject)), close: () => undefined };
+    const mem = createLexicalMemory(repo, { background: true, minRebuildGapMs: 0, changeReader: reader, maxLagMs: 50, onError: (e) => errors.push(e) });
+    try {
+      for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
+      generate(repo, 5, 30);
+      await mem.whenReady();
+      const terms = [{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }];
+      const q = phraseCounts(terms, { maxRepeat: 6 });
+      const fts = (): ReturnType<Repository['searchFts']> => repo.searchFts('trams', toWeightedMatch(terms, { maxRepeat: 6 })!, 30, WEIGHTS[0]!);
+      const before = fts();
+      addDoc(repo, 'trams', 'late', 'Depot refund', [{ heading: ['Depot refund'], text: 'Depot refund desk hours.' }]);
+      expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), before, 30);
+      await waitFor(() => mem.search('trams', q, 30, WEIGHTS[0]!) === null, { what: 'FTS5 to answer once the index lags more than 50 ms' });
+      mem.syncNow();
+      expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), fts(), 30);
+      // The thread's late answer (here a failure) is ignored for the data, reported, and changes are read here after.
+      fail(new Error('the change thread stopped'));
+      await waitFor(() => errors.length === 1, { what: 'the change thread failure reported' });
+      addDoc(repo, 'trams', 'later', 'Depot refund kiosk', [{ heading: ['Depot'], text: 'Refund kiosk at the depot.' }]);
+      expectSameRanking(mem.search('trams', q, 30, WEIGHTS[0]!), fts(), 30);
+      expect(mem.stats().threadReads).toBe(0);
+    } finally {
+      mem.close();
+      repo.close();
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+
+  it('cuts the first load into segments of at most maxSegmentRows and never merges past it', () => {
+    const repo = openStore(':memory:');
+    try {
+      for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
+      generate(repo, 7, 60);
+      const mem = createLexicalMemory(repo, { maxSegmentRows: 16, mutableRows: 4, mergeFactor: 2 });
+      const q = phraseCounts([{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }], { maxRepeat: 6 });
+      const want = (): ReturnType<Repository['searchFts']> => repo.searchFts('trams', toWeightedMatch([{ term: 'depot', weight: 1 }, { term: 'refund', weight: 1 }], { maxRepeat: 6 })!, 50, WEIGHTS[0]!);
+      expectSameRanking(mem.search('trams', q, 50, WEIGHTS[0]!), want(), 50);
+      const rows = mem.stats().rows;
+      expect(mem.stats().segments).toBeGreaterThanOrEqual(Math.ceil(rows / 16));
+      expect(mem.stats().largestSegmentRows).toBeLessThanOrEqual(16);
+      for (let d = 0; d < 60; d += 2) repo.deleteDocument(`d${d}`);
+      generate(repo, 8, 40);
+      expectSameRanking(mem.search('trams', q, 50, WEIGHTS[0]!), want(), 50);
+      expect(mem.stats().merges).toBeGreaterThan(0);
+      expect(mem.stats().largestSegmentRows).toBeLessThanOrEqual(16);
+      mem.close();
+    } finally {
+      repo.close();
+    }
+  });
+
   it('is switched on by retrieval.lexicalEngine in the service: after the build, lexical search makes no FTS5 query', async () => {
     const t = await tempRuntime({ retrieval: { lexicalEngine: 'memory' } });
     try {
@@ -366,9 +456,11 @@ describe('retriever with the in-memory lexical engine', () => {
       const out = await documents.upload('c', 'ferry-bikes.md', new TextEncoder().encode('# Bikes on the ferry\n\nFolding bikes travel free on the Quarrel Lane ferry.'));
       expect(out.status).toBe('queued');
       await withDeadline(queue.idle(), { what: 'the upload job to finish', timeoutMs: 20_000 });
-      // The job thread wrote the rows; this thread heard the job end and applied them from the change log.
-      expect(index.stats().head).toBe(t.rt.repo.lexicalHead());
+      // The job thread wrote the rows; this thread heard the job end and asked the change thread for them, then
+      // applied them (no query has run).
+      await waitFor(() => index.stats().head === t.rt.repo.lexicalHead(), { what: 'the upload job\'s rows in the in-memory index' });
       expect(index.stats().applied).toBeGreaterThan(0);
+      expect(index.stats().threadReads).toBeGreaterThan(0);
       expect(index.stats().builds).toBe(1);
     } finally {
       await queue.close();

@@ -238,7 +238,7 @@ describe('lexical statistics after changes in place', () => {
         for (let i = 0; i < 6; i++) write(i % 2, 1000 + i);
         const rt = await runtime();
         for (const c of [0, 1]) await rt.ingestor.ingestPath(folders[c]!, { collection: names[c]! });
-        const mem: LexicalMemory = createLexicalMemory(rt.repo, { mutableRows: 3, mergeFactor: 2 });
+        const mem: LexicalMemory = createLexicalMemory(rt.repo, { mutableRows: 3, mergeFactor: 2, maxSegmentRows: 8 });
         try {
           const queries = Array.from({ length: 8 }, (_, i) => randomQuery(mulberry32(i + 1)));
           const check = (what: string): void => {
