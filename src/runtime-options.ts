@@ -26,6 +26,7 @@ export function documentLimits(config: Readonly<Config>): DocumentLimits {
     htmlMaxDepth: l.htmlMaxDepth,
     zipMaxInflatedBytes: l.zipMaxInflatedBytes,
     zipMaxEntries: l.zipMaxEntries,
+    maxDistinctWords: l.documentMaxDistinctWords,
   };
 }
 

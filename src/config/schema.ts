@@ -172,6 +172,14 @@ const limits = z
     pdfMaxPages: z.number().int().min(1).default(2000).describe('Most pages in one PDF; a longer one is refused'),
     pdfMaxSeconds: z.number().positive().default(120).describe('Time allowed to read one PDF\'s text; a slower one is refused'),
     documentMaxChars: z.number().int().min(1).default(5_000_000).describe('Most characters of text taken from one document (about 1,500 dense pages); a longer one is refused before it is split into chunks'),
+    documentMaxDistinctWords: z
+      .number()
+      .int()
+      .min(1)
+      .default(100_000)
+      .describe(
+        'Most distinct words in one document; index memory grows with them. Prose of 5,000,000 characters has about 40,000 by Heaps\' law (K 44, beta 0.49, the fit to RCV1 in Manning, Raghavan and Schütze\'s Introduction to Information Retrieval, ch. 5; from memory), so a document past this is a word list, a log or encoded data',
+      ),
     documentMaxChunks: z.number().int().min(1).default(10_000).describe('Most chunks made from one document; a document that needs more is refused before anything of it is embedded'),
     parseMaxSeconds: z.number().positive().default(120).describe('Time allowed to read, normalise and split one document into chunks (embedding not included); checked between steps, a slower document is refused'),
     htmlMaxDepth: z.number().int().min(8).default(512).describe('Deepest element nesting read in an HTML page or a converted Word file; a deeper one is refused while it is parsed'),

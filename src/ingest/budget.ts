@@ -16,6 +16,8 @@ export interface DocumentLimits {
   zipMaxInflatedBytes: number;
   /** Most entries in a ZIP package. */
   zipMaxEntries: number;
+  /** Most distinct words in one document (the size of what its words add to the indexes). */
+  maxDistinctWords: number;
 }
 
 /** The configuration's defaults, for callers (tests, evaluation loaders) that pass none. */
@@ -26,6 +28,7 @@ export const DEFAULT_DOCUMENT_LIMITS: DocumentLimits = {
   htmlMaxDepth: 512,
   zipMaxInflatedBytes: 64 * 1024 * 1024,
   zipMaxEntries: 2000,
+  maxDistinctWords: 100_000,
 };
 
 /** A document refused for passing a limit; the message names the option (`limits.<name>`). */
@@ -49,6 +52,27 @@ export function checkChars(count: number, limits: Pick<DocumentLimits, 'maxChars
       'documentMaxChars',
       `${what} ${fmt(count)} characters of text, over the limit of ${fmt(limits.maxChars)} (limits.documentMaxChars)`,
     );
+  }
+}
+
+const WORD_RE = /[\p{L}\p{N}]+/gu;
+
+/**
+ * Throws when the text holds more distinct words than `limits.documentMaxDistinctWords`. The in-memory
+ * lexical index, FTS5's vocabulary and the answer step's spelling index all grow with distinct words, not
+ * with length: a 4.9 MB line of 620,000 different tokens cost the service over 1 GB, a prose document of the
+ * same length a fraction of that. Counting stops at the limit, so the check itself is bounded too.
+ */
+export function checkDistinctWords(text: string, limits: Pick<DocumentLimits, 'maxDistinctWords'>): void {
+  const seen = new Set<string>();
+  for (const m of text.matchAll(WORD_RE)) {
+    seen.add(m[0].toLowerCase());
+    if (seen.size > limits.maxDistinctWords) {
+      throw new LimitExceeded(
+        'documentMaxDistinctWords',
+        `the document has more than ${fmt(limits.maxDistinctWords)} distinct words (limits.documentMaxDistinctWords); stopped at character ${fmt(m.index)} of ${fmt(text.length)}`,
+      );
+    }
   }
 }
 

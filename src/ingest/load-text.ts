@@ -149,6 +149,11 @@ export function loadText(
   limits: DocumentLimits = DEFAULT_DOCUMENT_LIMITS,
   deadline: Deadline = NO_DEADLINE,
 ): LoadedDocument {
+  // Every character takes at most 3 bytes (UTF-8 within the Basic Multilingual Plane; 4 bytes outside it
+  // make 2 characters, UTF-16 makes 1 of 2 bytes): a file longer than 3 bytes a character over the limit
+  // holds too many characters whatever it decodes to, so it is refused before it is decoded.
+  const atLeast = Math.floor(Math.max(0, bytes.length - 3) / 3);
+  if (atLeast > limits.maxChars) checkChars(atLeast, limits, 'the document has at least');
   const text = decodeText(bytes);
   // Checked before the text is split into lines and blocks, the work it bounds.
   checkChars(text.length, limits);

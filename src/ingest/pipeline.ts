@@ -13,7 +13,7 @@ import { documentId, walk } from './files.js';
 import { rebuildCollection } from './full-reindex.js';
 import { loadDocument } from './load.js';
 import type { PdfLimits } from './load-pdf.js';
-import { DEFAULT_DOCUMENT_LIMITS, LimitExceeded, NO_DEADLINE, startDeadline, type Deadline, type DocumentLimits } from './budget.js';
+import { checkDistinctWords, DEFAULT_DOCUMENT_LIMITS, LimitExceeded, NO_DEADLINE, startDeadline, type Deadline, type DocumentLimits } from './budget.js';
 import { buildNormalisedDocument } from './normalise.js';
 import { addInto, emptySummary, fail, type FileOutcome, type IngestSummary } from './summary.js';
 
@@ -186,6 +186,7 @@ export function createIngestor(deps: {
     if (normalised.text.trim().length === 0) return fail(summary, source, 'no text found in the document');
     let drafts: ChunkDraft[];
     try {
+      checkDistinctWords(normalised.text, limits);
       drafts = chunkDocument(normalised, {
         targetTokens,
         maxTokens,

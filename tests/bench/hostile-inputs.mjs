@@ -26,13 +26,46 @@ function wordFile(body, declare) {
   ]);
 }
 
+/**
+ * Text of about `chars` characters in sentences of 12 words drawn from `vocabulary` made-up words with Zipf's
+ * law (rank r has weight 1/r), from a seeded generator: the shape of real prose, without a real text.
+ */
+function prose(chars, vocabulary) {
+  const words = Array.from({ length: vocabulary }, (_, i) => `w${i.toString(36)}`);
+  const cumulative = [];
+  let total = 0;
+  for (let r = 1; r <= vocabulary; r++) cumulative.push((total += 1 / r));
+  let seed = 12345;
+  const next = () => ((seed = (seed * 1103515245 + 12345) % 2 ** 31) / 2 ** 31) * total;
+  const pick = () => {
+    const x = next();
+    let lo = 0;
+    let hi = cumulative.length - 1;
+    while (lo < hi) {
+      const mid = (lo + hi) >> 1;
+      if (cumulative[mid] < x) lo = mid + 1;
+      else hi = mid;
+    }
+    return words[lo];
+  };
+  const parts = [];
+  let length = 0;
+  for (let s = 0; length < chars; s++) {
+    const sentence = `${Array.from({ length: 12 }, pick).join(' ')}.${s % 8 === 7 ? '\n\n' : ' '}`;
+    parts.push(sentence);
+    length += sentence.length;
+  }
+  return parts.join('');
+}
+
 /** label → [file name, () => the file's bytes or text] */
 export const INPUTS = {
   'ZIP bomb as .txt, 100 MiB, honest headers': ['meeting.txt', () => wordFile(`<w:p><w:r><w:t>${'A'.repeat(100 * MiB)}</w:t></w:r></w:p>`)],
   'ZIP bomb as .txt, 400 MiB, headers declare 1 KB': ['minutes.txt', () => wordFile(`<w:p><w:r><w:t>${'A'.repeat(400 * MiB)}</w:t></w:r></w:p>`, 1000)],
   'Word file, 60 MiB of paragraphs': ['stops.docx', () => wordFile(`<w:p><w:r><w:t>${'Tram stop '.repeat(100)}</w:t></w:r></w:p>`.repeat(Math.ceil((60 * MiB) / 1037)))],
   '50 MB single line': ['one-line.txt', () => 'fare '.repeat(10_000_000)],
-  '4.9 MB single line of distinct words (under the limit)': ['long-line.txt', () => Array.from({ length: 620_000 }, (_, i) => `s${i}`).join(' ')],
+  '4.9 MB single line of 620,000 distinct words': ['long-line.txt', () => Array.from({ length: 620_000 }, (_, i) => `s${i}`).join(' ')],
+  '3 MB of prose, 20,000-word vocabulary (under the limits)': ['long-prose.txt', () => prose(3_000_000, 20_000)],
   'HTML nested 200,000 deep': ['deep.html', () => `<!doctype html><html><body>${'<div>'.repeat(200_000)}x${'</div>'.repeat(200_000)}</body></html>`],
 };
 

@@ -132,8 +132,17 @@ describe('text and markup past the limits', () => {
     const line = 'fare '.repeat(10_000_000); // 50,000,000 characters, no line break
     const { summary } = await ingestOne('one-line.txt', line);
     expect(summary.failures).toEqual([
-      { source: 'one-line.txt', reason: 'the document has 50,000,000 characters of text, over the limit of 5,000,000 (limits.documentMaxChars)' },
+      // Refused on its byte count, before it is decoded: at most 3 bytes make a character.
+      { source: 'one-line.txt', reason: 'the document has at least 16,666,665 characters of text, over the limit of 5,000,000 (limits.documentMaxChars)' },
     ]);
+  });
+
+  it('a text file within three bytes a character of the limit is decoded and counted exactly', async () => {
+    const { summary } = await ingestOne('fares.txt', 'fare '.repeat(240), { documentMaxChars: 1000 });
+    expect(summary.failures).toEqual([{ source: 'fares.txt', reason: 'the document has 1,200 characters of text, over the limit of 1,000 (limits.documentMaxChars)' }]);
+    // Three-byte characters: 1,200 bytes are 400 characters, within the limit, and read.
+    const wide = await ingestOne('wide.txt', '運'.repeat(400), { documentMaxChars: 1000 });
+    expect(wide.summary.failures).toEqual([]);
   });
 
   it('HTML nested 200,000 elements deep fails on limits.htmlMaxDepth while it is parsed', async () => {
@@ -157,6 +166,19 @@ describe('text and markup past the limits', () => {
     expect(summary.failures).toHaveLength(1);
     expect(summary.failures[0]!.reason).toMatch(/^the document needs more than 5 chunks \(limits\.documentMaxChunks\); stopped at character \d[\d,]* of \d[\d,]*$/);
     expect(rt.repo.listDocuments('c')).toEqual([]);
+  });
+
+  it('a word list of more distinct words than limits.documentMaxDistinctWords fails before it is split, and a document within it is read', async () => {
+    const list = Array.from({ length: 3000 }, (_, i) => `code${i}`).join(' ');
+    const { summary, rt } = await ingestOne('codes.txt', list, { documentMaxDistinctWords: 2000 });
+    expect(summary.failures).toHaveLength(1);
+    expect(summary.failures[0]!.reason).toMatch(/^the document has more than 2,000 distinct words \(limits\.documentMaxDistinctWords\); stopped at character [\d,]+ of [\d,]+$/);
+    expect(rt.repo.listDocuments('c')).toEqual([]);
+    // The same length of text in few words is read: the limit is on the vocabulary, not the size.
+    const prose = Array.from({ length: 3000 }, (_, i) => `code${i % 50}`).join(' ');
+    const again = await ingestOne('codes.txt', prose, { documentMaxDistinctWords: 2000 });
+    expect(again.summary.failures).toEqual([]);
+    expect(again.rt.repo.listDocuments('c')).toHaveLength(1);
   });
 });
 
