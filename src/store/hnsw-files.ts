@@ -107,6 +107,26 @@ export function createIndexFiles(dir: string) {
         return { index: null, reason: `unreadable: ${(err as Error).message}` };
       }
     },
+    /**
+     * `load` with the file read by hnswlib off the JavaScript thread (its asynchronous readIndex): a reader keeps
+     * answering from the index it has while the next one is read.
+     */
+    async loadAsync(c: string, expect: { embedderId: string; dimensions: number }): Promise<{ index: Hnsw; meta: IndexMeta } | { index: null; reason: string | null }> {
+      const meta = readMeta(c);
+      if (!meta) return { index: null, reason: null };
+      if (meta.embedderId !== expect.embedderId || meta.dimensions !== expect.dimensions) {
+        return { index: null, reason: `built with ${meta.embedderId}` };
+      }
+      const file = path.join(dir, meta.file);
+      if (!existsSync(file)) return { index: null, reason: null };
+      try {
+        const index = new HierarchicalNSW('ip', expect.dimensions);
+        if (!(await index.readIndex(file))) return { index: null, reason: 'unreadable' };
+        return { index, meta };
+      } catch (err) {
+        return { index: null, reason: `unreadable: ${(err as Error).message}` };
+      }
+    },
     /** Removes the saved files of `c` but `keep`. */
     remove(c: string, keep?: string): void {
       const meta = readMeta(c);
