@@ -102,3 +102,10 @@ export function exactSearch(
   }
   return scored.sort((a, b) => b.score - a.score || a.chunkId - b.chunkId).slice(0, n);
 }
+
+/** hnswlib's answer (inner-product distances) as hits with cosine scores (vectors are unit length). */
+export function toHits(res: { neighbors: number[]; distances: number[] }): VectorHit[] {
+  const hits: VectorHit[] = [];
+  for (let i = 0; i < res.neighbors.length; i++) hits.push({ chunkId: res.neighbors[i]!, score: 1 - res.distances[i]! });
+  return hits;
+}

@@ -262,4 +262,21 @@ describe('a vector index changed in place', () => {
     const now = new Set(repo.chunksOfCollection('c').filter((r) => r.id % 7 === 0 || r.id > Math.max(...allowed)).map((r) => r.id));
     expect(reader.search('c', q, 10, now).map((h) => h.chunkId)).toEqual(exact(now));
   });
+
+  it('grows a new collection\'s graph in place from its first document, and declines when it cannot know the collection was empty', () => {
+    const first = make();
+    expect(write(first, 'd0', 6)).toBe(true);
+    expect(write(first, 'd1', 6)).toBe(true);
+    expect(first.size('c')).toBe(12);
+    expect(first.sync('c')).toMatchObject({ added: 0, removed: 0, rebuilt: false, size: 12 });
+    // Another collection with chunks but no saved file: an index with no state cannot start empty there.
+    repo.ensureCollection('other');
+    const chunks = [{ ordinal: 0, text: 'x', start: 0, end: 1, headingPath: [], pageStart: null, pageEnd: null, tokenCount: 1, chunkHash: 'other-0' }];
+    const doc = (id: string) => ({ id, collection: 'other', source: `${id}.txt`, root: null, title: id, format: 'text' as const, contentHash: id, byteSize: 1, pageCount: null, effectiveDate: null, metadata: {}, text: 'x', settingsKey: 's' });
+    repo.replaceDocument(doc('o1'), chunks, new Map([['other-0', unitVector(rand)]]), 'emb');
+    const later = repo.replaceDocument(doc('o2'), [{ ...chunks[0]!, chunkHash: 'other-1' }], new Map([['other-1', unitVector(rand)]]), 'emb');
+    const idx = make();
+    expect(idx.apply('other', { generation: later.generation, removed: [], added: [{ id: later.chunkIds[0]!, vector: unitVector(rand) }] })).toBe(false);
+    expect(idx.sync('other')).toMatchObject({ rebuilt: true, size: 2 });
+  });
 });
