@@ -3,7 +3,7 @@ import path from 'node:path';
 import { createIndexFiles, newIndex, type Hnsw, type IndexMeta } from './hnsw-files.js';
 import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
 import type { HnswParams, SyncResult, VectorChange, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
-import { exactSearch, toHits, VectorCache } from './vector-cache.js';
+import { EXACT_SCAN_LIMIT, exactSearch, toHits, VectorCache } from './vector-cache.js';
 
 export type { HnswParams, SyncResult, VectorChange, VectorHit, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
 
@@ -39,6 +39,7 @@ export function createVectorIndexes(deps: {
   /** Work under way off the query path, per collection: reads of later files, fills of the vector cache. */
   const reading = new Map<string, Promise<void>>();
   const filling = new Map<string, Promise<void>>();
+  const filled = new WeakSet<Loaded>();
   let epoch = 0;
   mkdirSync(dir, { recursive: true });
   const files = createIndexFiles(dir);
@@ -118,7 +119,9 @@ export function createVectorIndexes(deps: {
   /** Fills the collection's vector cache from the stored vectors, a slice per turn of the event loop. */
   const fill = (c: string): void => {
     const state = loaded.get(c);
-    if (!state || filling.has(c)) return;
+    // Once per index in memory (a read of a later file brings a new one): finding what is missing walks every point.
+    if (!state || filling.has(c) || filled.has(state)) return;
+    filled.add(state);
     let cache = caches.get(c);
     if (!cache) caches.set(c, (cache = new VectorCache(dimensions, state.live.size + 16)));
     if (cache.size > state.live.size * 1.25 + 64) cache.retain(state.live);
@@ -385,8 +388,6 @@ export function createVectorIndexes(deps: {
     },
   };
 }
-
-const EXACT_SCAN_LIMIT = 2000;
 
 function needsCompaction(state: Loaded): boolean {
   const deleted = state.index.getCurrentCount() - state.live.size;

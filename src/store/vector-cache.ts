@@ -5,6 +5,9 @@
 // points that left the index need dropping.
 import type { VectorHit } from './hnsw-types.js';
 
+/** Allowed sets up to this size are scanned exactly instead of walking the graph through a filter. */
+export const EXACT_SCAN_LIMIT = 2000;
+
 export class VectorCache {
   private data: Float32Array;
   private readonly slots = new Map<number, number>();
