@@ -2,7 +2,7 @@
 // `<collection>.meta.json`, which names the index file and the generation it holds. Renaming the meta file into
 // place is the commit point of a save, so a reader sees the old pair or the new one, never half of either.
 
-import { closeSync, existsSync, fsyncSync, openSync, readFileSync, renameSync, statSync, unlinkSync, writeFileSync } from 'node:fs';
+import { closeSync, existsSync, fsyncSync, openSync, readdirSync, readFileSync, renameSync, statSync, unlinkSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { threadId } from 'node:worker_threads';
 import hnswlib from 'hnswlib-node';
@@ -88,6 +88,7 @@ export function createIndexFiles(dir: string) {
       renameSync(metaTmp, metaPath(c));
       fsyncDir(dir);
       if (onDisk && onDisk.file !== file) unlinkQuietly(path.join(dir, onDisk.file));
+      removeOrphanTemporaries(dir);
       return written;
     },
     /** Reads the saved index of `c`; null when there is none, or it is unreadable or of another embedder. */
@@ -144,6 +145,34 @@ export function newIndex(dimensions: number, capacity: number, params: { m: numb
   const idx = new HierarchicalNSW('ip', dimensions);
   idx.initIndex({ maxElements: Math.max(16, capacity), m: params.m, efConstruction: params.efConstruction, randomSeed: 100 });
   return idx;
+}
+
+/**
+ * Removes the temporaries of saves that a killed process left (their names carry its process id). A live
+ * process's, this one's included, are left alone.
+ */
+function removeOrphanTemporaries(dir: string): void {
+  let names: string[];
+  try {
+    names = readdirSync(dir);
+  } catch {
+    return;
+  }
+  for (const name of names) {
+    const m = /\.tmp-(\d+)-\d+$/.exec(name);
+    if (!m || Number(m[1]) === process.pid || processAlive(Number(m[1]))) continue;
+    unlinkQuietly(path.join(dir, name));
+  }
+}
+
+function processAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (err) {
+    // EPERM: it exists, under another user.
+    return (err as NodeJS.ErrnoException).code === 'EPERM';
+  }
 }
 
 export function unlinkQuietly(file: string): void {

@@ -1,4 +1,4 @@
-import { mkdtempSync, readdirSync, rmSync } from 'node:fs';
+import { mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
@@ -279,4 +279,21 @@ describe('a vector index changed in place', () => {
     expect(idx.apply('other', { generation: later.generation, removed: [], added: [{ id: later.chunkIds[0]!, vector: unitVector(rand) }] })).toBe(false);
     expect(idx.sync('other')).toMatchObject({ rebuilt: true, size: 2 });
   });
+
+  it('removes, when it saves, the temporaries a killed process left, and no live process\'s', () => {
+    const idx = make();
+    write(idx, 'd0', 4);
+    idx.sync('c');
+    const indexDir = path.join(dir, 'index');
+    // No process can have a pid above the kernel's limit: that process is certainly gone.
+    const gone = Number(readFileSync('/proc/sys/kernel/pid_max', 'utf8').trim()) + 1;
+    writeFileSync(path.join(indexDir, `c.g7.hnsw.tmp-${gone}-0`), 'half a save');
+    writeFileSync(path.join(indexDir, `c.meta.json.tmp-${gone}-3`), '{');
+    writeFileSync(path.join(indexDir, `c.g8.hnsw.tmp-${process.ppid}-0`), 'a save under way');
+    write(idx, 'd1', 4);
+    idx.sync('c');
+    const left = readdirSync(indexDir).filter((f) => f.includes('.tmp-'));
+    expect(left).toEqual([`c.g8.hnsw.tmp-${process.ppid}-0`]);
+  });
 });
+
