@@ -21,7 +21,7 @@ export interface JobContext {
     | 'collectionState'
   > & { jobs: JobStore; leases: LeaseStore };
   ingestor: Pick<Ingestor, 'ingestPath' | 'reindex'>;
-  indexes: Pick<VectorIndexes, 'sync' | 'apply'>;
+  indexes: Pick<VectorIndexes, 'sync' | 'apply' | 'settled'>;
   /** Uploaded originals kept by content hash (src/store/originals.ts). */
   originals: Originals;
   /** This process, as the holder of the jobs it runs. */

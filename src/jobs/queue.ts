@@ -123,14 +123,16 @@ export function createJobQueue(deps: {
   };
   const finished = (id: string): void => {
     const job = ctx.store.jobs.get(id);
-    // The worker saved the index file; this thread only brings its memory up to date.
+    // The worker saved the index file; this thread reads it off the thread and answers from the index it has
+    // until then. The queue counts as idle once the read is done, so that waiting for idle means searchable.
     if (job?.collection) ctx.indexes.sync(job.collection, { persist: false });
     if (job) deps.onJobDone?.(job);
-    notifyIdle();
+    if (job?.collection) void ctx.indexes.settled(job.collection).then(notifyIdle);
+    else notifyIdle();
   };
 
   const idle = (): Promise<void> => {
-    if (pending() === 0) return Promise.resolve();
+    if (pending() === 0) return ctx.indexes.settled();
     return new Promise<void>((resolve) => idleWaiters.push(resolve));
   };
 

@@ -2,7 +2,7 @@
 // `<collection>.meta.json`, which names the index file and the generation it holds. Renaming the meta file into
 // place is the commit point of a save, so a reader sees the old pair or the new one, never half of either.
 
-import { closeSync, existsSync, fsyncSync, openSync, readFileSync, renameSync, statSync, unlinkSync, writeFileSync } from 'node:fs';
+import { closeSync, existsSync, fsyncSync, openSync, readdirSync, readFileSync, renameSync, statSync, unlinkSync, writeFileSync } from 'node:fs';
 import path from 'node:path';
 import { threadId } from 'node:worker_threads';
 import hnswlib from 'hnswlib-node';
@@ -88,6 +88,7 @@ export function createIndexFiles(dir: string) {
       renameSync(metaTmp, metaPath(c));
       fsyncDir(dir);
       if (onDisk && onDisk.file !== file) unlinkQuietly(path.join(dir, onDisk.file));
+      removeOrphanTemporaries(dir);
       return written;
     },
     /** Reads the saved index of `c`; null when there is none, or it is unreadable or of another embedder. */
@@ -102,6 +103,26 @@ export function createIndexFiles(dir: string) {
       try {
         const index = new HierarchicalNSW('ip', expect.dimensions);
         index.readIndexSync(file);
+        return { index, meta };
+      } catch (err) {
+        return { index: null, reason: `unreadable: ${(err as Error).message}` };
+      }
+    },
+    /**
+     * `load` with the file read by hnswlib off the JavaScript thread (its asynchronous readIndex): a reader keeps
+     * answering from the index it has while the next one is read.
+     */
+    async loadAsync(c: string, expect: { embedderId: string; dimensions: number }): Promise<{ index: Hnsw; meta: IndexMeta } | { index: null; reason: string | null }> {
+      const meta = readMeta(c);
+      if (!meta) return { index: null, reason: null };
+      if (meta.embedderId !== expect.embedderId || meta.dimensions !== expect.dimensions) {
+        return { index: null, reason: `built with ${meta.embedderId}` };
+      }
+      const file = path.join(dir, meta.file);
+      if (!existsSync(file)) return { index: null, reason: null };
+      try {
+        const index = new HierarchicalNSW('ip', expect.dimensions);
+        if (!(await index.readIndex(file))) return { index: null, reason: 'unreadable' };
         return { index, meta };
       } catch (err) {
         return { index: null, reason: `unreadable: ${(err as Error).message}` };
@@ -124,6 +145,34 @@ export function newIndex(dimensions: number, capacity: number, params: { m: numb
   const idx = new HierarchicalNSW('ip', dimensions);
   idx.initIndex({ maxElements: Math.max(16, capacity), m: params.m, efConstruction: params.efConstruction, randomSeed: 100 });
   return idx;
+}
+
+/**
+ * Removes the temporaries of saves that a killed process left (their names carry its process id). A live
+ * process's, this one's included, are left alone.
+ */
+function removeOrphanTemporaries(dir: string): void {
+  let names: string[];
+  try {
+    names = readdirSync(dir);
+  } catch {
+    return;
+  }
+  for (const name of names) {
+    const m = /\.tmp-(\d+)-\d+$/.exec(name);
+    if (!m || Number(m[1]) === process.pid || processAlive(Number(m[1]))) continue;
+    unlinkQuietly(path.join(dir, name));
+  }
+}
+
+function processAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (err) {
+    // EPERM: it exists, under another user.
+    return (err as NodeJS.ErrnoException).code === 'EPERM';
+  }
 }
 
 export function unlinkQuietly(file: string): void {

@@ -2,18 +2,10 @@ import { existsSync, mkdirSync } from 'node:fs';
 import path from 'node:path';
 import { createIndexFiles, newIndex, type Hnsw, type IndexMeta } from './hnsw-files.js';
 import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
+import type { HnswParams, SyncResult, VectorChange, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
+import { EXACT_SCAN_LIMIT, exactSearch, toHits, VectorCache } from './vector-cache.js';
 
-export interface HnswParams {
-  m: number;
-  efConstruction: number;
-  efSearch: number;
-}
-
-export interface VectorHit {
-  chunkId: number;
-  /** Cosine similarity (vectors are unit length, so 1 - inner-product distance). */
-  score: number;
-}
+export type { HnswParams, SyncResult, VectorChange, VectorHit, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
 
 interface Loaded {
   index: Hnsw;
@@ -23,78 +15,17 @@ interface Loaded {
   saved: boolean;
 }
 
-export interface VectorIndexLogger {
-  info(obj: object, msg: string): void;
-  warn(obj: object, msg: string): void;
-}
-
-/** One write's effect on a collection's vectors, as the writer knows it from the write itself. */
-export interface VectorChange {
-  /** The collection's generation the write moved it to. */
-  generation: number;
-  removed: readonly number[];
-  added: readonly { id: number; vector: Float32Array }[];
-}
-
-export interface SyncResult {
-  added: number;
-  removed: number;
-  rebuilt: boolean;
-  size: number;
-  /** The index was replaced by the file another writer saved. */
-  loaded?: boolean;
-  /** Tombstones were dropped by building the graph again from its live points. */
-  compacted?: boolean;
-}
-
-export interface VectorIndexes {
-  /**
-   * Writers (`persist`, the default: ingest, re-index, start-up) bring the collection's index in step with the
-   * database, checking it against every stored chunk when it was not kept in step by `apply`, save it with the
-   * generation it holds, and drop tombstones past a quarter of the graph by building it again, after saving.
-   * Readers (`persist: false`, the query path) never patch, rebuild or write: when the database has moved on
-   * and a writer has saved a later generation, they load that file; until then they keep what they have. Only
-   * a reader with no index at all builds one in memory.
-   * `generation`: the collection's generation when the caller has just read it (saves a lookup per query).
-   */
-  sync(collection: string, opts?: { persist?: boolean; generation?: number }): SyncResult;
-  /**
-   * A writer's change applied in place (new points added, removed ones marked deleted), when the index holds
-   * exactly the generation before it; memory only, saved by the writer's next `sync`. Returns false when the
-   * index was not at that generation: the next `sync` then checks it against the database.
-   */
-  apply(collection: string, change: VectorChange): boolean;
-  /**
-   * Makes the index of collection `from` (a shadow built by a full re-index) the index of `to` at
-   * `generation`, holding exactly `rows`: saved under `to`'s name before the database switches, so that every
-   * reader, in this process or another, swaps by loading one file instead of rebuilding. `from`'s files go.
-   */
-  adopt(from: string, to: string, generation: number, rows: readonly { id: number; chunkHash: string }[]): void;
-  /** Drops a collection's in-memory index and its files (a shadow collection that was given up). */
-  discard(collection: string): void;
-  /** The generation the collection's saved index holds (its description file only), or null when none is whole on disk. */
-  savedGeneration(collection: string): number | null;
-  /**
-   * The k nearest live vectors; with `allowed`, only among those chunk ids, and still k of them when that
-   * many exist (the filter runs inside the graph search, with an exact scan when it is very selective).
-   */
-  search(collection: string, vector: Float32Array, k: number, allowed?: ReadonlySet<number>): VectorHit[];
-  size(collection: string): number;
-  /** Tombstones (points marked deleted) in the collection's in-memory graph. */
-  deletedCount(collection: string): number;
-  /** Forgets in-memory state, e.g. before closing. */
-  close(): void;
-}
-
 /**
  * Past this share of tombstones a writer builds the graph again. Deleted points stay in the graph as waypoints
  * (hnswlib's markDelete), so searches still visit them; a quarter is a rule of thumb, not a measured optimum.
  */
 const COMPACT_SHARE = 0.25;
 const COMPACT_MIN = 256;
+/** Stored vectors read per turn of the event loop while the filter's vector cache fills (~5 ms at 384 dims). */
+const FILL_SLICE = 512;
 
 export function createVectorIndexes(deps: {
-  repo: Pick<CollectionStore, 'collectionState'> & Pick<ChunkStore, 'chunksOfCollection'> & Pick<VectorStore, 'getVectors' | 'chunkVectors'>;
+  repo: Pick<CollectionStore, 'collectionState' | 'getCollection'> & Pick<ChunkStore, 'chunksOfCollection'> & Pick<VectorStore, 'getVectors' | 'chunkVectors'>;
   dir: string;
   embedderId: string;
   dimensions: number;
@@ -103,6 +34,13 @@ export function createVectorIndexes(deps: {
 }): VectorIndexes {
   const { repo, dir, embedderId, dimensions, params, logger } = deps;
   const loaded = new Map<string, Loaded>();
+  const caches = new Map<string, VectorCache>();
+  const read = (ids: number[]): ReadonlyMap<number, Float32Array> => repo.chunkVectors(embedderId, ids);
+  /** Work under way off the query path, per collection: reads of later files, fills of the vector cache. */
+  const reading = new Map<string, Promise<void>>();
+  const filling = new Map<string, Promise<void>>();
+  const filled = new WeakSet<Loaded>();
+  let epoch = 0;
   mkdirSync(dir, { recursive: true });
   const files = createIndexFiles(dir);
 
@@ -155,17 +93,88 @@ export function createVectorIndexes(deps: {
     if (needed > state.index.getMaxElements()) state.index.resizeIndex(Math.ceil(needed * 1.25) + 16);
   };
 
-  const remove = (state: Loaded, id: number): boolean => {
+  const remove = (c: string, state: Loaded, id: number): boolean => {
     if (!state.live.has(id)) return false;
     state.index.markDelete(id);
     state.live.delete(id);
+    caches.get(c)?.delete(id);
     return true;
+  };
+
+  /** The collection held no chunk before this change: all it holds now is what the change added. */
+  const firstWrite = (c: string, change: VectorChange): boolean => {
+    const now = repo.getCollection(c);
+    return change.removed.length === 0 && now !== null && now.generation === change.generation && now.chunks === change.added.length;
+  };
+
+  // hnswlib-node takes a plain array; one is filled per point (Array.from costs ~0.25 ms at 4,096 dimensions).
+  const plain = new Array<number>(dimensions).fill(0);
+  const addPoint = (c: string, state: Loaded, id: number, v: Float32Array): void => {
+    for (let i = 0; i < dimensions; i++) plain[i] = v[i]!;
+    state.index.addPoint(plain, id);
+    state.live.add(id);
+    caches.get(c)?.set(id, v);
+  };
+
+  /** Fills the collection's vector cache from the stored vectors, a slice per turn of the event loop. */
+  const fill = (c: string): void => {
+    const state = loaded.get(c);
+    // Once per index in memory (a read of a later file brings a new one): finding what is missing walks every point.
+    if (!state || filling.has(c) || filled.has(state)) return;
+    filled.add(state);
+    let cache = caches.get(c);
+    if (!cache) caches.set(c, (cache = new VectorCache(dimensions, state.live.size + 16)));
+    if (cache.size > state.live.size * 1.25 + 64) cache.retain(state.live);
+    const todo = cache.missing(state.live);
+    if (todo.length === 0) return;
+    const mine = epoch;
+    const held = cache;
+    const run = (async () => {
+      for (let i = 0; i < todo.length; i += FILL_SLICE) {
+        await new Promise<void>((resolve) => setImmediate(resolve));
+        if (mine !== epoch || caches.get(c) !== held) return;
+        const live = loaded.get(c)?.live;
+        const slice = todo.slice(i, i + FILL_SLICE).filter((id) => live?.has(id) && !held.has(id));
+        for (const [id, v] of repo.chunkVectors(embedderId, slice)) held.set(id, v);
+      }
+    })()
+      .catch((err: Error) => logger?.warn({ collection: c, err: err.message }, 'could not fill the vector cache'))
+      .finally(() => filling.delete(c));
+    filling.set(c, run);
+  };
+
+  /** Reads the later file a writer saved off the thread; the index in memory answers until it is ready. */
+  const readLater = (c: string, base: Loaded, disk: number): void => {
+    const mine = epoch;
+    const run = files
+      .loadAsync(c, { embedderId, dimensions })
+      .then((r) => {
+        // Dropped when something else moved this collection's index meanwhile (a write here, a close).
+        if (mine !== epoch || loaded.get(c) !== base) return;
+        if (!r.index) {
+          if (r.reason) logger?.warn({ collection: c, reason: r.reason }, 'later vector index file not usable; keeping the one in memory');
+          return;
+        }
+        if (r.meta.generation <= base.meta.generation) return;
+        r.index.setEf(params.efSearch);
+        const deleted = new Set(r.meta.deleted);
+        const live = new Set(r.index.getIdsList().filter((id) => !deleted.has(id)));
+        loaded.set(c, { index: r.index, meta: r.meta, live, saved: true });
+        const cache = caches.get(c);
+        if (cache && cache.size > live.size * 1.25 + 64) cache.retain(live);
+        logger?.info({ collection: c, generation: r.meta.generation, from: disk }, 'vector index loaded from the file a writer saved');
+      })
+      .catch((err: Error) => logger?.warn({ collection: c, err: err.message }, 'could not read the later vector index file'))
+      .finally(() => {
+        if (reading.get(c) === run) reading.delete(c);
+      });
+    reading.set(c, run);
   };
 
   /** Marks deleted what `rows` no longer holds and adds what is missing, from the stored vectors. */
   const patch = (c: string, state: Loaded, rows: readonly { id: number; chunkHash: string }[], wanted: ReadonlyMap<number, string>) => {
     let removed = 0;
-    for (const id of [...state.live]) if (!wanted.has(id) && remove(state, id)) removed++;
+    for (const id of [...state.live]) if (!wanted.has(id) && remove(c, state, id)) removed++;
     const missing = rows.filter((r) => !state.live.has(r.id));
     const vectors = repo.getVectors(embedderId, missing.map((r) => r.chunkHash));
     room(state, missing.length);
@@ -177,8 +186,7 @@ export function createVectorIndexes(deps: {
         withoutVector++;
         continue;
       }
-      state.index.addPoint(Array.from(v), r.id);
-      state.live.add(r.id);
+      addPoint(c, state, r.id, v);
       added++;
     }
     if (withoutVector > 0) logger?.warn({ collection: c, chunks: withoutVector }, 'chunks without a stored vector for this embedder are not in the vector index');
@@ -231,15 +239,13 @@ export function createVectorIndexes(deps: {
       if (!persist || !needsCompaction(state)) return { added: 0, removed: 0, rebuilt: false, size: state.live.size };
     }
     if (!persist && state) {
-      // The query path: a later file saved by a writer is loaded whole; nothing is patched or rebuilt here.
+      // The query path: a later file saved by a writer is read whole, off the thread; nothing is patched or
+      // rebuilt here. One read at a time: a file saved during it is read by the first sync after it ends.
+      if (reading.has(c)) return { added: 0, removed: 0, rebuilt: false, size: state.live.size, loading: true };
       const disk = files.savedGeneration(c);
       if (disk !== null && disk > state.meta.generation) {
-        const next = tryLoad(c);
-        if (next) {
-          loaded.set(c, next);
-          logger?.info({ collection: c, generation: next.meta.generation }, 'vector index loaded from the file a writer saved');
-          return { added: 0, removed: 0, rebuilt: false, size: next.live.size, loaded: true };
-        }
+        readLater(c, state, disk);
+        return { added: 0, removed: 0, rebuilt: false, size: state.live.size, loading: true };
       }
       return { added: 0, removed: 0, rebuilt: false, size: state.live.size };
     }
@@ -276,17 +282,24 @@ export function createVectorIndexes(deps: {
     let state = loaded.get(c) ?? null;
     if (!state || state.meta.generation !== change.generation - 1) {
       // Another writer (the request thread deleting a document, a CLI run) saved since this one last looked.
-      if (files.savedGeneration(c) !== change.generation - 1) return false;
-      state = tryLoad(c);
-      if (!state || state.meta.generation !== change.generation - 1) return false;
+      const saved = files.savedGeneration(c);
+      if (!state && saved === null && firstWrite(c, change)) {
+        // The collection's first chunks: the graph grows document by document from empty, instead of the
+        // closing sync reading every vector back from the store to build it.
+        state = emptyState(Math.max(1024, change.added.length + 16));
+        state.meta = { ...state.meta, generation: change.generation - 1 };
+      } else {
+        if (saved !== change.generation - 1) return false;
+        state = tryLoad(c);
+        if (!state || state.meta.generation !== change.generation - 1) return false;
+      }
       loaded.set(c, state);
     }
-    for (const id of change.removed) remove(state, id);
+    for (const id of change.removed) remove(c, state, id);
     room(state, change.added.length);
     for (const { id, vector } of change.added) {
       if (state.live.has(id) || vector.length !== dimensions) continue;
-      state.index.addPoint(Array.from(vector), id);
-      state.live.add(id);
+      addPoint(c, state, id, vector);
     }
     state.meta = { ...state.meta, generation: change.generation };
     state.saved = false;
@@ -313,6 +326,7 @@ export function createVectorIndexes(deps: {
     adopt,
     discard(c) {
       loaded.delete(c);
+      caches.delete(c);
       files.remove(c);
     },
     savedGeneration(c) {
@@ -329,14 +343,17 @@ export function createVectorIndexes(deps: {
         if (n === 0) return [];
         // Below a few thousand allowed vectors an exact scan costs about what a filtered graph walk does,
         // and a graph walk through a sparse filter can strand itself in regions with no allowed node.
-        if (ids.length <= EXACT_SCAN_LIMIT) return exactSearch(repo.chunkVectors(embedderId, ids), vector, n);
+        if (ids.length <= EXACT_SCAN_LIMIT) {
+          fill(c);
+          return exactSearch(ids, vector, n, caches.get(c) ?? null, read);
+        }
         let ef = Math.max(params.efSearch, n);
         for (;;) {
           state.index.setEf(ef);
           const res = state.index.searchKnn(query, n, (label) => allowed.has(label));
           if (res.neighbors.length >= n || ef >= ids.length) {
             state.index.setEf(params.efSearch);
-            return res.neighbors.length >= n ? toHits(res) : exactSearch(repo.chunkVectors(embedderId, ids), vector, n);
+            return res.neighbors.length >= n ? toHits(res) : exactSearch(ids, vector, n, caches.get(c) ?? null, read);
           }
           ef *= 4;
         }
@@ -352,37 +369,29 @@ export function createVectorIndexes(deps: {
       const state = loaded.get(c);
       return state ? state.index.getCurrentCount() - state.live.size : 0;
     },
+    async settled(c) {
+      for (;;) {
+        const busy = c === undefined ? [...reading.values(), ...filling.values()] : [reading.get(c), filling.get(c)].filter((p) => p !== undefined);
+        if (busy.length === 0) return;
+        await Promise.all(busy);
+      }
+    },
+    cachedVectors(c) {
+      return caches.get(c)?.size ?? 0;
+    },
     close() {
+      epoch++;
       loaded.clear();
+      caches.clear();
+      reading.clear();
+      filling.clear();
     },
   };
 }
 
-const EXACT_SCAN_LIMIT = 2000;
-
 function needsCompaction(state: Loaded): boolean {
   const deleted = state.index.getCurrentCount() - state.live.size;
   return deleted >= COMPACT_MIN && deleted > state.index.getCurrentCount() * COMPACT_SHARE;
-}
-
-function toHits(res: { neighbors: number[]; distances: number[] }): VectorHit[] {
-  const hits: VectorHit[] = [];
-  for (let i = 0; i < res.neighbors.length; i++) hits.push({ chunkId: res.neighbors[i]!, score: 1 - res.distances[i]! });
-  return hits;
-}
-
-/**
- * The exact top n of some points, from the stored vectors: one statement for all of them, where hnswlib's
- * getPoint builds a JavaScript array element by element (about 30 ms for 1,000 points of 384 dimensions).
- */
-function exactSearch(vectors: ReadonlyMap<number, Float32Array>, query: Float32Array, n: number): VectorHit[] {
-  const scored: VectorHit[] = [];
-  for (const [id, v] of vectors) {
-    let s = 0;
-    for (let i = 0; i < query.length; i++) s += query[i]! * v[i]!;
-    scored.push({ chunkId: id, score: s });
-  }
-  return scored.sort((a, b) => b.score - a.score || a.chunkId - b.chunkId).slice(0, n);
 }
 
 function deletedOf(state: Loaded): Set<number> {

@@ -300,6 +300,9 @@ describe('a reader in another process', () => {
     expect(reader.indexes.sync('c', { persist: false })).toMatchObject({ rebuilt: false, added: 0 });
     writeFileSync(path.join(docs, 'notice-020.md'), notice(20).replace('Quarrel Lane', 'Harrowgate Sidings'));
     await writer.ingestor.reindex({ collection: 'c', full: true });
+    // The reader reads the saved file off the thread; its queries use the index it had until then.
+    expect(reader.indexes.sync('c', { persist: false })).toMatchObject({ rebuilt: false, added: 0, removed: 0, loading: true });
+    await withDeadline(reader.indexes.settled('c'), { what: 'the reader to read the re-index\'s file', timeoutMs: 10_000 });
     const r = reader.indexes.sync('c', { persist: false });
     expect(r).toMatchObject({ rebuilt: false, added: 0, removed: 0 });
     expect(r.size).toBe(reader.repo.chunksOfCollection('c').length);

@@ -48,7 +48,7 @@ describe('uploads and deletions change the vector index in place', () => {
     // Every sync on this thread after a job loaded a file or found nothing to do: none added a vector.
     expect(seen.length).toBeGreaterThanOrEqual(2);
     for (const r of seen) expect(r).toMatchObject({ added: 0, removed: 0, rebuilt: false });
-    expect(seen.some((r) => r.loaded)).toBe(true);
+    expect(seen.some((r) => r.loading)).toBe(true);
     const hits = await rt.retriever.search({ query: 'night buses after midnight', collection: 'c', k: 2, mode: 'dense' });
     expect(hits[0]!.source).toBe('night-buses.md');
     const meta = JSON.parse(readFileSync(path.join(dataDir, 'index', 'c.meta.json'), 'utf8')) as { generation: number };
