@@ -294,7 +294,7 @@ export async function ingestAsJob(
 }
 
 /** The HTTP layer's view of a runtime. */
-export function appDeps(rt: Runtime, isReady: () => boolean, documents?: DocumentService, queue?: Pick<JobQueue, 'health'>): AppDeps {
+export function appDeps(rt: Runtime, isReady: (collection?: string) => boolean, documents?: DocumentService, queue?: Pick<JobQueue, 'health'>): AppDeps {
   return {
     ...(documents ? { documents } : {}),
     ...(queue ? { queueHealth: () => queue.health() } : {}),
@@ -376,7 +376,7 @@ export function createDocumentApi(
 }
 
 /** The HTTP app over a runtime, with the document API and its job queue (run in a worker thread). */
-export function createServer(rt: Runtime, opts: { isReady: () => boolean }): { app: FastifyInstance; queue: JobQueue } {
+export function createServer(rt: Runtime, opts: { isReady: (collection?: string) => boolean }): { app: FastifyInstance; queue: JobQueue } {
   const { queue, documents } = createDocumentApi(rt, 'thread');
   return { app: buildApp(rt.config, appDeps(rt, opts.isReady, documents, queue)), queue };
 }

@@ -85,7 +85,8 @@ export function grantedCollection(req: FastifyRequest): string {
 export interface AccessDeps {
   auth: Authenticator;
   limiter: RateLimiter;
-  isReady(): boolean;
+  /** Ready for everything; or, given a collection, ready to answer in it (start-up loads them one by one). */
+  isReady(collection?: string): boolean;
   defaultCollection: string;
   logger: Logger;
   metrics?: Metrics;
@@ -153,9 +154,14 @@ export function installAccessControl(app: FastifyInstance, deps: AccessDeps): vo
     }
     const p = req.principal;
     if (!access.scopes.some((s) => p.scopes.has(s))) throw new SourceboundError('SB_ERR_FORBIDDEN', [access.action]);
-    if (!access.whileLoading && !deps.isReady()) throw new SourceboundError('SB_ERR_NOT_READY');
+    // While the service starts, a request about one collection waits only for that collection (its
+    // collection is checked below, or once the body is parsed); anything else waits for all of them.
+    if (!access.whileLoading && !deps.isReady() && access.collection.in !== 'path' && access.collection.in !== 'body') {
+      throw new SourceboundError('SB_ERR_NOT_READY');
+    }
     if (access.collection.in === 'path') {
       req.grantedCollection = checkCollection(p, (req.params as { collection?: unknown } | undefined)?.collection);
+      if (!access.whileLoading && !deps.isReady(req.grantedCollection)) throw new SourceboundError('SB_ERR_NOT_READY');
     }
   });
 
@@ -165,11 +171,9 @@ export function installAccessControl(app: FastifyInstance, deps: AccessDeps): vo
     if (access?.kind !== 'key' || access.collection.in !== 'body') return;
     const body = req.body;
     const named = body !== null && typeof body === 'object' && !Array.isArray(body) ? (body as { collection?: unknown }).collection : undefined;
-    if (named === undefined) {
-      req.grantedCollection = access.collection.absent === 'default' ? checkCollection(req.principal, deps.defaultCollection) : null;
-      return;
-    }
-    req.grantedCollection = checkCollection(req.principal, named);
+    req.grantedCollection =
+      named !== undefined ? checkCollection(req.principal, named) : access.collection.absent === 'default' ? checkCollection(req.principal, deps.defaultCollection) : null;
+    if (!access.whileLoading && !deps.isReady(req.grantedCollection ?? undefined)) throw new SourceboundError('SB_ERR_NOT_READY');
   });
 }
 

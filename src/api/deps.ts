@@ -27,7 +27,8 @@ export interface AppDeps {
   logger: Logger;
   search(req: RetrieveRequest): Promise<SearchHit[]>;
   answer(req: AnswerRequest): Promise<AnswerResult>;
-  isReady(): boolean;
+  /** Ready for everything; or, given a collection, ready to answer in it. */
+  isReady(collection?: string): boolean;
   health(): Record<string, unknown>;
   /** The job queue's state; with it, `/health` answers 503 while the queue is down. */
   queueHealth?(): QueueHealth;

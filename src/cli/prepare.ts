@@ -12,10 +12,17 @@ import type { FromIndexThread, IndexThreadData } from '../index-worker.js';
 import { ingestAsJob, type Runtime } from '../runtime.js';
 import { storePaths } from '../store/index.js';
 
-/** Brings these collections' index files in step with the database, somewhere other than the request thread. */
-export type SyncIndexes = (rt: Runtime, collections: string[]) => Promise<void>;
+/**
+ * Brings these collections' index files in step with the database, somewhere other than the request thread;
+ * `onEach` hears of each collection as its file is ready.
+ */
+export type SyncIndexes = (rt: Runtime, collections: string[], onEach?: (collection: string) => void) => Promise<void>;
 
-export async function prepare(rt: Runtime, opts: { syncIndexes?: SyncIndexes } = {}): Promise<void> {
+/**
+ * `onReady` hears of each collection once its vector index is loaded on this thread, so requests about it can
+ * be answered while the others still load.
+ */
+export async function prepare(rt: Runtime, opts: { syncIndexes?: SyncIndexes; onReady?: (collection: string) => void } = {}): Promise<void> {
   const { config: cfg, logger } = rt;
   if (cfg.seed.ingestOnEmpty && rt.repo.countDocuments() === 0) {
     logger.info({ path: cfg.seed.path, collection: cfg.seed.collection }, 'empty store: ingesting the seed folder');
@@ -36,16 +43,25 @@ export async function prepare(rt: Runtime, opts: { syncIndexes?: SyncIndexes } =
     usable.push(c.name);
   }
   const syncIndexes = opts.syncIndexes ?? syncIndexesInThread;
+  // Each file is at the database's generation once the thread reports it: this only reads it (or patches
+  // what changed meanwhile), then the collection can answer.
+  const loaded = new Set<string>();
+  let loading = Promise.resolve();
+  const load = (c: string): Promise<void> =>
+    (loading = loading.then(async () => {
+      if (loaded.has(c)) return;
+      loaded.add(c);
+      const r = rt.indexes.sync(c);
+      await rt.indexes.settled(c);
+      logger.info({ collection: c, vectors: r.size, rebuilt: r.rebuilt }, 'vector index loaded');
+      opts.onReady?.(c);
+    }));
   try {
-    await syncIndexes(rt, usable);
+    await syncIndexes(rt, usable, (c) => void load(c));
   } catch (err) {
     logger.warn({ err }, 'the index thread failed; bringing the vector indexes up to date on this thread');
   }
-  // Each file is at the database's generation now: this only reads it (or patches what changed meanwhile).
-  for (const c of usable) {
-    const r = rt.indexes.sync(c);
-    logger.info({ collection: c, vectors: r.size, rebuilt: r.rebuilt }, 'vector index loaded');
-  }
+  for (const c of usable) await load(c);
 }
 
 /** dist/index-worker.js beside the compiled CLI; from src/ (tests) the compiled copy. */
@@ -55,7 +71,7 @@ function indexWorkerScript(): string {
 }
 
 /** The default: a worker thread (src/index-worker.ts) with its own store connection does the work and saves. */
-export const syncIndexesInThread: SyncIndexes = (rt, collections) => {
+export const syncIndexesInThread: SyncIndexes = (rt, collections, onEach) => {
   if (collections.length === 0) return Promise.resolve();
   const paths = storePaths(rt.config.dataDir);
   const workerData: IndexThreadData = {
@@ -71,7 +87,10 @@ export const syncIndexesInThread: SyncIndexes = (rt, collections) => {
     let done = false;
     w.on('message', (m: FromIndexThread) => {
       if ('done' in m) done = true;
-      else rt.logger.debug({ collection: m.collection, vectors: m.size, rebuilt: m.rebuilt }, 'vector index file brought up to date');
+      else {
+        rt.logger.debug({ collection: m.collection, vectors: m.size, rebuilt: m.rebuilt }, 'vector index file brought up to date');
+        onEach?.(m.collection);
+      }
     });
     w.once('error', reject);
     w.once('exit', (code) => (done ? resolve() : reject(new Error(`the index thread exited with code ${code} before it finished`))));

@@ -33,7 +33,9 @@ export async function serve(ctx: CliContext): Promise<number> {
     `embedder: ${rt.embedderReason}`,
   );
   let ready = false;
-  const { app, queue } = createServer(rt, { isReady: () => ready });
+  // Collections whose index is loaded answer before the others are (start-up loads them one by one).
+  const readyCollections = new Set<string>();
+  const { app, queue } = createServer(rt, { isReady: (c) => ready || (c !== undefined && readyCollections.has(c)) });
   let closing = false;
   const shutdown = async (signal: string): Promise<void> => {
     if (closing) return;
@@ -63,7 +65,7 @@ export async function serve(ctx: CliContext): Promise<number> {
   await standIn.close();
   await app.listen({ host: cfg.server.host, port: standIn.port });
   try {
-    await prepare(rt);
+    await prepare(rt, { onReady: (c) => readyCollections.add(c) });
   } catch (err) {
     logger.fatal({ err }, 'start-up failed');
     await app.close();

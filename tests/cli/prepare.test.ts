@@ -50,6 +50,39 @@ describe('start-up', () => {
     expect((await app.inject({ method: 'GET', url: '/ready' })).statusCode).toBe(200);
   });
 
+  it('answers in a collection whose index is loaded while another still loads', async () => {
+    const { rt, config, dataDir } = await storeWithDocuments();
+    const other = path.join(dataDir, 'other');
+    mkdirSync(other);
+    writeFileSync(path.join(other, 'depot.md'), '# Depot\n\nThe harbour depot opens at six for drivers starting the early shift.\n');
+    await rt.ingestor.ingestPath(other, { collection: 'depots' });
+    let ready = false;
+    const readyCollections = new Set<string>();
+    const app = buildApp(config, appDeps(rt, (c) => ready || (c !== undefined && readyCollections.has(c))));
+    cleanups.push(() => app.close());
+    // The index step reports "stops" ready, then is held open, as a large "depots" would hold it.
+    let release!: () => void;
+    const running = prepare(rt, {
+      onReady: (c) => readyCollections.add(c),
+      syncIndexes: async (_rt, _collections, onEach) => {
+        onEach?.('stops');
+        await new Promise<void>((r) => (release = r));
+      },
+    }).then(() => (ready = true));
+    await waitFor(() => readyCollections.has('stops') || null, { what: 'the loaded collection to be marked ready' });
+    const search = (collection: string) => app.inject({ method: 'POST', url: '/v1/search', payload: { query: 'step-free tram stop', collection } });
+    const stops = await search('stops');
+    expect(stops.statusCode, stops.body).toBe(200);
+    expect(stops.json().results.length).toBeGreaterThan(0);
+    const depots = await search('depots');
+    expect(depots.statusCode).toBe(503);
+    expect(depots.json().error.code).toBe('SB_ERR_NOT_READY');
+    expect((await app.inject({ method: 'GET', url: '/ready' })).statusCode).toBe(503);
+    release();
+    await withDeadline(running, { what: 'start-up to finish once its index step is released', timeoutMs: 20_000 });
+    expect((await search('depots')).statusCode).toBe(200);
+  });
+
   it('rebuilds a missing index file in the index thread, so the request thread only loads the saved file', async () => {
     const { rt, dataDir } = await storeWithDocuments();
     const { indexDir } = storePaths(dataDir);
