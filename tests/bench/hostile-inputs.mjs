@@ -66,6 +66,7 @@ export const INPUTS = {
   '50 MB single line': ['one-line.txt', () => 'fare '.repeat(10_000_000)],
   '4.9 MB single line of 620,000 distinct words': ['long-line.txt', () => Array.from({ length: 620_000 }, (_, i) => `s${i}`).join(' ')],
   '3 MB of prose, 20,000-word vocabulary (under the limits)': ['long-prose.txt', () => prose(3_000_000, 20_000)],
+  'corrupt PDF (a header, no cross-reference table)': ['broken.pdf', () => '%PDF-1.7\n1 0 obj << /Type /Catalog >>\ngarbage without xref\n'],
   'HTML nested 200,000 deep': ['deep.html', () => `<!doctype html><html><body>${'<div>'.repeat(200_000)}x${'</div>'.repeat(200_000)}</body></html>`],
 };
 
