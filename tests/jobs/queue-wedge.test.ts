@@ -51,7 +51,15 @@ describe('a job thread that dies', () => {
       detail: () => JSON.stringify({ job: rt.jobs.get(small.job.id), queue: queue.health() }),
     });
     expect(done.state).toBe('succeeded');
-    const hits = await rt.retriever.search({ query: 'wifi Brackenfold', collection: 'c', k: 3, mode: 'hybrid' });
+    // Searchable once the request thread has applied the job's changes (the lexical change thread and the
+    // vector index's read of the saved file both run after the job's end): wait for it, with a deadline.
+    const hits = await waitFor(
+      async () => {
+        const h = await rt.retriever.search({ query: 'wifi Brackenfold', collection: 'c', k: 3, mode: 'hybrid' });
+        return h[0]?.source === 'tram-wifi.md' ? h : null;
+      },
+      { what: 'the next job\'s document to be searchable', detail: () => JSON.stringify(queue.health()) },
+    );
     expect(hits[0]!.source).toBe('tram-wifi.md');
 
     // The thread records the job's end in the database before its message reaches the queue: wait for the
