@@ -155,8 +155,8 @@ export function createRetriever(deps: {
     return counts;
   };
 
-  const ftsSearch = (collection: string, terms: WeightedTerm[], repeat: number, limit: number, filter?: RetrieveFilter, allowed?: ReadonlySet<number>): Scored[] => {
-    if (memory) {
+  const ftsSearch = (collection: string, terms: WeightedTerm[], repeat: number, limit: number, filter?: RetrieveFilter, allowed?: ReadonlySet<number>, useMemory = true): Scored[] => {
+    if (memory && useMemory) {
       // The same repeat counts as the MATCH expression below, as multipliers; null = ask FTS5 instead.
       const hits = memory.search(collection, phraseCounts(terms, { maxRepeat: repeat }), limit, options.fieldWeights, filter ? allowed : undefined);
       if (hits) return hits.map((h) => ({ id: h.chunkId, score: h.score }));
@@ -166,10 +166,10 @@ export function createRetriever(deps: {
     return repo.searchFts(collection, match, limit, options.fieldWeights, filter).map((r) => ({ id: r.chunkId, score: r.score }));
   };
 
-  const lexical = (collection: string, query: string, limit: number, filter?: RetrieveFilter, allowed?: ReadonlySet<number>): Scored[] => {
+  const lexical = (collection: string, query: string, limit: number, filter?: RetrieveFilter, allowed?: ReadonlySet<number>, useMemory = true): Scored[] => {
     const weights = queryWeights(query);
     const terms = [...weights].map(([term, weight]) => ({ term, weight }));
-    const first = ftsSearch(collection, terms, termRepeat, rm3 ? Math.max(limit, rm3.docs) : limit, filter, allowed);
+    const first = ftsSearch(collection, terms, termRepeat, rm3 ? Math.max(limit, rm3.docs) : limit, filter, allowed, useMemory);
     if (!rm3 || first.length === 0) return first.slice(0, limit);
     const texts = repo.chunkTexts(first.slice(0, rm3.docs).map((r) => r.id));
     const feedback = first.slice(0, rm3.docs).flatMap((r) => {
@@ -177,7 +177,7 @@ export function createRetriever(deps: {
       return text !== undefined ? [{ text, score: r.score }] : [];
     });
     // The expanded query spreads weight over many terms; a finer repeat scale keeps their proportions.
-    return ftsSearch(collection, rm3Expand(weights, feedback, rm3), options.rm3Repeat ?? termRepeat * 3, limit, filter, allowed);
+    return ftsSearch(collection, rm3Expand(weights, feedback, rm3), options.rm3Repeat ?? termRepeat * 3, limit, filter, allowed, useMemory);
   };
 
   const dense = (collection: string, vector: Float32Array | null, limit: number, allowed?: ReadonlySet<number>): Scored[] => {
@@ -185,62 +185,65 @@ export function createRetriever(deps: {
     return indexes.search(collection, vector, limit, allowed).map((h) => ({ id: h.chunkId, score: h.score }));
   };
 
-  return {
-    async search(req) {
-      // One primary-key lookup per query (no counts): it gives the generation the vector index checks too.
-      const col = repo.collectionState(req.collection);
-      if (!col) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [req.collection]);
-      const wantsDense = req.mode !== 'lexical';
-      if (wantsDense && col.embedderId && col.embedderId !== embedder.id) {
-        throw new SourceboundError('SB_ERR_EMBEDDER_MISMATCH', [req.collection, col.embedderId, embedder.id]);
+  const search = async (req: RetrieveRequest, useMemory = true): Promise<SearchHit[]> => {
+    // One primary-key lookup per query (no counts): it gives the generation the vector index checks too.
+    const col = repo.collectionState(req.collection);
+    if (!col) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [req.collection]);
+    const wantsDense = req.mode !== 'lexical';
+    if (wantsDense && col.embedderId && col.embedderId !== embedder.id) {
+      throw new SourceboundError('SB_ERR_EMBEDDER_MISMATCH', [req.collection, col.embedderId, embedder.id]);
+    }
+    // Another process (a CLI ingest) may have changed the collection since the last query. Only memory
+    // is brought up to date here: writing index files is the writer's job, not a query's.
+    if (wantsDense) indexes.sync(req.collection, { persist: false, generation: col.generation });
+    const filter = isEmptyFilter(req.filter) ? undefined : req.filter;
+    // One allowed-id set for both legs when the in-memory lexical index filters inside its search too.
+    const allowed = filter && (wantsDense || (memory && req.mode !== 'dense')) ? repo.chunkIdsMatching(req.collection, filter) : undefined;
+    const limit = Math.max(req.k, options.candidates);
+    const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
+    const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed, useMemory);
+    const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;
+    const den = wantsDense ? dense(req.collection, denseQuery, limit, allowed) : [];
+    const denseScore = new Map(den.map((d) => [d.id, d.score]));
+    let ranked: { id: number; score: number; ranks: { lexical?: number; dense?: number } }[];
+    if (req.mode === 'lexical') ranked = lex.map((r, i) => ({ id: r.id, score: r.score, ranks: { lexical: i + 1 } }));
+    else if (req.mode === 'dense') ranked = den.map((r, i) => ({ id: r.id, score: r.score, ranks: { dense: i + 1 } }));
+    else {
+      ranked = reciprocalRankFusion(
+        [
+          { name: 'lexical', ids: lex.map((r) => r.id), weight: options.lexicalWeight },
+          { name: 'dense', ids: den.map((r) => r.id), weight: options.denseWeight },
+        ],
+        options.rrfK,
+      );
+    }
+    const diversify = req.diversify ?? mmr !== null;
+    const pool = diversify ? ranked.slice(0, Math.max(req.k * 4, 50)) : ranked.slice(0, req.k);
+    const views = repo.chunkViews(pool.map((t) => t.id));
+    // In-memory indexes that a large change has just made stale (a full re-index swaps every chunk id; each
+    // index catches up within moments) can name chunks that are gone. When most of a result is gone, the
+    // lexical leg is asked of FTS5 instead, which reads the database itself.
+    if (useMemory && memory && req.mode !== 'dense' && pool.length > 0 && views.size * 2 < pool.length) return search(req, false);
+    const vectors = queryVector || diversify ? repo.getVectors(embedder.id, [...views.values()].map((v) => v.chunkHash)) : new Map<string, Float32Array>();
+    if (queryVector) {
+      // Lexical-only hits get their cosine too, from the stored vectors, so that answer-time evidence
+      // checks see one comparable similarity for every hit.
+      for (const v of views.values()) {
+        const vec = vectors.get(v.chunkHash);
+        if (!denseScore.has(v.chunkId) && vec) denseScore.set(v.chunkId, dot(queryVector, vec));
       }
-      // Another process (a CLI ingest) may have changed the collection since the last query. Only memory
-      // is brought up to date here: writing index files is the writer's job, not a query's.
-      if (wantsDense) indexes.sync(req.collection, { persist: false, generation: col.generation });
-      const filter = isEmptyFilter(req.filter) ? undefined : req.filter;
-      // One allowed-id set for both legs when the in-memory lexical index filters inside its search too.
-      const allowed = filter && (wantsDense || (memory && req.mode !== 'dense')) ? repo.chunkIdsMatching(req.collection, filter) : undefined;
-      const limit = Math.max(req.k, options.candidates);
-      const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
-      const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed);
-      const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;
-      const den = wantsDense ? dense(req.collection, denseQuery, limit, allowed) : [];
-      const denseScore = new Map(den.map((d) => [d.id, d.score]));
-      let ranked: { id: number; score: number; ranks: { lexical?: number; dense?: number } }[];
-      if (req.mode === 'lexical') ranked = lex.map((r, i) => ({ id: r.id, score: r.score, ranks: { lexical: i + 1 } }));
-      else if (req.mode === 'dense') ranked = den.map((r, i) => ({ id: r.id, score: r.score, ranks: { dense: i + 1 } }));
-      else {
-        ranked = reciprocalRankFusion(
-          [
-            { name: 'lexical', ids: lex.map((r) => r.id), weight: options.lexicalWeight },
-            { name: 'dense', ids: den.map((r) => r.id), weight: options.denseWeight },
-          ],
-          options.rrfK,
-        );
-      }
-      const diversify = req.diversify ?? mmr !== null;
-      const pool = diversify ? ranked.slice(0, Math.max(req.k * 4, 50)) : ranked.slice(0, req.k);
-      const views = repo.chunkViews(pool.map((t) => t.id));
-      const vectors = queryVector || diversify ? repo.getVectors(embedder.id, [...views.values()].map((v) => v.chunkHash)) : new Map<string, Float32Array>();
-      if (queryVector) {
-        // Lexical-only hits get their cosine too, from the stored vectors, so that answer-time evidence
-        // checks see one comparable similarity for every hit.
-        for (const v of views.values()) {
-          const vec = vectors.get(v.chunkHash);
-          if (!denseScore.has(v.chunkId) && vec) denseScore.set(v.chunkId, dot(queryVector, vec));
-        }
-      }
-      let top = pool;
-      if (diversify) top = diversifyPool(pool, views, vectors, req.k, mmr ?? DEFAULT_MMR);
-      const hits: SearchHit[] = [];
-      for (const t of top) {
-        const v = views.get(t.id);
-        if (!v) continue; // deleted between search and lookup
-        hits.push(toHit(v, t.score, t.ranks, denseScore.get(t.id)));
-      }
-      return hits;
-    },
+    }
+    let top = pool;
+    if (diversify) top = diversifyPool(pool, views, vectors, req.k, mmr ?? DEFAULT_MMR);
+    const hits: SearchHit[] = [];
+    for (const t of top) {
+      const v = views.get(t.id);
+      if (!v) continue; // deleted between search and lookup
+      hits.push(toHit(v, t.score, t.ranks, denseScore.get(t.id)));
+    }
+    return hits;
   };
+  return { search: (req) => search(req) };
 }
 
 function diversifyPool<T extends { id: number; score: number }>(
