@@ -30,6 +30,9 @@ export function fileSafe(collection: string): string {
   return Buffer.from(collection).toString('hex');
 }
 
+type Expected = { embedderId: string; dimensions: number };
+type Loaded = { index: Hnsw; meta: IndexMeta } | { index: null; reason: string | null };
+
 export function createIndexFiles(dir: string) {
   const metaPath = (c: string): string => path.join(dir, `${fileSafe(c)}.meta.json`);
   // The meta file's identity when it was last read, per collection: a reader that is behind looks at the meta
@@ -45,6 +48,14 @@ export function createIndexFiles(dir: string) {
     }
   };
 
+  /** The saved file of `c` when there is one made with the expected embedder; else why there is none to read. */
+  const locate = (c: string, expect: Expected): { meta: IndexMeta; file: string } | { index: null; reason: string | null } => {
+    const meta = readMeta(c);
+    if (!meta) return { index: null, reason: null };
+    if (meta.embedderId !== expect.embedderId || meta.dimensions !== expect.dimensions) return { index: null, reason: `built with ${meta.embedderId}` };
+    const file = path.join(dir, meta.file);
+    return existsSync(file) ? { meta, file } : { index: null, reason: null };
+  };
   return {
     dir,
     metaPath,
@@ -92,18 +103,13 @@ export function createIndexFiles(dir: string) {
       return written;
     },
     /** Reads the saved index of `c`; null when there is none, or it is unreadable or of another embedder. */
-    load(c: string, expect: { embedderId: string; dimensions: number }): { index: Hnsw; meta: IndexMeta } | { index: null; reason: string | null } {
-      const meta = readMeta(c);
-      if (!meta) return { index: null, reason: null };
-      if (meta.embedderId !== expect.embedderId || meta.dimensions !== expect.dimensions) {
-        return { index: null, reason: `built with ${meta.embedderId}` };
-      }
-      const file = path.join(dir, meta.file);
-      if (!existsSync(file)) return { index: null, reason: null };
+    load(c: string, expect: Expected): Loaded {
+      const found = locate(c, expect);
+      if (!('file' in found)) return found;
       try {
         const index = new HierarchicalNSW('ip', expect.dimensions);
-        index.readIndexSync(file);
-        return { index, meta };
+        index.readIndexSync(found.file);
+        return { index, meta: found.meta };
       } catch (err) {
         return { index: null, reason: `unreadable: ${(err as Error).message}` };
       }
@@ -112,18 +118,13 @@ export function createIndexFiles(dir: string) {
      * `load` with the file read by hnswlib off the JavaScript thread (its asynchronous readIndex): a reader keeps
      * answering from the index it has while the next one is read.
      */
-    async loadAsync(c: string, expect: { embedderId: string; dimensions: number }): Promise<{ index: Hnsw; meta: IndexMeta } | { index: null; reason: string | null }> {
-      const meta = readMeta(c);
-      if (!meta) return { index: null, reason: null };
-      if (meta.embedderId !== expect.embedderId || meta.dimensions !== expect.dimensions) {
-        return { index: null, reason: `built with ${meta.embedderId}` };
-      }
-      const file = path.join(dir, meta.file);
-      if (!existsSync(file)) return { index: null, reason: null };
+    async loadAsync(c: string, expect: Expected): Promise<Loaded> {
+      const found = locate(c, expect);
+      if (!('file' in found)) return found;
       try {
         const index = new HierarchicalNSW('ip', expect.dimensions);
-        if (!(await index.readIndex(file))) return { index: null, reason: 'unreadable' };
-        return { index, meta };
+        if (!(await index.readIndex(found.file))) return { index: null, reason: 'unreadable' };
+        return { index, meta: found.meta };
       } catch (err) {
         return { index: null, reason: `unreadable: ${(err as Error).message}` };
       }

@@ -1,20 +1,10 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import Database from 'better-sqlite3';
 import { migrate, MIGRATIONS, openStore, runMigration, SqliteStore } from '../../src/store/index.js';
+import { mulberry32 as rng } from '../fixtures/random.js';
 
 // The document and chunk counts of each collection are kept in its row by every write (migration 8) instead
 // of being counted per request; they must equal what COUNT(*) finds after any sequence of writes.
-
-function rng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 describe('maintained collection counts', () => {
   let store: SqliteStore;

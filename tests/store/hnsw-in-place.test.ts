@@ -4,24 +4,13 @@ import path from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { createVectorIndexes, openDatabase, SqliteStore, type Db, type Repository, type VectorIndexes } from '../../src/store/index.js';
 import { withDeadline } from '../fixtures/wait.js';
+import { mulberry32 as rng } from '../fixtures/random.js';
 
 // The vector index changes in place: a writer adds a document's points and marks a removed document's points
 // deleted (hnswlib's addPoint / markDelete), saves the file with the generation it holds, and readers load that
 // file instead of adding the points again. The service's HNSW settings (src/config/schema.ts defaults).
 const DIMS = 32;
 const params = { m: 16, efConstruction: 200, efSearch: 128 };
-
-/** mulberry32, a small seeded generator (any fixed sequence will do). */
-function rng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 function unitVector(rand: () => number): Float32Array {
   const v = new Float32Array(DIMS);

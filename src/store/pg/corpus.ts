@@ -11,6 +11,7 @@ import type { ChunkInput, ChunkView, CollectionRow, DocumentRecord, NewDocument 
 import type { ChangeBatch, ChangeEntry, ReplaceResult } from '../system-of-record.js';
 import { blobToVector, vectorToBlob } from '../sqlite/vector-blob.js';
 import { inTransaction, type PgClient, type PgPool } from './connect.js';
+import { documentFromRow } from '../document-row.js';
 
 /** The transaction-level advisory lock that orders writers of the change log ("sb-chlog" in ASCII). */
 export const CHANGE_LOG_LOCK = 0x73622d63686c6f67n;
@@ -29,23 +30,7 @@ const toCollection = (r: Row): CollectionRow => ({
   chunks: r.chunk_count as number,
 });
 
-const toDocument = (r: Row): DocumentRecord & { version: number } => ({
-  id: r.id as string,
-  collection: r.collection as string,
-  source: r.source as string,
-  root: (r.root as string | null) ?? null,
-  title: r.title as string,
-  format: r.format as string,
-  contentHash: r.content_hash as string,
-  byteSize: r.byte_size as number,
-  pageCount: (r.page_count as number | null) ?? null,
-  effectiveDate: (r.effective_date as string | null) ?? null,
-  metadata: r.metadata as Record<string, string>,
-  settingsKey: r.settings_key as string,
-  createdAt: r.created_at as string,
-  updatedAt: r.updated_at as string,
-  version: r.version as number,
-});
+const toDocument = (r: Row): DocumentRecord & { version: number } => ({ ...documentFromRow(r, r.metadata as Record<string, string>), version: r.version as number });
 
 const DOCUMENT_COLUMNS = `id, collection, source, root, title, format, content_hash, byte_size, page_count, effective_date,
   metadata, settings_key, created_at, updated_at, version`;

@@ -5,6 +5,7 @@ import { ftsColumns } from '../fts-columns.js';
 import { isShadowCollection, type CollectionRow, type CollectionState, type CollectionStore, type DocumentKey, type DocumentRecord, type DocumentStore } from '../types.js';
 import type { Db } from './db.js';
 import { vectorToBlob } from './vector-blob.js';
+import { documentFromRow } from '../document-row.js';
 
 const now = (): string => new Date().toISOString();
 
@@ -88,22 +89,7 @@ export function sqliteCollections(db: Db): CollectionStore {
   return collections;
 }
 
-const toDoc = (r: Record<string, unknown>): DocumentRecord => ({
-  id: r.id as string,
-  collection: r.collection as string,
-  source: r.source as string,
-  root: (r.root as string | null) ?? null,
-  title: r.title as string,
-  format: r.format as string,
-  contentHash: r.content_hash as string,
-  byteSize: r.byte_size as number,
-  pageCount: (r.page_count as number | null) ?? null,
-  effectiveDate: (r.effective_date as string | null) ?? null,
-  metadata: JSON.parse((r.metadata as string) || '{}') as Record<string, string>,
-  settingsKey: r.settings_key as string,
-  createdAt: r.created_at as string,
-  updatedAt: r.updated_at as string,
-});
+const toDoc = (r: Record<string, unknown>): DocumentRecord => documentFromRow(r, JSON.parse((r.metadata as string) || '{}') as Record<string, string>);
 
 export function sqliteDocuments(db: Db, bumpGeneration: (collection: string) => number): DocumentStore {
   const st = lazy({
