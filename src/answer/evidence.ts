@@ -49,7 +49,10 @@ export const SENTENCE_FEATURES = [
 // sentence's length (PolicyQA's top-three hits up by under 0.01, and it preferred a long sentence
 // about the wrong fact in a plain "how long" question); whether the sentence holds the question's
 // rarest topic term, and whether it is itself a question (no set gained a question; the confidence
-// calibration got worse).
+// calibration got worse); term proximity, the share of the question's adjacent topic-term pairs held
+// within eight words (Metzler and Croft's sequential dependence model, SIGIR 2005): PolicyQA +0.013
+// held out, but the demo set and fenwold each lost a question and kestrel's false abstention rose
+// from 0.10 to 0.14.
 
 /**
  * Features of a question's evidence, in the order the decision's weights use. Three, because the
