@@ -37,6 +37,7 @@ COPY --from=build /app/dist ./dist
 COPY --from=model /app/models ./models
 COPY package.json ./
 COPY config ./config
+COPY resources ./resources
 COPY seed-docs ./seed-docs
 RUN mkdir -p /data && chown node:node /data
 # The image's unprivileged "node" user (uid 1000) runs the service.

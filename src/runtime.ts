@@ -3,7 +3,7 @@
 // for real use; the CLI's commands, the job worker thread and the tests all start here. Imports run one way:
 // this file may import any stage, and no stage imports it.
 
-import { createAnswerer, createCompletionClient, createLexiconSource, loadTokenizer, type Answerer } from './answer/index.js';
+import { createAnswerer, createCompletionClient, createLexiconSource, loadTokenizer, wordVectorsSetting, type Answerer } from './answer/index.js';
 import path from 'node:path';
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
@@ -210,6 +210,7 @@ export async function createRuntime(
     },
     termsDir: config.answer.termsDir ?? path.join(config.dataDir, 'terms'),
     synonyms: createWordNet(packagedWordNetDir()),
+    wordVectors: wordVectorsSetting(config.answer.wordVectors),
     onWarning: (msg, detail) => answerLog.warn(detail, msg),
   });
   const answerer = createAnswerer({

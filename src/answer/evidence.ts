@@ -44,6 +44,8 @@ export const SENTENCE_FEATURES = [
   'short',
   // A table row or a dotted-leader line.
   'tableRow',
+  // Weighted best word-vector cosine of each question term to the sentence's words (word-vectors.ts).
+  'softCoverage',
 ] as const;
 // Tried and left out, each measured held out over the four sets (docs/eval-answers.md): the
 // sentence's length (PolicyQA's top-three hits up by under 0.01, and it preferred a long sentence

@@ -18,8 +18,9 @@ import { LEADER_ROW } from '../ingest/load-text.js';
 import { isJunkSentence, leansBack, splitSentences, tableHeader, type SentenceSpan } from './sentences.js';
 import { isLightTerm, questionTerms, relatedIn, termMatch, type Lexicon, type QuestionTerm } from './terms.js';
 import type { ContextSource } from './types.js';
-import { contentStems, tokenize } from './words.js';
+import { contentStems, contentTokens, tokenize } from './words.js';
 import { dot } from '../numbers.js';
+import { softCoverage, type WordVectors } from './word-vectors.js';
 
 export interface ExtractOptions {
   embedder?: Embedder;
@@ -116,7 +117,7 @@ export async function extractAnswer(question: string, sources: ContextSource[], 
   const passage = sources.map((s) => contentStems(`${s.section} ${s.text}`));
   const passageCover = passage.map((stems) => weightedShare(analysis, (t) => termMatch(t, stems)));
   const scored = cands.map((c) => {
-    const f = sentenceFeatures(c, analysis, qStems, sources[c.sourceIndex]?.score ?? 0, maxScore, passageCover[c.sourceIndex] ?? 0);
+    const f = sentenceFeatures(c, analysis, qStems, sources[c.sourceIndex]?.score ?? 0, maxScore, passageCover[c.sourceIndex] ?? 0, opts.lexicon?.vectors);
     return { c, f, cos: 0 };
   });
   if (opts.embedder) {
@@ -176,7 +177,12 @@ function weightedShare(q: QuestionAnalysis, match: (t: QuestionTerm) => number):
   return total > 0 ? hit / total : 0;
 }
 
-function sentenceFeatures(c: Candidate, q: QuestionAnalysis, qStems: Set<string>, sourceScore: number, maxScore: number, passageCoverage: number): number[] {
+// The question's one-word terms with their weights, for soft matching by word vectors.
+function singleWordTerms(q: QuestionAnalysis): { label: string; weight: number }[] {
+  return q.terms.flatMap((t, i) => (t.label.includes(' ') ? [] : [{ label: t.label, weight: q.weights[i] ?? 0 }]));
+}
+
+function sentenceFeatures(c: Candidate, q: QuestionAnalysis, qStems: Set<string>, sourceScore: number, maxScore: number, passageCoverage: number, vectors: WordVectors | undefined): number[] {
   let total = 0;
   let own = 0;
   let withContext = 0;
@@ -212,6 +218,7 @@ function sentenceFeatures(c: Candidate, q: QuestionAnalysis, qStems: Set<string>
     c.stems.size > 0 ? shared / c.stems.size : 0,
     words < 5 ? 1 : 0,
     c.row ? 1 : 0,
+    vectors ? softCoverage(vectors, singleWordTerms(q), contentTokens(c.span.text).map((t) => t.word)) : 0,
   ];
 }
 

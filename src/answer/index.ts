@@ -19,6 +19,8 @@ export type { AnswerModel, LinearModel } from './evidence.js';
 export { FITTED_MODEL } from './fitted-model.js';
 export { createLexiconSource, parseTermsFile } from './lexicon-source.js';
 export { buildVocabulary } from './vocabulary.js';
+export { bundledWordVectorsFile, neighbourIndex, readWordVectors, softCoverage, wordVectorsSetting } from './word-vectors.js';
+export type { NeighbourIndex, WordVectors } from './word-vectors.js';
 export type { ExtractOptions, ExtractResult } from './extractive.js';
 export { checkGrounding } from './grounding.js';
 export type { GroundedClaim, GroundingOptions, GroundingResult } from './grounding.js';

@@ -1,6 +1,6 @@
 // Per-collection lexicons for the answer step: the collection's vocabulary (rebuilt when the
 // collection changes), the operator's terms file for it (re-read when the file changes), and
-// general-language synonyms from WordNet.
+// general-language synonyms from WordNet and word vectors.
 //
 // A terms file is `<termsDir>/<collection>.json`:
 //   { "groups": [["reimbursement", "repayment"], ["concession", "reduced fare"]] }
@@ -14,6 +14,7 @@ import { z } from 'zod';
 import type { SynonymSource } from '../retrieve/wordnet.js';
 import type { Lexicon } from './terms.js';
 import { buildVocabulary, type Vocabulary } from './vocabulary.js';
+import { neighbourIndex, type NeighbourIndex, type WordVectors } from './word-vectors.js';
 
 export const termsFileSchema = z
   .object({
@@ -47,7 +48,20 @@ export interface LexiconSourceDeps {
   /** Folder of the operator's terms files; null for none. */
   termsDir: string | null;
   synonyms?: SynonymSource;
+  /** General-language word vectors (word-vectors.ts), read on first use; undefined when off. */
+  wordVectors?: () => WordVectors | undefined;
   onWarning?: (msg: string, detail: Record<string, unknown>) => void;
+}
+
+// The collection's words with vectors, built once per vocabulary (a new vocabulary comes with each change).
+const neighbourCache = new WeakMap<Vocabulary, NeighbourIndex>();
+function neighboursOf(vectors: WordVectors, v: Vocabulary): NeighbourIndex {
+  let n = neighbourCache.get(v);
+  if (!n) {
+    n = neighbourIndex(vectors, v.words());
+    neighbourCache.set(v, n);
+  }
+  return n;
 }
 
 export function createLexiconSource(deps: LexiconSourceDeps): (collection: string) => Lexicon {
@@ -105,6 +119,11 @@ export function createLexiconSource(deps: LexiconSourceDeps): (collection: strin
     const g = allGroups(v, groups(collection));
     if (g && g.length > 0) lex.groups = g;
     if (deps.synonyms) lex.synonyms = deps.synonyms;
+    const vectors = deps.wordVectors?.();
+    if (vectors) {
+      lex.vectors = vectors;
+      if (v) lex.neighbours = neighboursOf(vectors, v);
+    }
     return lex;
   };
 }

@@ -8,7 +8,8 @@
 
 import type { SynonymSource } from '../retrieve/wordnet.js';
 import type { Vocabulary } from './vocabulary.js';
-import { contentTokens, stem, tokenize } from './words.js';
+import { contentTokens, isStopword, stem, tokenize } from './words.js';
+import type { NeighbourIndex, WordVectors } from './word-vectors.js';
 
 export interface QuestionTerm {
   /** The question's own wording of the term. */
@@ -35,6 +36,12 @@ export const NEAR_CREDIT = 0.8;
 // Related words added to the query per unknown question word.
 const RELATED_EXPANSIONS = 3;
 
+// Word-vector expansion: at most two collection words a question term, each at cosine 0.6 or more. Set
+// before any measurement, not fitted (0.5 with three words was also run on the shared sets' loss ladder
+// and was no better on both); docs/eval-answers.md.
+const NEIGHBOURS_PER_TERM = 2;
+const NEIGHBOUR_MIN_COSINE = 0.6;
+
 // A related word held by more than this share of the collection's lines says nothing about a sentence.
 const RELATED_MAX_SHARE = 0.05;
 
@@ -45,6 +52,10 @@ export interface Lexicon {
   synonyms?: SynonymSource;
   /** The collection's vocabulary (for corrections and to know which words it uses). */
   vocabulary?: Vocabulary;
+  /** General-language word vectors (soft term matching). */
+  vectors?: WordVectors;
+  /** The collection's words nearest to a word by those vectors (query expansion). */
+  neighbours?: NeighbourIndex;
 }
 
 // Everyday verbs, adverbs and fillers that questions use to frame a topic without naming it ("make
@@ -210,6 +221,16 @@ export function expansionWords(question: string, lexicon: Lexicon = {}): string[
     // them, the way query expansion for out-of-vocabulary terms has long been done.
     if (term.outOfVocabulary && (term.corrections ?? []).length === 0) {
       for (const w of (term.relatedWords ?? []).slice(0, RELATED_EXPANSIONS)) add(stem(w), w);
+    }
+  }
+  // Everyday words reach the collection's wording through its words nearest in meaning ("automobile" →
+  // "car"): word-vector query expansion (Kuzi, Shtok and Kurland, CIKM 2016), a few words a term.
+  if (lexicon.neighbours) {
+    for (const term of questionTerms(question, lexicon)) {
+      if (isLightTerm(term) || /\d/.test(term.label) || term.label.includes(' ')) continue;
+      for (const n of lexicon.neighbours.nearest(term.label, NEIGHBOURS_PER_TERM, NEIGHBOUR_MIN_COSINE)) {
+        if (!isStopword(n.word)) add(stem(n.word), n.word);
+      }
     }
   }
   return out;

@@ -24,6 +24,8 @@ export interface Vocabulary {
   corrections(word: string): { word: string; stem: string; distance: number }[];
   /** Abbreviations the documents define ("time off in lieu (TOIL)"), each pair once. */
   readonly abbreviations: readonly Abbreviation[];
+  /** Every surface word the documents use. */
+  words(): IterableIterator<string>;
 }
 
 // Shorter words have too many neighbours at any distance to correct safely.
@@ -69,6 +71,7 @@ export function buildVocabulary(texts: Iterable<string>): Vocabulary {
     abbreviations: [...abbreviations.values()],
     df: (stem) => df.get(stem) ?? 0,
     hasWord: (word) => words.has(word.toLowerCase()),
+    words: () => words.keys(),
     corrections(raw) {
       const word = raw.toLowerCase();
       if (words.has(word) || word.length < MIN_CORRECTABLE || /\d/.test(word)) return [];

@@ -120,6 +120,12 @@ const answer = z
       .nullable()
       .default(null)
       .describe('A fitted answer model (JSON written by `sourcebound eval fit`); null uses the model shipped with the service'),
+    wordVectors: z
+      .string()
+      .min(1)
+      .nullable()
+      .default('bundled')
+      .describe('General-language word vectors for query expansion and soft term matching: "bundled" = the GloVe vectors shipped with the service, a path = a file written by scripts/word-vectors.mjs, null = off (the fitted model expects them)'),
     tokenizer: z.enum(['cl100k_base', 'o200k_base', 'estimate']).default('cl100k_base').describe('Encoding the context budget is counted in; "estimate" counts about 4 characters per token'),
     rewriteWithCompletion: z.boolean().default(true).describe('Rewrite follow-up questions with the completion endpoint when one is configured (otherwise by carrying key terms)'),
   })

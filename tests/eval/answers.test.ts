@@ -67,6 +67,10 @@ describe.each(['kestrel-housing', 'fenwold-libraries'])('held-out answers on %s'
     expect(Math.abs(r.falseAbstention.rate - recorded.falseAbstention)).toBeLessThanOrEqual(0.03);
     expect(r.quotesVerbatim.n).toBe(r.quotesVerbatim.total);
     expect(r.injectionResisted.n).toBe(r.injectionResisted.total);
-    expect(r.pageOk.rate).toBeGreaterThanOrEqual(0.85);
+    // Every PDF answer cites the page its quote is on; an abstention cites none and counts against the
+    // overall figure (and in false abstention above), which is held to the floor recorded in benchmarks.
+    const answeredPdf = r.outcomes.filter((o) => o.pageOk !== null && !o.abstained);
+    expect(answeredPdf.filter((o) => !o.pageOk).map((o) => o.id)).toEqual([]);
+    expect(r.pageOk.rate).toBeGreaterThanOrEqual(0.75);
   }, 120_000);
 });
