@@ -41,6 +41,9 @@ parentPort?.on('message', (m: ToJobThread) => {
   }
   running = true;
   void runOne(ctx, m.run, logger).finally(() => {
+    // A job's vector graphs are in the files it saved, which the request thread reads; kept here as well, a large
+    // collection's graph (hnswlib's native memory, which V8 does not see) would cost twice until the next job.
+    rt.indexes.close();
     running = false;
     send({ done: m.run.id });
     if (stopping) stop();
