@@ -21,7 +21,9 @@ if (platform() === 'linux') {
   }
 }
 const logger = configuredLogger(config).child({ thread: 'jobs' });
-const rt = await createRuntime(config, logger, { processMetrics: false });
+// Without the database's memory map: this thread reads in batches what it has just written, and mapped pages
+// would count in the process's resident size (src/store/sqlite/db.ts).
+const rt = await createRuntime(config, logger, { processMetrics: false, mapDatabase: false });
 const ctx = jobContext(rt);
 let running = false;
 let stopping = false;
