@@ -19,7 +19,7 @@ export interface IndexThreadData {
 export type FromIndexThread = { collection: string; size: number; rebuilt: boolean } | { done: true };
 
 const data = workerData as IndexThreadData;
-const store = openStore(data.database);
+const store = openStore(data.database, { mmap: false });
 try {
   const indexes = createVectorIndexes({ repo: store, dir: data.indexDir, embedderId: data.embedderId, dimensions: data.dimensions, params: data.params });
   for (const c of data.collections) {

@@ -21,7 +21,9 @@ if (platform() === 'linux') {
   }
 }
 const logger = configuredLogger(config).child({ thread: 'jobs' });
-const rt = await createRuntime(config, logger, { processMetrics: false });
+// Without the database's memory map: this thread reads in batches what it has just written, and mapped pages
+// would count in the process's resident size (src/store/sqlite/db.ts).
+const rt = await createRuntime(config, logger, { processMetrics: false, mapDatabase: false });
 const ctx = jobContext(rt);
 let running = false;
 let stopping = false;
@@ -41,6 +43,9 @@ parentPort?.on('message', (m: ToJobThread) => {
   }
   running = true;
   void runOne(ctx, m.run, logger).finally(() => {
+    // A job's vector graphs are in the files it saved, which the request thread reads; kept here as well, a large
+    // collection's graph (hnswlib's native memory, which V8 does not see) would cost twice until the next job.
+    rt.indexes.close();
     running = false;
     send({ done: m.run.id });
     if (stopping) stop();

@@ -22,7 +22,7 @@ export interface ToLexicalThread {
 export type FromLexicalThread = { id: number; set: LexicalChangeSet | null } | { id: number; error: string };
 
 const data = workerData as LexicalThreadData;
-const store = openStore(data.database, { readonly: true });
+const store = openStore(data.database, { readonly: true, mmap: false });
 
 parentPort?.on('message', (m: ToLexicalThread) => {
   try {

@@ -58,11 +58,11 @@ export interface Runtime {
 export async function createRuntime(
   config: Readonly<Config>,
   logger: Logger,
-  opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder; processMetrics?: boolean } = {},
+  opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder; processMetrics?: boolean; mapDatabase?: boolean } = {},
 ): Promise<Runtime> {
   refuseUnservedBackend(config);
   const paths = storePaths(config.dataDir);
-  const store = openStore(paths.database);
+  const store = openStore(paths.database, { mmap: opts.mapDatabase ?? true });
   const repo: Repository = store;
   const jobs = store.jobs;
   // Jobs a crashed CLI run or server left `running` would stay so for ever: every command that opens the store

@@ -16,6 +16,7 @@ import type { PdfLimits } from './load-pdf.js';
 import { checkDistinctWords, DEFAULT_DOCUMENT_LIMITS, LimitExceeded, NO_DEADLINE, startDeadline, type Deadline, type DocumentLimits } from './budget.js';
 import { buildNormalisedDocument } from './normalise.js';
 import { addInto, emptySummary, fail, type FileOutcome, type IngestSummary } from './summary.js';
+import { embedAndStore, storedVectors, VECTOR_BATCH } from './vectors.js';
 
 export type { FileOutcome, IngestSummary };
 
@@ -77,11 +78,14 @@ export function createIngestor(deps: {
   options: IngestOptions;
   logger: Logger;
   batchSize?: number;
+  /** Vectors made, stored and indexed at a time (VECTOR_BATCH); tests set it small. */
+  vectorBatch?: number;
   onProgress?: (p: IngestProgress) => void;
 }): Ingestor {
   const { repo, indexes, embedder, options, logger } = deps;
   const limits = options.limits ?? DEFAULT_DOCUMENT_LIMITS;
   const batchSize = deps.batchSize ?? 32;
+  const vectorBatch = Math.max(1, deps.vectorBatch ?? VECTOR_BATCH);
   // Leave room for the heading path that is prepended before embedding, and for [CLS]/[SEP].
   const maxTokens = Math.max(16, Math.min(options.maxTokens, embedder.maxTokens - 40));
   const targetTokens = Math.min(options.targetTokens, maxTokens);
@@ -202,18 +206,14 @@ export function createIngestor(deps: {
     }
     const chunks: ChunkInput[] = drafts.map((c) => {
       const text = embedText(loaded.title, c);
-      return { ...c, chunkHash: createHash('sha256').update(text).digest('hex'), embedText: text } as ChunkInput & { embedText: string };
+      return { ...c, chunkHash: createHash('sha256').update(text).digest('hex') };
     });
-    const vectors = repo.getVectors(embedder.id, chunks.map((c) => c.chunkHash));
-    const toEmbed = chunks.filter((c) => !vectors.has(c.chunkHash)) as (ChunkInput & { embedText: string })[];
-    const unique = [...new Map(toEmbed.map((c) => [c.chunkHash, c])).values()];
-    for (let i = 0; i < unique.length; i += batchSize) {
-      const batch = unique.slice(i, i + batchSize);
-      const out = await embedder.embed(batch.map((c) => c.embedText));
-      batch.forEach((c, j) => vectors.set(c.chunkHash, out[j]!));
-    }
-    summary.chunks.embedded += unique.length;
-    summary.chunks.reused += chunks.length - unique.length;
+    const embedded = await embedAndStore(repo, embedder, chunks.map((c) => c.chunkHash), (i) => embedText(loaded.title, drafts[i]!), {
+      embedBatch: batchSize,
+      vectorBatch,
+    });
+    summary.chunks.embedded += embedded;
+    summary.chunks.reused += chunks.length - embedded;
     const docId = documentId(collection, source);
     const { removedChunkIds, chunkIds, generation } = repo.replaceDocument(
       {
@@ -234,19 +234,16 @@ export function createIngestor(deps: {
       chunks.map(({ ordinal, text, start, end, headingPath, pageStart, pageEnd, pageBreaks, tokenCount, chunkHash }) => ({
         ordinal, text, start, end, headingPath, pageStart, pageEnd, pageBreaks, tokenCount, chunkHash,
       })),
-      vectors,
+      new Map(),
       embedder.id,
     );
-    // The vector index learns the change from the write itself, in place; the sync at the end saves it.
-    const added = chunks.flatMap((c, i) => {
-      const vector = vectors.get(c.chunkHash);
-      return vector ? [{ id: chunkIds[i]!, vector }] : [];
-    });
-    indexes.apply(collection, { generation, removed: removedChunkIds, added });
+    // The vector index learns the change from the write itself, in place, reading the vectors back a batch at a
+    // time; the sync at the end saves it.
+    indexes.apply(collection, { generation, removed: removedChunkIds, added: storedVectors(repo, embedder.id, chunkIds, vectorBatch) });
     summary.chunks.removed += removedChunkIds.length;
     progress.pages += loaded.pageCount ?? 0;
     progress.chunks += chunks.length;
-    log.debug({ chunks: chunks.length, embedded: unique.length }, meta.existing ? 'document updated' : 'document added');
+    log.debug({ chunks: chunks.length, embedded }, meta.existing ? 'document updated' : 'document added');
     if (meta.existing) summary.documents.updated++;
     else summary.documents.added++;
     return meta.existing ? 'updated' : 'added';

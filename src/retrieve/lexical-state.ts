@@ -182,7 +182,13 @@ export class LexicalState {
     let i = 0;
     for (const ch of changes) {
       this.remove(ch.rowId);
-      if (ch.row) this.add(ch.rowId, ch.row.collection ?? NO_COLLECTION, ch.row.length, ch.row.postings);
+      if (ch.row) {
+        const collection = ch.row.collection ?? NO_COLLECTION;
+        this.add(ch.rowId, collection, ch.row.length, ch.row.postings);
+        // A long run of changes (a large document's chunks) turns into segments as it goes: held in the mutable
+        // segment until its end, every row's term map would be alive at once (about 20 KiB a row of 120 words).
+        this.flushIfFull(this.collection(collection));
+      }
       if (++i % 256 === 0) yield;
     }
     for (const col of this.collections.values()) this.flushIfFull(col);

@@ -1,26 +1,13 @@
 import { existsSync, mkdirSync } from 'node:fs';
 import path from 'node:path';
-import { createIndexFiles, newIndex, type Hnsw, type IndexMeta } from './hnsw-files.js';
+import { createIndexFiles, newIndex } from './hnsw-files.js';
+import { batchesOf, countOf, deletedOf, needsCompaction, release, tooFar, type Loaded } from './hnsw-state.js';
 import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
 import type { HnswParams, SyncResult, VectorChange, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
 import { EXACT_SCAN_LIMIT, exactSearch, toHits, VectorCache } from './vector-cache.js';
 
-export type { HnswParams, SyncResult, VectorChange, VectorHit, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
+export type { HnswParams, SyncResult, VectorBatches, VectorChange, VectorHit, VectorIndexes, VectorIndexLogger, VectorPoint } from './hnsw-types.js';
 
-interface Loaded {
-  index: Hnsw;
-  meta: IndexMeta;
-  live: Set<number>;
-  /** False while memory is ahead of the file on disk. */
-  saved: boolean;
-}
-
-/**
- * Past this share of tombstones a writer builds the graph again. Deleted points stay in the graph as waypoints
- * (hnswlib's markDelete), so searches still visit them; a quarter is a rule of thumb, not a measured optimum.
- */
-const COMPACT_SHARE = 0.25;
-const COMPACT_MIN = 256;
 /** Stored vectors read per turn of the event loop while the filter's vector cache fills (~5 ms at 384 dims). */
 const FILL_SLICE = 512;
 
@@ -80,14 +67,6 @@ export function createVectorIndexes(deps: {
     return { index: r.index, meta: r.meta, live, saved: true };
   };
 
-  // Past a third of the graph in tombstones and missing points, patching costs about what a rebuild does.
-  const tooFar = (state: Loaded, wanted: ReadonlyMap<number, string>): boolean => {
-    let stale = 0;
-    for (const id of state.live) if (!wanted.has(id)) stale++;
-    const missing = wanted.size - (state.live.size - stale);
-    return stale + missing + deletedOf(state).size > Math.max(64, state.index.getCurrentCount() / 3);
-  };
-
   const room = (state: Loaded, more: number): void => {
     const needed = state.index.getCurrentCount() + more;
     if (needed > state.index.getMaxElements()) state.index.resizeIndex(Math.ceil(needed * 1.25) + 16);
@@ -104,7 +83,7 @@ export function createVectorIndexes(deps: {
   /** The collection held no chunk before this change: all it holds now is what the change added. */
   const firstWrite = (c: string, change: VectorChange): boolean => {
     const now = repo.getCollection(c);
-    return change.removed.length === 0 && now !== null && now.generation === change.generation && now.chunks === change.added.length;
+    return change.removed.length === 0 && now !== null && now.generation === change.generation && now.chunks === countOf(change.added);
   };
 
   // hnswlib-node takes a plain array; one is filled per point (Array.from costs ~0.25 ms at 4,096 dimensions).
@@ -160,6 +139,7 @@ export function createVectorIndexes(deps: {
         const deleted = new Set(r.meta.deleted);
         const live = new Set(r.index.getIdsList().filter((id) => !deleted.has(id)));
         loaded.set(c, { index: r.index, meta: r.meta, live, saved: true });
+        release(base.index);
         const cache = caches.get(c);
         if (cache && cache.size > live.size * 1.25 + 64) cache.retain(live);
         logger?.info({ collection: c, generation: r.meta.generation, from: disk }, 'vector index loaded from the file a writer saved');
@@ -204,12 +184,16 @@ export function createVectorIndexes(deps: {
       // A file at a later generation (a full re-index's, say) costs less to load and patch than patching here.
       const next = tryLoad(c);
       if (next) {
+        if (state) release(state.index);
         state = next;
         fromDisk = true;
       }
     }
     let rebuilt = false;
-    if (state && tooFar(state, wanted)) state = null;
+    if (state && tooFar(state, wanted)) {
+      release(state.index);
+      state = null;
+    }
     if (!state) {
       state = emptyState(rows.length + 16);
       rebuilt = true;
@@ -269,7 +253,9 @@ export function createVectorIndexes(deps: {
     let compacted = false;
     if (needsCompaction(state)) {
       const before = deletedOf(state).size;
+      const old = state;
       state = compact(state);
+      release(old.index);
       loaded.set(c, state);
       save(c, state, generation);
       compacted = true;
@@ -281,25 +267,29 @@ export function createVectorIndexes(deps: {
   const apply: VectorIndexes['apply'] = (c, change) => {
     let state = loaded.get(c) ?? null;
     if (!state || state.meta.generation !== change.generation - 1) {
+      const stale = state;
       // Another writer (the request thread deleting a document, a CLI run) saved since this one last looked.
       const saved = files.savedGeneration(c);
       if (!state && saved === null && firstWrite(c, change)) {
         // The collection's first chunks: the graph grows document by document from empty, instead of the
         // closing sync reading every vector back from the store to build it.
-        state = emptyState(Math.max(1024, change.added.length + 16));
+        state = emptyState(Math.max(1024, countOf(change.added) + 16));
         state.meta = { ...state.meta, generation: change.generation - 1 };
       } else {
         if (saved !== change.generation - 1) return false;
         state = tryLoad(c);
         if (!state || state.meta.generation !== change.generation - 1) return false;
       }
+      if (stale) release(stale.index);
       loaded.set(c, state);
     }
     for (const id of change.removed) remove(c, state, id);
-    room(state, change.added.length);
-    for (const { id, vector } of change.added) {
-      if (state.live.has(id) || vector.length !== dimensions) continue;
-      addPoint(c, state, id, vector);
+    room(state, countOf(change.added));
+    for (const batch of batchesOf(change.added)) {
+      for (const { id, vector } of batch) {
+        if (state.live.has(id) || vector.length !== dimensions) continue;
+        addPoint(c, state, id, vector);
+      }
     }
     state.meta = { ...state.meta, generation: change.generation };
     state.saved = false;
@@ -309,7 +299,10 @@ export function createVectorIndexes(deps: {
   const adopt: VectorIndexes['adopt'] = (from, to, generation, rows) => {
     const wanted = new Map(rows.map((r) => [r.id, r.chunkHash] as const));
     let state = loaded.get(from) ?? tryLoad(from);
-    if (state && tooFar(state, wanted)) state = null;
+    if (state && tooFar(state, wanted)) {
+      release(state.index);
+      state = null;
+    }
     if (!state) state = emptyState(rows.length + 16);
     patch(to, state, rows, wanted);
     state.saved = false;
@@ -325,6 +318,8 @@ export function createVectorIndexes(deps: {
     apply,
     adopt,
     discard(c) {
+      const state = loaded.get(c);
+      if (state) release(state.index);
       loaded.delete(c);
       caches.delete(c);
       files.remove(c);
@@ -381,20 +376,11 @@ export function createVectorIndexes(deps: {
     },
     close() {
       epoch++;
+      for (const state of loaded.values()) release(state.index);
       loaded.clear();
       caches.clear();
       reading.clear();
       filling.clear();
     },
   };
-}
-
-function needsCompaction(state: Loaded): boolean {
-  const deleted = state.index.getCurrentCount() - state.live.size;
-  return deleted >= COMPACT_MIN && deleted > state.index.getCurrentCount() * COMPACT_SHARE;
-}
-
-function deletedOf(state: Loaded): Set<number> {
-  const all = state.index.getIdsList();
-  return new Set(all.filter((id) => !state.live.has(id)));
 }

@@ -22,7 +22,21 @@ export interface VectorChange {
   /** The collection's generation the write moved it to. */
   generation: number;
   removed: readonly number[];
-  added: readonly { id: number; vector: Float32Array }[];
+  /**
+   * The points added: an array, or for a large document its vectors read from the store a batch at a time (so
+   * the writer never holds all of them at once; `count` sizes the graph before the first is read).
+   */
+  added: readonly VectorPoint[] | VectorBatches;
+}
+
+export interface VectorPoint {
+  id: number;
+  vector: Float32Array;
+}
+
+export interface VectorBatches {
+  readonly count: number;
+  batches(): Iterable<readonly VectorPoint[]>;
 }
 
 export interface SyncResult {

@@ -174,6 +174,14 @@ export interface VectorStore {
   getVectors(modelId: string, hashes: readonly string[]): Map<string, Float32Array>;
   /** Stored vectors of chunks by chunk id, in one statement. */
   chunkVectors(modelId: string, ids: readonly number[]): Map<number, Float32Array>;
+  /** Which of `hashes` have a stored vector, without reading the vectors. */
+  vectorHashes(modelId: string, hashes: readonly string[]): Set<string>;
+  /**
+   * Stores vectors by chunk hash in one transaction; a hash already stored keeps its vector. Vectors are a cache
+   * keyed by the chunk text's hash (never deleted with a chunk), so storing them before their chunks is safe: a
+   * document that then fails leaves only cache rows a later chunk with the same text reuses.
+   */
+  putVectors(modelId: string, vectors: ReadonlyMap<string, Float32Array>): void;
 }
 
 /**

@@ -286,3 +286,17 @@ describe('a vector index changed in place', () => {
   });
 });
 
+
+describe('a vector graph that is dropped', () => {
+  it('gives its native memory back at once: release leaves a one-point graph with nothing in it', async () => {
+    const { newIndex } = await import('../../src/store/hnsw-files.js');
+    const { release } = await import('../../src/store/hnsw-state.js');
+    const index = newIndex(DIMS, 500, params);
+    const rand = rng(7);
+    for (let i = 0; i < 300; i++) index.addPoint(Array.from(unitVector(rand)), i);
+    expect(index.getCurrentCount()).toBe(300);
+    release(index);
+    expect(index.getCurrentCount()).toBe(0);
+    expect(index.getMaxElements()).toBe(1);
+  });
+});

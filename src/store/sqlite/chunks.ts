@@ -5,7 +5,7 @@ import type { ChunkRef, ChunkSpan, ChunkStore, ChunkView, FtsRow, LexicalStore, 
 import type { Statement } from 'better-sqlite3';
 import type { Db } from './db.js';
 import { filteredDocumentsSql } from './document-filter.js';
-import { blobToVector } from './vector-blob.js';
+import { blobToVector, vectorToBlob } from './vector-blob.js';
 
 /** A column weight as FTS5's rank function text takes it (a plain decimal, never NaN or an exponent). */
 const ftsWeightText = (x: number): string => (Number.isFinite(x) && x >= 0 ? x.toFixed(6) : '1.0');
@@ -36,7 +36,10 @@ export function sqliteChunks(db: Db): ChunkStore & VectorStore {
       SELECT k.id, v.vector FROM chunks k JOIN vectors v ON v.model_id = ? AND v.chunk_hash = k.chunk_hash
       WHERE k.id IN (SELECT value FROM json_each(?))`),
     vector: db.prepare('SELECT vector FROM vectors WHERE model_id = ? AND chunk_hash = ?'),
+    hasVector: db.prepare('SELECT 1 FROM vectors WHERE model_id = ? AND chunk_hash = ?').pluck(),
   };
+  // Prepared on first use: a read-only connection (the lexical change thread's) never writes.
+  let insertVector: Statement<unknown[]> | null = null;
   // A filter's statement depends only on how many conditions of each kind it has: prepared once per shape.
   const shapes = new Map<string, Statement<unknown[]>>();
   const cached = (sql: string): Statement<unknown[]> => {
@@ -115,6 +118,18 @@ export function sqliteChunks(db: Db): ChunkStore & VectorStore {
         if (r) out.set(h, blobToVector(r.vector));
       }
       return out;
+    },
+    vectorHashes(modelId, hashes) {
+      const out = new Set<string>();
+      for (const h of hashes) if (!out.has(h) && st.hasVector.get(modelId, h) !== undefined) out.add(h);
+      return out;
+    },
+    putVectors(modelId, vectors) {
+      insertVector ??= db.prepare('INSERT INTO vectors (model_id, chunk_hash, dimensions, vector) VALUES (?, ?, ?, ?) ON CONFLICT DO NOTHING');
+      const insert = insertVector;
+      db.transaction(() => {
+        for (const [hash, v] of vectors) insert.run(modelId, hash, v.length, vectorToBlob(v));
+      }).immediate();
     },
     chunkVectors(modelId, ids) {
       const out = new Map<number, Float32Array>();

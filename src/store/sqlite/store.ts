@@ -53,7 +53,7 @@ export class SqliteStore implements Store {
 }
 
 /** Opens (creating and migrating if needed) the store in `file`, or in memory for ':memory:'. */
-export function openStore(file: string, opts: { readonly?: boolean; clock?: () => Date } = {}): SqliteStore {
+export function openStore(file: string, opts: { readonly?: boolean; clock?: () => Date; mmap?: boolean } = {}): SqliteStore {
   return new SqliteStore(openDatabase(file, opts), opts.clock);
 }
 
