@@ -13,6 +13,7 @@ import { documentId, walk } from './files.js';
 import { rebuildCollection } from './full-reindex.js';
 import { loadDocument } from './load.js';
 import type { PdfLimits } from './load-pdf.js';
+import { refusedBySize } from './size-check.js';
 import { checkDistinctWords, DEFAULT_DOCUMENT_LIMITS, LimitExceeded, NO_DEADLINE, startDeadline, type Deadline, type DocumentLimits } from './budget.js';
 import { buildNormalisedDocument } from './normalise.js';
 import { addInto, emptySummary, fail, type FileOutcome, type IngestSummary } from './summary.js';
@@ -136,6 +137,8 @@ export function createIngestor(deps: {
     if (info.size > options.documentMaxBytes) {
       return fail(summary, source, `file is ${info.size} bytes, over the limit of ${options.documentMaxBytes}`);
     }
+    const tooLong = await refusedBySize(file, info.size, limits);
+    if (tooLong) return fail(summary, source, tooLong);
     const bytes = new Uint8Array(await readFile(file));
     const contentHash = createHash('sha256').update(bytes).digest('hex');
     const existing = repo.getDocumentBySource(collection, source);
