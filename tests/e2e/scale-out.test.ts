@@ -4,7 +4,8 @@ import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterAll, beforeAll, expect, it } from 'vitest';
 import { openPgSystemOfRecord, type PgSystemOfRecord } from '../../src/store/pg/index.js';
-import { createTestDatabase, describePg, type TestDatabase } from '../fixtures/pg.js';
+import pg from 'pg';
+import { createTestDatabase, describePg, PG_ADMIN_URL, type TestDatabase } from '../fixtures/pg.js';
 import { mulberry32 } from '../fixtures/random.js';
 import { tempRuntime } from '../fixtures/runtime.js';
 import { CLI, ROOT, startServe, type ServeProcess } from '../fixtures/serve.js';
@@ -173,4 +174,28 @@ describePg('scale-out: API nodes and workers on one PostgreSQL database', () => 
       clean.cleanup();
     }
   }, 120_000);
+
+  it('reports not-ready with a 503 and Retry-After while the database refuses connections, and answers again once it is back, without a restart', async () => {
+    const node = nodes[1]!;
+    const admin = new pg.Client({ connectionString: PG_ADMIN_URL });
+    await admin.connect();
+    try {
+      // The database goes away for the nodes: no new connection is allowed, and every open one is closed.
+      await admin.query(`ALTER DATABASE ${db.name} ALLOW_CONNECTIONS false`);
+      await admin.query('SELECT pg_terminate_backend(pid) FROM pg_stat_activity WHERE datname = $1 AND pid <> pg_backend_pid()', [db.name]);
+      await waitFor(async () => (await fetch(`${node.base}/ready`)).status === 503, { what: 'the node to report not-ready', timeoutMs: 15_000, intervalMs: 50 });
+      const refused = await fetch(`${node.base}/v1/answer`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ question: 'When do night buses run?' }) });
+      expect(refused.status).toBe(503);
+      expect(refused.headers.get('retry-after')).toBe('1');
+      const upload = await post(node.base, '/v1/collections/default/documents', { name: 'depot-hours.md', text: '# Depot hours\nThe depot office opens at seven.' });
+      expect(upload.status).toBe(503);
+    } finally {
+      await admin.query(`ALTER DATABASE ${db.name} ALLOW_CONNECTIONS true`);
+      await admin.end();
+    }
+    await waitFor(async () => (await fetch(`${node.base}/ready`)).status === 200, { what: 'the node to be ready again', timeoutMs: 15_000, intervalMs: 50 });
+    const again = await post(node.base, '/v1/answer', { question: 'How often do night buses run?', mode: 'extractive' });
+    expect(again.status).toBe(200);
+    expect((again.body.citations as Citation[]).some((x) => x.source === 'night-buses.md')).toBe(true);
+  }, 60_000);
 });
