@@ -157,6 +157,8 @@ async function throughput(mode) {
   await Promise.all(Array.from({ length: Number(args.concurrency) }, client));
   return done / ((performance.now() - t0) / 1000);
 }
+const health = await (await fetch(`${node.base}/health`)).json();
+if (!args.json) console.error('node health before the throughput run:', JSON.stringify(health.lexicalIndex), JSON.stringify(health.follower));
 const qpsLexical = await throughput('lexical');
 const qpsHybrid = await throughput('hybrid');
 const metrics = await (await fetch(`${node.base}/metrics`)).text();
