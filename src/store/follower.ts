@@ -182,6 +182,13 @@ export function createFollower(deps: FollowerDeps): Follower {
           'the data folder holds an embedded store with documents, not a copy of this database; start the node on an empty data folder',
         ]);
       }
+      // A database restored from a backup keeps its identity but may be behind what this copy has applied: the
+      // copy would hold changes the database no longer has.
+      if (followed && followed.position > (await sor.changeHead())) {
+        throw new SourceboundError('SB_ERR_DATABASE_UNUSABLE', [
+          `the local store has applied the change log up to ${followed.position}, beyond the database's head (restored from a backup?); start the node on an empty data folder`,
+        ]);
+      }
       const started = performance.now();
       await catchUp();
       logger.info({ position, ms: Math.round(performance.now() - started) }, 'caught up with the change log');

@@ -127,7 +127,7 @@ describePg('a node following the PostgreSQL change log', () => {
     expect(node.rt.repo.getDocument('late-notice')?.title).toBe('Late notice');
   });
 
-  it('refuses a snapshot taken from another database, and an embedded store with documents', async () => {
+  it('refuses a snapshot taken from another database, an embedded store with documents, and a copy ahead of the database', async () => {
     await follower!.close();
     const other = await createTestDatabase();
     const otherSor = await openPgSystemOfRecord(other.url, { max: 2 });
@@ -136,6 +136,10 @@ describePg('a node following the PostgreSQL change log', () => {
       await expect(f.start()).rejects.toThrow(/follows another database/);
       const g = createFollower({ sor: otherSor, replica: sqliteReplica(rawDb(embedded.rt)), indexes: embedded.rt.indexes, embedder: embedded.rt.embedder, logger: silentLogger() });
       await expect(g.start()).rejects.toThrow(/embedded store with documents/);
+      // The same database restored from an earlier backup: same identity, a head behind the copy.
+      const behind = { ...sor, changeHead: async () => (await sor.changeHead()) - 1 } as PgSystemOfRecord;
+      const h = createFollower({ sor: behind, replica: sqliteReplica(rawDb(node.rt)), indexes: node.rt.indexes, embedder: node.rt.embedder, logger: silentLogger() });
+      await expect(h.start()).rejects.toThrow(/beyond the database's head/);
     } finally {
       await otherSor.close();
       await other.drop();
