@@ -1,6 +1,6 @@
 // `sourcebound serve` on the PostgreSQL back end: an API node. Its runtime works on a local SQLite copy in its
 // data folder, which the follower keeps in step with the database's change log; uploads go to the shared folder
-// and become jobs in the database for the workers. /ready is 200 once the copy has caught up with the log head
+// and become jobs in the database for the workers. /ready is 200 once the copy has reached the log head
 // and while the database answers; when it stops answering the node reports not-ready (503 with Retry-After),
 // keeps trying, and serves again once it is back, without a restart.
 
@@ -61,7 +61,7 @@ export async function servePg(
   const isReady = (): boolean => {
     if (!started) return false;
     const s = follower.status();
-    return s.connected && s.caughtUp;
+    return s.connected && s.atHead;
   };
   const shared = sharedPaths(pgs.sharedDir);
   const originals = createOriginals(shared.originalsDir);

@@ -24,14 +24,14 @@ export interface FollowerLogger {
 export interface FollowerStatus {
   /** The change-log position the local store holds every change up to. */
   position: number;
-  /** The highest head the database was last seen at (the node has caught up when position reaches it). */
+  /** The highest head the database was last seen at (the node is at the head when its position reaches it). */
   head: number;
   /** The last read of the database succeeded. */
   connected: boolean;
   /** The LISTEN connection is up (polling covers the time it is not). */
   listening: boolean;
   /** Connected, and the last pass found nothing after `position`. */
-  caughtUp: boolean;
+  atHead: boolean;
   lastError: string | null;
 }
 
@@ -81,7 +81,7 @@ export function createFollower(deps: FollowerDeps): Follower {
   let position = replica.followed()?.position ?? 0;
   let head = position;
   let connected = false;
-  let caughtUp = false;
+  let atHead = false;
   let lastError: string | null = null;
   let closed = false;
   let running: Promise<number> | null = null;
@@ -142,12 +142,12 @@ export function createFollower(deps: FollowerDeps): Follower {
       while (!closed && (await applyRun()));
       connected = true;
       lastError = null;
-      caughtUp = position >= seen;
+      atHead = position >= seen;
       return position;
     } catch (err) {
       if (connected || lastError === null) logger.warn({ err, position }, 'following the change log failed; retrying');
       connected = false;
-      caughtUp = false;
+      atHead = false;
       lastError = (err as Error).message;
       throw err;
     }
@@ -191,7 +191,7 @@ export function createFollower(deps: FollowerDeps): Follower {
       }
       const started = performance.now();
       await catchUp();
-      logger.info({ position, ms: Math.round(performance.now() - started) }, 'caught up with the change log');
+      logger.info({ position, ms: Math.round(performance.now() - started) }, 'reached the head of the change log');
       listener = sor.listen({
         onChange: () => void catchUp().catch(() => {}),
         onState: (up, err) => (up ? logger.info({}, 'listening for changes') : logger.warn({ err }, 'change notifications lost; polling until they return')),
@@ -201,7 +201,7 @@ export function createFollower(deps: FollowerDeps): Follower {
     },
     catchUp,
     status() {
-      return { position, head, connected, listening: listener?.listening ?? false, caughtUp, lastError };
+      return { position, head, connected, listening: listener?.listening ?? false, atHead, lastError };
     },
     reached(p) {
       if (closed || position >= p) return Promise.resolve();

@@ -78,7 +78,7 @@ describePg('a node following the PostgreSQL change log', () => {
     await follower.start();
     const head = await sor.changeHead();
     expect(head).toBeGreaterThan(20);
-    expect(follower.status()).toMatchObject({ position: head, head, connected: true, caughtUp: true });
+    expect(follower.status()).toMatchObject({ position: head, head, connected: true, atHead: true });
     expect(node.rt.repo.getCollection('default')).toMatchObject({
       documents: embedded.rt.repo.getCollection('default')!.documents,
       chunks: embedded.rt.repo.getCollection('default')!.chunks,
