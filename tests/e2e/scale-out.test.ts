@@ -68,6 +68,7 @@ describePg('scale-out: API nodes and workers on one PostgreSQL database', () => 
   let sor: PgSystemOfRecord;
   const dirs: string[] = [];
   const nodes: ServeProcess[] = [];
+  const dataDirOf = new Map<ServeProcess, string>();
   const workers: WorkerProcess[] = [];
   let env: Record<string, string>;
   const dir = (): string => {
@@ -83,11 +84,13 @@ describePg('scale-out: API nodes and workers on one PostgreSQL database', () => 
     // A short lease so a killed worker's job is taken over within seconds; a short poll as the safety net.
     writeFileSync(config, JSON.stringify({ storage: { backend: 'postgres', followPollMs: 250 }, limits: { jobLeaseSeconds: 3 } }));
     env = { SOURCEBOUND_CONFIG: config, SOURCEBOUND_DATABASE_URL: db.url, SOURCEBOUND_SHARED_DIR: dir(), SOURCEBOUND_LOG_LEVEL: 'info' };
+    const nodeDirs = [dir(), dir(), dir()];
     const started = await Promise.all([
-      ...[0, 1, 2].map(() => startServe({ ...env, SOURCEBOUND_DATA_DIR: dir() })),
+      ...nodeDirs.map((d) => startServe({ ...env, SOURCEBOUND_DATA_DIR: d })),
       ...[0, 1].map(() => startWorker({ ...env, SOURCEBOUND_DATA_DIR: dir() })),
     ]);
     nodes.push(...(started.slice(0, 3) as ServeProcess[]));
+    nodes.forEach((n, i) => dataDirOf.set(n, nodeDirs[i]!));
     workers.push(...(started.slice(3) as WorkerProcess[]));
   }, 120_000);
 
@@ -198,4 +201,43 @@ describePg('scale-out: API nodes and workers on one PostgreSQL database', () => 
     expect(again.status).toBe(200);
     expect((again.body.citations as Citation[]).some((x) => x.source === 'night-buses.md')).toBe(true);
   }, 60_000);
+
+  it('keeps answering on the other nodes while one is SIGKILLed under load, and the killed one, restarted, catches up and becomes ready', async () => {
+    const [a, b, c] = nodes as [ServeProcess, ServeProcess, ServeProcess];
+    const cDir = dataDirOf.get(c)!;
+    const results: { base: string; status: number }[] = [];
+    let stop = false;
+    const load = async (base: string): Promise<void> => {
+      while (!stop) {
+        try {
+          const r = await post(base, '/v1/answer', { question: 'How often do night buses run?', mode: 'extractive' });
+          results.push({ base, status: r.status });
+        } catch {
+          results.push({ base, status: 0 });
+        }
+      }
+    };
+    const running = [load(a.base), load(b.base)];
+    await waitFor(() => results.length >= 10, { what: 'the load to be under way', timeoutMs: 20_000 });
+    c.child.kill('SIGKILL');
+    await waitForExit(c.child, { what: 'the killed node to exit' });
+    const atKill = results.length;
+    await waitFor(() => results.length >= atKill + 20, { what: 'answers after the kill', timeoutMs: 20_000 });
+    // A document written while the node is down: the restarted node must catch up to it.
+    const up = await post(a.base, '/v1/collections/default/documents', { name: 'tram-depot.md', text: '# Tram depot\nThe tram depot tour runs on the first Sunday of each month.' });
+    expect(up.status).toBe(202);
+    const jobId = up.body.jobId as string;
+    await waitFor(async () => (await sor.jobs.get(jobId))?.state === 'succeeded', { what: `job ${jobId} to succeed` });
+    const head = await sor.changeHead();
+    stop = true;
+    await Promise.all(running);
+    expect(results.filter((r) => r.status !== 200), 'failed answers on the nodes still running').toEqual([]);
+    const restarted = await startServe({ ...env, SOURCEBOUND_DATA_DIR: cDir });
+    nodes[2] = restarted;
+    expect((await fetch(`${restarted.base}/ready`)).status).toBe(200);
+    const health = (await (await fetch(`${restarted.base}/health`)).json()) as { follower: { position: number } };
+    expect(health.follower.position).toBeGreaterThanOrEqual(head);
+    const r = await post(restarted.base, '/v1/search', { query: 'tram depot tour', collection: 'default', mode: 'lexical' });
+    expect((r.body.results as { source: string }[])[0]?.source).toBe('tram-depot.md');
+  }, 90_000);
 });
