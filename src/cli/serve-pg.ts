@@ -5,6 +5,7 @@
 // keeps trying, and serves again once it is back, without a restart.
 
 import { buildApp } from '../api/app.js';
+import { createDeskService } from '../api/desk-service.js';
 import type { Config } from '../config/index.js';
 import { SourceboundError } from '../errors.js';
 import { createSharedDocumentService, sharedPaths } from '../jobs/index.js';
@@ -69,6 +70,8 @@ export async function servePg(
   const base = appDeps(rt, isReady, documents, undefined, { originalsDir: shared.originalsDir });
   const app = buildApp(cfg, {
     ...base,
+    // Ratings from any node land in the database, where `feedback export` on any machine can read them.
+    desk: createDeskService({ repo: rt.repo, ratings: sor.ratings, originals }),
     indexPosition: () => follower.status().position,
     health: () => ({ ...base.health(), backend: 'postgres', follower: follower.status(), ...(rt.lexicalIndex ? { lexicalIndex: rt.lexicalIndex.stats() } : {}) }),
   });

@@ -128,6 +128,10 @@ describePg('scale-out: API nodes and workers on one PostgreSQL database', () => 
     expect(onB!.position).toBeGreaterThan(0);
     const search = await post(b.base, '/v1/search', { query: 'night fare', collection: 'default' });
     expect(search.body.indexPosition).toBeGreaterThanOrEqual(onB!.position);
+    // A desk rating given on node C is kept in the database, not in C's local copy.
+    const rated = await post(c.base, '/v1/ratings', { question: question.question, answer: 'Every 30 minutes.', abstained: false, helpful: true });
+    expect(rated.status, JSON.stringify(rated.body)).toBe(201);
+    expect((await sor.ratings.list({ collection: 'default' })).map((x) => x.id)).toEqual([rated.body.id]);
   }, 60_000);
 
   it('finishes a job on the other worker after the killed one\'s lease expires, with nothing lost or doubled', async () => {
