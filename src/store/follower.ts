@@ -14,7 +14,10 @@
 import { SourceboundError } from '../errors.js';
 import type { VectorIndexes } from './hnsw-types.js';
 import type { LocalReplica, ReplicaWrite } from './sqlite/replica.js';
-import type { ChangeEntry, SystemOfRecord } from './system-of-record.js';
+import type { ChangeEntry, DocumentCopy, SystemOfRecord } from './system-of-record.js';
+
+/** Document reads the follower has in flight at once (the node's pool holds a few connections). */
+const READS_AT_ONCE = 4;
 
 export interface FollowerLogger {
   info(obj: object, msg: string): void;
@@ -89,6 +92,8 @@ export function createFollower(deps: FollowerDeps): Follower {
   let timer: NodeJS.Timeout | undefined;
   let listener: ReturnType<SystemOfRecord['listen']> | undefined;
   const waiters: { position: number; resolve: () => void }[] = [];
+  /** Collections whose vector index has changed since it was last saved. */
+  const unsaved = new Set<string>();
 
   const wake = (): void => {
     for (let i = waiters.length - 1; i >= 0; i--) {
@@ -105,15 +110,20 @@ export function createFollower(deps: FollowerDeps): Follower {
     if (batch.entries.length === 0) return false;
     const names = touched(batch.entries);
     const writes: ReplicaWrite[] = names.collections.map((name) => ({ kind: 'collection' as const, name }));
-    for (const id of names.documents) {
-      const copy = await sor.documentCopy(id, embedder.id);
+    // A few reads at once: each is a round trip, and a catch-up from an empty copy makes one per document.
+    const copies: (DocumentCopy | null)[] = [];
+    for (let i = 0; i < names.documents.length; i += READS_AT_ONCE) {
+      copies.push(...(await Promise.all(names.documents.slice(i, i + READS_AT_ONCE).map((id) => sor.documentCopy(id, embedder.id)))));
+    }
+    names.documents.forEach((id, i) => {
+      const copy = copies[i]!;
       const local = replica.copied(id);
       if (!copy) {
         writes.push({ kind: 'delete', id });
       } else if (!local || local.version !== copy.version || !sameIds(local.chunkIds, copy.chunks.map((c) => c.id))) {
         writes.push({ kind: 'put', copy });
       }
-    }
+    });
     const changes = replica.apply({ systemId, position: batch.head }, writes, embedder.id, embedder);
     const vectorsOf = new Map<string, Float32Array>();
     for (const w of writes) if (w.kind === 'put') for (const [h, v] of w.copy.vectors) vectorsOf.set(h, v);
@@ -126,8 +136,7 @@ export function createFollower(deps: FollowerDeps): Follower {
       });
       indexes.apply(ch.collection, { generation: ch.generation, removed: ch.removed, added });
     }
-    // Saved with the generation it holds: a restart loads the file instead of building the graph again.
-    for (const c of collections) indexes.sync(c);
+    for (const c of collections) unsaved.add(c);
     position = batch.head;
     head = Math.max(head, position);
     deps.onApplied?.(position);
@@ -139,7 +148,14 @@ export function createFollower(deps: FollowerDeps): Follower {
     try {
       const seen = await sor.changeHead();
       head = Math.max(head, seen);
-      while (!closed && (await applyRun()));
+      try {
+        while (!closed && (await applyRun()));
+      } finally {
+        // Saved once a pass, with the generation it holds: a restart loads the file instead of building the graph
+        // again. (A crash before the save leaves the file behind the store, which the next sync patches.)
+        for (const c of unsaved) indexes.sync(c);
+        unsaved.clear();
+      }
       connected = true;
       lastError = null;
       atHead = position >= seen;
