@@ -1,20 +1,25 @@
 // The runtime's options read from the configuration: what the answer step, the document limits and the
-// storage back end take from it (src/runtime.ts builds the parts with them).
+// PostgreSQL back end take from it (src/runtime.ts builds the parts with them).
 
 import { readAnswerModel, type AnswererOptions } from './answer/index.js';
 import type { Config } from './config/index.js';
 import { SourceboundError } from './errors.js';
 import type { DocumentLimits } from './ingest/index.js';
 
-/** Refuses a storage back end this release does not serve yet. */
-export function refuseUnservedBackend(config: Readonly<Config>): void {
-  // The PostgreSQL system of record (src/store/pg/) is not on the query path yet: starting on SQLite instead
-  // would quietly write what the operator meant for PostgreSQL into a local file.
-  if (config.storage.backend !== 'sqlite') {
+/** What a process on the PostgreSQL back end needs beside the URL; refuses a configuration that lacks it. */
+export function postgresSettings(config: Readonly<Config>): { url: string; sharedDir: string; followPollMs: number } {
+  const s = config.storage;
+  if (s.backend !== 'postgres' || s.databaseUrl === null) {
+    throw new SourceboundError('SB_ERR_CONFIG_INVALID', ['  - storage.backend: this command needs "postgres" and SOURCEBOUND_DATABASE_URL']);
+  }
+  // Every node must reach every upload (any node may be asked for any original, any worker may take any job):
+  // a folder of one node's own would lose them.
+  if (s.sharedDir === null) {
     throw new SourceboundError('SB_ERR_CONFIG_INVALID', [
-      `  - storage.backend: "${config.storage.backend}" is not served by this release yet (its schema and writes exist, the query path reads SQLite only); use "sqlite"`,
+      '  - storage.sharedDir: backend "postgres" needs a folder every node and worker reaches, for uploads and originals (set SOURCEBOUND_SHARED_DIR)',
     ]);
   }
+  return { url: s.databaseUrl, sharedDir: s.sharedDir, followPollMs: s.followPollMs };
 }
 
 export function documentLimits(config: Readonly<Config>): DocumentLimits {

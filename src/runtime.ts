@@ -10,7 +10,7 @@ import { fileURLToPath } from 'node:url';
 import type { FastifyInstance } from 'fastify';
 import { buildApp, type AnswerRequest as HttpAnswerRequest, type AppDeps } from './api/app.js';
 import { PACKAGE_ROOT, type Config } from './config/index.js';
-import { answererOptions, documentLimits, refuseUnservedBackend } from './runtime-options.js';
+import { answererOptions, documentLimits } from './runtime-options.js';
 import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
 import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
@@ -28,6 +28,7 @@ import {
   requeueAbandoned,
   thisProcess,
   type DocumentService,
+  type LocalDocumentService,
   type JobContext,
   type JobQueue,
 } from './jobs/index.js';
@@ -60,7 +61,8 @@ export async function createRuntime(
   logger: Logger,
   opts: { onProgress?: (p: IngestProgress) => void; embedder?: Embedder; processMetrics?: boolean; mapDatabase?: boolean } = {},
 ): Promise<Runtime> {
-  refuseUnservedBackend(config);
+  // On either back end the runtime works on the SQLite store in dataDir: the whole store on "sqlite"; on
+  // "postgres", the node's local copy that its follower keeps (serve) or a worker's scratch store (worker).
   const paths = storePaths(config.dataDir);
   const store = openStore(paths.database, { mmap: opts.mapDatabase ?? true });
   const repo: Repository = store;
@@ -295,14 +297,20 @@ export async function ingestAsJob(
 }
 
 /** The HTTP layer's view of a runtime. */
-export function appDeps(rt: Runtime, isReady: (collection?: string) => boolean, documents?: DocumentService, queue?: Pick<JobQueue, 'health'>): AppDeps {
+export function appDeps(
+  rt: Runtime,
+  isReady: (collection?: string) => boolean,
+  documents?: DocumentService,
+  queue?: Pick<JobQueue, 'health'>,
+  opts: { originalsDir?: string } = {},
+): AppDeps {
   return {
     ...(documents ? { documents } : {}),
     ...(queue ? { queueHealth: () => queue.health() } : {}),
     logger: rt.logger,
     isReady,
     metrics: rt.metrics,
-    desk: createDeskService({ repo: rt.repo, ratings: rt.store.ratings, originals: createOriginals(storePaths(rt.config.dataDir).originalsDir) }),
+    desk: createDeskService({ repo: rt.repo, ratings: rt.store.ratings, originals: createOriginals(opts.originalsDir ?? storePaths(rt.config.dataDir).originalsDir) }),
     search: (req) => rt.retriever.search(req),
     answer: (req: HttpAnswerRequest) => {
       const answerer = req.style === 'extractive' ? rt.extractiveAnswerer : rt.answerer;
@@ -347,7 +355,7 @@ export function createDocumentApi(
   rt: Runtime,
   mode: 'thread' | 'inline',
   opts: { onJobDone?: Parameters<typeof createJobQueue>[0]['onJobDone'] } = {},
-): { queue: JobQueue; documents: DocumentService } {
+): { queue: JobQueue; documents: LocalDocumentService } {
   const ctx = jobContext(rt);
   // Uploads a server that stopped was still receiving: no job was made for them, so they would stay for ever.
   const partial = removeStaleIncoming(ctx.dataDir, performance.timeOrigin);

@@ -143,7 +143,7 @@ describe('the import graph of src/', () => {
   it('points stages one way: only commands import the composition root, and the store imports no other stage', () => {
     // The command handlers (src/cli/), the job worker thread and the eval commands, which build runtimes of their own.
     const importers = [...edges].filter(([, to]) => to.includes('runtime.ts')).map(([from]) => from);
-    expect(importers.sort()).toEqual(['cli/ingest.ts', 'cli/prepare.ts', 'cli/serve.ts', 'eval/answers.ts', 'eval/retrieval.ts', 'job-worker.ts']);
+    expect(importers.sort()).toEqual(['cli/ingest.ts', 'cli/prepare.ts', 'cli/serve-pg.ts', 'cli/serve.ts', 'cli/worker.ts', 'eval/answers.ts', 'eval/retrieval.ts', 'job-worker.ts']);
     const stages = ['api/', 'answer/', 'retrieve/', 'ingest/', 'embed/', 'jobs/', 'eval/', 'feedback/', 'web/', 'config/'];
     const fromStore = [...edges].filter(([from]) => from.startsWith('store/')).flatMap(([from, to]) => to.filter((t) => stages.some((s) => t.startsWith(s))).map((t) => `${from} → ${t}`));
     expect(fromStore).toEqual([]);

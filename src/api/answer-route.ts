@@ -47,9 +47,10 @@ export function registerAnswerRoute(r: FastifyInstance, ctx: AnswerRouteContext)
     if (body.history) request.history = body.history;
     if (body.filter) request.filter = body.filter;
     if (!body.stream) {
+      const position = deps.indexPosition?.();
       const result = await withDeadline(deps.answer(request), config.server.requestTimeoutMs);
       count(result);
-      return result;
+      return position !== undefined ? { ...result, indexPosition: position } : result;
     }
     await streamAnswer(req, reply, request, deadline);
     return reply;
@@ -86,9 +87,10 @@ export function registerAnswerRoute(r: FastifyInstance, ctx: AnswerRouteContext)
       else send('delta', { text: e.text, ...(e.reset ? { reset: true } : {}), ...(e.citations ? { citations: e.citations } : {}) });
     };
     try {
+      const position = deps.indexPosition?.();
       const result = await withDeadline(deps.answer(request), config.server.requestTimeoutMs);
       count(result);
-      send('done', result);
+      send('done', position !== undefined ? { ...result, indexPosition: position } : result);
     } catch (err) {
       if (gone.signal.aborted) {
         req.log.info('client left before the answer was ready');

@@ -64,14 +64,14 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
 
   app.setErrorHandler((err: FastifyError | SourceboundError, req, reply) => {
     const { status, code, message, details } = mapError(err, config.server.bodyLimitBytes, config.limits.documentMaxBytes);
-    if (status >= 500 && code !== 'SB_ERR_BUSY' && code !== 'SB_ERR_NOT_READY' && code !== 'SB_ERR_DEADLINE') {
+    if (status >= 500 && code !== 'SB_ERR_BUSY' && code !== 'SB_ERR_NOT_READY' && code !== 'SB_ERR_DEADLINE' && code !== 'SB_ERR_DATABASE_UNUSABLE') {
       req.log.error({ err }, 'request failed');
     } else {
       req.log.info({ code }, 'request refused');
     }
-    if (code === 'SB_ERR_BUSY' || code === 'SB_ERR_NOT_READY' || code === 'SB_ERR_DEADLINE') {
+    if (code === 'SB_ERR_BUSY' || code === 'SB_ERR_NOT_READY' || code === 'SB_ERR_DEADLINE' || code === 'SB_ERR_DATABASE_UNUSABLE') {
       void reply.header('retry-after', '1');
-      if (code !== 'SB_ERR_NOT_READY') metrics?.rejected.inc({ reason: code === 'SB_ERR_BUSY' ? 'busy' : 'deadline' });
+      if (code === 'SB_ERR_BUSY' || code === 'SB_ERR_DEADLINE') metrics?.rejected.inc({ reason: code === 'SB_ERR_BUSY' ? 'busy' : 'deadline' });
     }
     if (code === 'SB_ERR_UNAUTHORIZED') void reply.header('www-authenticate', 'Bearer');
     void reply.status(status).send({ error: { code, message, details } });
@@ -112,6 +112,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
     r.post('/v1/search', { config: { access: keyAccess('query', 'search', { in: 'body', absent: 'default' }) } }, async (req) => {
       const body = parse(searchSchema, req.body);
       const collection = grantedCollection(req);
+      const position = deps.indexPosition?.();
       const results = await withDeadline(
         deps.search({
           query: body.query,
@@ -136,6 +137,7 @@ export function buildApp(config: Readonly<Config>, deps: AppDeps): FastifyInstan
           text: h.text,
           score: h.score,
         })),
+        ...(position !== undefined ? { indexPosition: position } : {}),
       };
     });
 

@@ -40,6 +40,11 @@ export interface AppDeps {
   desk?: DeskService;
   /** Folder of the built desk page (dist/web); the default is found next to the compiled code. */
   deskAssetsDir?: string;
+  /**
+   * The change-log position the node's indexes hold (PostgreSQL back end): read when a search or an answer
+   * starts, and returned with it as `indexPosition`. Absent on the embedded back end.
+   */
+  indexPosition?(): number;
   /** Milliseconds since the epoch, for the rate limiter's windows (tests pass their own). */
   now?: () => number;
 }

@@ -61,7 +61,7 @@ export function registerDeskRoutes(r: FastifyInstance, ctx: DeskRouteContext): v
   r.post('/v1/ratings', { config: { access: keyAccess('query', 'rate answers', { in: 'body', absent: 'default' }) } }, async (req, reply) => {
     const body = parse(ratingSchema, req.body);
     const collection = grantedCollection(req);
-    const saved = desk.ratings.add({
+    const saved = await desk.ratings.add({
       collection,
       keyId: req.principal.keyId,
       question: body.question,

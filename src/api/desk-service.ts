@@ -5,7 +5,7 @@ import { createHash, createHmac, randomBytes, timingSafeEqual } from 'node:crypt
 import { readFile, realpath, stat } from 'node:fs/promises';
 import path from 'node:path';
 import { SourceboundError } from '../errors.js';
-import type { Originals, RatingStore, Repository } from '../store/index.js';
+import type { AsyncRatingStore, Originals, RatingStore, Repository } from '../store/index.js';
 
 export interface Passage {
   documentId: string;
@@ -34,7 +34,8 @@ export interface OriginalFile {
   contentType: string;
 }
 
-export interface DeskService {
+/** `R`: the embedded store's ratings (synchronous) or the PostgreSQL back end's (promises); the routes await either. */
+export interface DeskService<R extends RatingStore | AsyncRatingStore = RatingStore | AsyncRatingStore> {
   passage(collection: string, documentId: string, start: number, end: number): Passage;
   original(collection: string, documentId: string): Promise<OriginalFile>;
   /**
@@ -44,7 +45,7 @@ export interface DeskService {
   linkOriginal(collection: string, documentId: string): { path: string; expiresAt: string };
   /** The document a link names; throws SB_ERR_LINK_INVALID when it is forged, malformed or expired. */
   redeemLink(token: string): { collection: string; documentId: string };
-  ratings: RatingStore;
+  ratings: R;
 }
 
 /** How long a file link works: long enough to open it, too short to be worth copying from a log. */
@@ -74,14 +75,14 @@ export function snapToWord(text: string, at: number, dir: 1 | -1, stop: number):
   return mid(p) ? at : p;
 }
 
-export function createDeskService(deps: {
+export function createDeskService<R extends RatingStore | AsyncRatingStore>(deps: {
   repo: Pick<Repository, 'getDocument' | 'getDocumentText' | 'listSourceRoots' | 'chunkSpans'>;
-  ratings: RatingStore;
+  ratings: R;
   /** Uploaded originals kept by content hash: read when the folder's file is gone or is another version. */
   originals?: Pick<Originals, 'find'>;
   now?: () => number;
   secret?: Buffer;
-}): DeskService {
+}): DeskService<R> {
   const { repo } = deps;
   const now = deps.now ?? Date.now;
   // Per process: links die with a restart, which their lifetime makes harmless.

@@ -82,7 +82,7 @@ export async function registerDocumentRoutes(r: FastifyInstance, ctx: DocumentRo
 
   r.delete('/v1/collections/:collection/documents/:id', { config: { access: keyAccess('ingest', 'delete documents', { in: 'path' }) } }, async (req) => {
     const id = (req.params as { id: string }).id;
-    return { deleted: id, ...documents.remove(grantedCollection(req), id) };
+    return { deleted: id, ...(await documents.remove(grantedCollection(req), id)) };
   });
 
   // Uploads whose job failed wait in uploads-failed/<collection>/ (never walked by a re-index) for an admin.
@@ -99,7 +99,7 @@ export async function registerDocumentRoutes(r: FastifyInstance, ctx: DocumentRo
   // Any scope may follow a job, but only a job of one of the key's collections; a job that spans every
   // collection (a re-index of all) only with a key that holds every collection. Others look missing.
   r.get('/v1/jobs/:jobId', { config: { access: keyAccess(['query', 'ingest', 'admin'], 'read jobs', { in: 'own' }) } }, async (req) => {
-    const job = documents.job((req.params as { jobId: string }).jobId);
+    const job = await documents.job((req.params as { jobId: string }).jobId);
     const p = req.principal;
     const visible = job.collection === null ? p.collections === null : mayUseCollection(p, job.collection);
     if (!visible) throw new SourceboundError('SB_ERR_UNKNOWN_JOB', [job.id]);
@@ -118,7 +118,7 @@ export async function registerDocumentRoutes(r: FastifyInstance, ctx: DocumentRo
       }
       collection = [...own][0]!;
     }
-    const job = documents.reindex({ ...(collection ? { collection } : {}), ...(body.full ? { full: true } : {}) });
+    const job = await documents.reindex({ ...(collection ? { collection } : {}), ...(body.full ? { full: true } : {}) });
     return reply.status(202).send({ status: 'queued', jobId: job.id, job: `/v1/jobs/${job.id}` });
   });
 }

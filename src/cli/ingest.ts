@@ -5,7 +5,10 @@ import type { Config } from '../config/index.js';
 import { addInto, emptySummary, formatProgress, formatSummary, summaryJson, type IngestProgress, type IngestSummary } from '../ingest/index.js';
 import { thisProcess, withReindexLock } from '../jobs/index.js';
 import { createRuntime, ingestAsJob, type Runtime } from '../runtime.js';
-import { EXIT, type CliContext } from './context.js';
+import { CliError, EXIT, type CliContext } from './context.js';
+import { enqueueReindex } from '../jobs/index.js';
+import { postgresSettings } from '../runtime-options.js';
+import { openPgSystemOfRecord } from '../store/pg/index.js';
 
 export interface IngestOptions {
   collection?: string;
@@ -15,6 +18,10 @@ export interface IngestOptions {
 
 export async function ingest(ctx: CliContext, paths: string[], opts: IngestOptions): Promise<number> {
   const cfg = ctx.config();
+  if (cfg.storage.backend === 'postgres') {
+    // Writing into this machine's local copy would be overwritten by the follower and seen by no other node.
+    throw new CliError('on storage.backend "postgres", add documents through an API node (POST /v1/collections/:collection/documents): workers ingest them');
+  }
   const collection = opts.collection ?? cfg.seed.collection;
   return withRuntime(ctx, cfg, opts, async (rt) => {
     const total = emptySummary();
@@ -30,6 +37,7 @@ export async function ingest(ctx: CliContext, paths: string[], opts: IngestOptio
 
 export async function reindex(ctx: CliContext, opts: IngestOptions): Promise<number> {
   const cfg = ctx.config();
+  if (cfg.storage.backend === 'postgres') return reindexShared(ctx, cfg, opts);
   return withRuntime(ctx, cfg, opts, async (rt) => {
     const what: { collection?: string; full?: boolean } = { full: opts.full ?? false };
     if (opts.collection) what.collection = opts.collection;
@@ -70,4 +78,17 @@ async function withRuntime(
 function addSummary(total: IngestSummary, s: IngestSummary): void {
   addInto(total, s);
   total.seconds = Math.round((total.seconds + s.seconds) * 1000) / 1000;
+}
+
+/** On the PostgreSQL back end: one re-index job per collection, for the workers (each under its collection's lease). */
+async function reindexShared(ctx: CliContext, cfg: Readonly<Config>, opts: IngestOptions): Promise<number> {
+  const sor = await openPgSystemOfRecord(postgresSettings(cfg).url, { max: 1 });
+  try {
+    const jobs = await enqueueReindex(sor, { ...(opts.collection ? { collection: opts.collection } : {}), ...(opts.full ? { full: true } : {}) });
+    const rows = jobs.map((j) => ({ job: j.id, collection: j.collection }));
+    ctx.io.out(opts.json ? `${JSON.stringify({ queued: rows })}\n` : rows.map((r) => `queued re-index of ${r.collection}: job ${r.job}\n`).join(''));
+    return EXIT.ok;
+  } finally {
+    await sor.close();
+  }
 }

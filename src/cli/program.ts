@@ -10,6 +10,7 @@ import { EXIT, EXIT_HELP, type CliContext } from './context.js';
 import { ingest, reindex, type IngestOptions } from './ingest.js';
 import { collectionArg } from './options.js';
 import { serve } from './serve.js';
+import { worker } from './worker.js';
 
 const ENVIRONMENT_HELP = `Environment: PORT, HOST, SOURCEBOUND_DATA_DIR, SOURCEBOUND_CONFIG (a JSON file), SOURCEBOUND_LOG_LEVEL,
 SOURCEBOUND_LOG_FORMAT, SOURCEBOUND_EMBEDDER, SOURCEBOUND_MODEL_DIR, SOURCEBOUND_COMPLETION_URL,
@@ -39,6 +40,10 @@ export function buildProgram(ctx: CliContext): Program {
     );
 
   root.command('serve').description('start the HTTP service (npm start)').action(run(() => serve(ctx)));
+  root
+    .command('worker')
+    .description('run upload and re-index jobs from the PostgreSQL back end (storage.backend "postgres") until stopped')
+    .action(run(() => worker(ctx)));
 
   const ingestOptions = (c: Command): Command =>
     c

@@ -4,6 +4,7 @@
 import { authEnforced, checkAuthConfig } from '../api/auth.js';
 import { createRuntime, createServer } from '../runtime.js';
 import { prepare } from './prepare.js';
+import { servePg } from './serve-pg.js';
 import { startStandIn } from './stand-in.js';
 import { EXIT, type CliContext } from './context.js';
 
@@ -16,6 +17,12 @@ export async function serve(ctx: CliContext): Promise<number> {
   const logger = ctx.logger(cfg);
   // The port answers from the first moment: a stand-in holds it while the runtime is built.
   const standIn = await startStandIn(cfg.server.host, cfg.server.port);
+  if (cfg.storage.backend === 'postgres') {
+    return servePg(cfg, logger, standIn, (handler) => {
+      process.on('SIGTERM', () => void handler('SIGTERM'));
+      process.on('SIGINT', () => void handler('SIGINT'));
+    });
+  }
   let rt: Awaited<ReturnType<typeof createRuntime>>;
   try {
     rt = await createRuntime(cfg, logger);

@@ -31,6 +31,7 @@ export const ENV_BINDINGS: readonly EnvBinding[] = [
   { name: 'SOURCEBOUND_COMPLETION_MODEL', path: ['completion', 'model'], kind: 'string' },
   { name: 'SOURCEBOUND_COMPLETION_API_KEY', path: ['completion', 'apiKey'], kind: 'string' },
   { name: 'SOURCEBOUND_DATABASE_URL', path: ['storage', 'databaseUrl'], kind: 'string' },
+  { name: 'SOURCEBOUND_SHARED_DIR', path: ['storage', 'sharedDir'], kind: 'string' },
 ];
 
 export interface LoadConfigOptions {
@@ -80,6 +81,7 @@ export function loadConfig(opts: LoadConfigOptions = {}): Readonly<Config> {
   const config = parsed.data;
   config.dataDir = path.resolve(cwd, config.dataDir);
   config.embedding.modelDir = path.resolve(cwd, config.embedding.modelDir);
+  if (config.storage.sharedDir !== null) config.storage.sharedDir = path.resolve(cwd, config.storage.sharedDir);
   // The demo folder ships with the installation: a relative seed path that is not found under the
   // working directory is looked up in the package root, so `npx sourcebound serve` works from anywhere.
   const seedHere = path.resolve(cwd, config.seed.path);

@@ -1,12 +1,10 @@
-import { createHash, randomUUID } from 'node:crypto';
-import { createWriteStream, mkdirSync, renameSync, rmSync, unlinkSync } from 'node:fs';
+import { renameSync, rmSync, unlinkSync } from 'node:fs';
 import path from 'node:path';
-import { pipeline } from 'node:stream/promises';
 import type { Readable } from 'node:stream';
 import { SourceboundError } from '../errors.js';
 import type { DocumentRecord, JobRecord } from '../store/index.js';
 import type { JobContext } from './context.js';
-import { INCOMING_PREFIX, uploadsDir } from './incoming.js';
+import { receiveUpload, uploadsDir } from './incoming.js';
 import type { JobPayload } from './execute.js';
 import type { JobQueue } from './queue.js';
 import { deleteFailedUpload, listFailedUploads, type FailedUpload } from './set-aside.js';
@@ -36,13 +34,21 @@ export interface DocumentService {
   upload(collection: string, name: string, body: Readable | Uint8Array): Promise<UploadOutcome>;
   list(collection: string): DocumentSummary[];
   get(collection: string, id: string): DocumentSummary;
-  remove(collection: string, id: string): { chunksRemoved: number };
-  job(id: string): JobRecord;
-  reindex(opts: { collection?: string; full?: boolean }): JobRecord;
+  /** Synchronous on the embedded back end; a promise where the system of record is reached over the network. */
+  remove(collection: string, id: string): { chunksRemoved: number } | Promise<{ chunksRemoved: number }>;
+  job(id: string): JobRecord | Promise<JobRecord>;
+  reindex(opts: { collection?: string; full?: boolean }): JobRecord | Promise<JobRecord>;
   /** Uploads whose job failed, kept aside in `uploads-failed/<collection>/` (never walked by a re-index). */
   failedUploads(collection: string): FailedUpload[];
   /** Deletes one of them by its listed name. */
   deleteFailedUpload(collection: string, name: string): void;
+}
+
+/** The document service of the embedded back end: every answer at once. */
+export interface LocalDocumentService extends DocumentService {
+  remove(collection: string, id: string): { chunksRemoved: number };
+  job(id: string): JobRecord;
+  reindex(opts: { collection?: string; full?: boolean }): JobRecord;
 }
 
 // Every format the ingest reads (src/ingest/detect.ts), Word files included.
@@ -66,7 +72,7 @@ export function checkFileName(name: string): string {
   return n;
 }
 
-export function createDocumentService(ctx: JobContext, queue: JobQueue): DocumentService {
+export function createDocumentService(ctx: JobContext, queue: JobQueue): LocalDocumentService {
   const { store } = ctx;
   const uploadsRoot = uploadsDir(ctx.dataDir);
   const maxBytes = ctx.maxUploadBytes;
@@ -95,31 +101,7 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): Documen
     async upload(collection, rawName, body) {
       const name = checkFileName(rawName);
       const folder = path.join(uploadsRoot, collection);
-      mkdirSync(folder, { recursive: true });
-      // Dot-prefixed, so a concurrent folder walk never picks up a half-written upload.
-      const tmp = path.join(folder, `${INCOMING_PREFIX}${randomUUID()}`);
-      const hash = createHash('sha256');
-      let size = 0;
-      try {
-        const source = body instanceof Uint8Array ? (async function* () { yield body; })() : body;
-        await pipeline(
-          source,
-          async function* (chunks: AsyncIterable<Buffer | Uint8Array>) {
-            for await (const c of chunks) {
-              size += c.length;
-              if (size > maxBytes) throw new SourceboundError('SB_ERR_UPLOAD_TOO_LARGE', [maxBytes]);
-              hash.update(c);
-              yield c;
-            }
-          },
-          createWriteStream(tmp),
-        );
-        if ((body as Readable & { truncated?: boolean }).truncated) throw new SourceboundError('SB_ERR_UPLOAD_TOO_LARGE', [maxBytes]);
-      } catch (err) {
-        rmSync(tmp, { force: true });
-        throw err;
-      }
-      const contentHash = hash.digest('hex');
+      const { tmp, contentHash } = await receiveUpload(folder, body, maxBytes);
       const same = store.findDocumentByContent(collection, contentHash);
       if (same) {
         unlinkSync(tmp);

@@ -9,3 +9,5 @@ export { storePaths } from './paths.js';
 export { createOriginals, type Originals } from './originals.js';
 export { checkStore, type CheckReport, type CheckProblem } from './check.js';
 export type * from './system-of-record.js';
+export { sqliteReplica, readLocalDocument, type LocalReplica, type ReplicaWrite, type ReplicaChange, type ReplicaDocument, type FollowState } from './sqlite/replica.js';
+export { createFollower, type Follower, type FollowerStatus, type FollowerDeps } from './follower.js';

@@ -47,6 +47,20 @@ export interface ReplaceResult {
   version: number;
 }
 
+/** A chunk as stored, with its id (the same id on every node: it is the HNSW label and the lexical row id). */
+export type StoredChunk = ChunkInput & { id: number; metadata: Record<string, unknown> };
+
+/** One document as the database holds it now, read in one snapshot: what a node copies into its local store. */
+export interface DocumentCopy {
+  /** The document's version (1 when first stored, one more on each replacement). */
+  version: number;
+  doc: NewDocument;
+  /** In id order. */
+  chunks: StoredChunk[];
+  /** The chunks' vectors of the model asked for, by chunk hash (none for a chunk embedded with another model). */
+  vectors: Map<string, Float32Array>;
+}
+
 /** Jobs with leases: a running job is held by one holder until its lease expires unrenewed. */
 export interface AsyncJobStore {
   create(kind: string, collection: string | null, payload?: unknown): Promise<JobRecord>;
@@ -104,6 +118,15 @@ export interface SystemOfRecord {
   changesSince(position: number, limit?: number): Promise<ChangeBatch>;
   /** The last position of the change log (0 when empty). */
   changeHead(): Promise<number>;
+  /** The document with its chunks and their vectors of `modelId`, read in one snapshot; null when there is none. */
+  documentCopy(id: string, modelId: string): Promise<DocumentCopy | null>;
+  /** The identity the database was given when its schema was created: a node's snapshot records whose it is. */
+  systemId(): Promise<string>;
+  /**
+   * Calls `onChange` whenever a change of the log commits (LISTEN/NOTIFY on a connection of its own, which
+   * reconnects by itself), and once each time it (re)connects. Notifications sent while it was down are lost.
+   */
+  listen(handlers: { onChange: () => void; onState?: (listening: boolean, err?: Error) => void }): { readonly listening: boolean; close(): Promise<void> };
   readonly jobs: AsyncJobStore;
   readonly leases: AsyncLeaseStore;
   readonly ratings: AsyncRatingStore;

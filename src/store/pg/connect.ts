@@ -19,6 +19,13 @@ const typeParsers = {
 
 export type PgPool = pg.Pool;
 export type PgClient = pg.PoolClient;
+/** A connection of its own, outside the pool (the change listener's). */
+export type PgSession = pg.Client;
+
+/** An unconnected single connection to `url` (for LISTEN, which needs a connection no one else uses). */
+export function newSession(url: string, connectTimeoutMs: number): PgSession {
+  return new pg.Client({ connectionString: url, connectionTimeoutMillis: connectTimeoutMs, types: typeParsers });
+}
 
 export interface PgConnectOptions {
   /** Most connections the pool opens. */

@@ -16,6 +16,9 @@ import { documentFromRow } from '../document-row.js';
 /** The transaction-level advisory lock that orders writers of the change log ("sb-chlog" in ASCII). */
 export const CHANGE_LOG_LOCK = 0x73622d63686c6f67n;
 
+/** The LISTEN/NOTIFY channel a committed change of the log is announced on. */
+export const CHANGE_CHANNEL = 'sourcebound_change_log';
+
 /** A chunk as stored: the pipeline's chunk and, optionally, metadata of its own. */
 export type PgChunkInput = ChunkInput & { metadata?: Record<string, unknown> };
 
@@ -75,6 +78,9 @@ async function appendLog(c: PgClient, rows: LogRow[]): Promise<void> {
      SELECT * FROM unnest($1::text[], $2::text[], $3::text[], $4::bigint[], $5::bigint[])`,
     [rows.map((r) => r.collection), rows.map((r) => r.kind), rows.map((r) => r.documentId), rows.map((r) => r.chunkId), rows.map((r) => r.generation)],
   );
+  // Delivered at commit (never for a rolled-back change), to every node listening: it wakes them early; the
+  // nodes' polling stays the safety net for a notification missed while a listener reconnected.
+  await c.query('SELECT pg_notify($1, NULL)', [CHANGE_CHANNEL]);
 }
 
 export function pgCorpus(pool: PgPool) {

@@ -162,6 +162,16 @@ export const PG_MIGRATIONS: readonly PgMigration[] = [
     logged_at timestamptz NOT NULL DEFAULT now()
   );
   `,
+  // 2: the database's identity, made once when it is created. An API node's local snapshot records the
+  // identity of the database it follows, so a snapshot taken from another database (a restored copy, a test
+  // database of the same name) is never mistaken for a head start on this one.
+  `
+  CREATE TABLE system_identity (
+    id uuid PRIMARY KEY DEFAULT gen_random_uuid(),
+    created_at timestamptz NOT NULL DEFAULT now()
+  );
+  INSERT INTO system_identity DEFAULT VALUES;
+  `,
 ];
 
 export interface MigrationReport {

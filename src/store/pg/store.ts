@@ -7,6 +7,8 @@ import { pgJobs } from './jobs.js';
 import { pgLeases } from './leases.js';
 import { pgRatings } from './ratings.js';
 import { migratePg, type MigrationReport } from './migrations.js';
+import { readDocumentCopy, readSystemId } from './copy.js';
+import { listenForChanges } from './listen.js';
 
 export interface PgSystemOfRecord extends SystemOfRecord {
   /** What the migration at open did. */
@@ -34,6 +36,9 @@ export async function openPgSystemOfRecord(url: string, opts: PgConnectOptions =
     jobs: pgJobs(pool),
     leases: pgLeases(pool),
     ratings: pgRatings(pool),
+    documentCopy: (id, modelId) => readDocumentCopy(pool, id, modelId),
+    systemId: () => readSystemId(pool),
+    listen: (handlers) => listenForChanges(url, handlers, { connectTimeoutMs: opts.connectTimeoutMs ?? 5000 }),
     close: () => (closed ??= pool.end()),
   };
 }

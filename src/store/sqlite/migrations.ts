@@ -250,4 +250,17 @@ export const MIGRATIONS: readonly Migration[] = [
     INSERT INTO lexical_log (chunk_id) VALUES (new.id);
   END;
   `,
+  // 10: a node that follows a PostgreSQL system of record keeps its copy here (src/store/sqlite/replica.ts): which
+  // database it follows and how far into its change log it has applied, and each copied document's version there,
+  // written in the transaction of the copy itself. An embedded store leaves both empty.
+  `
+  CREATE TABLE follow_state (
+    key TEXT PRIMARY KEY,
+    value TEXT NOT NULL
+  );
+  CREATE TABLE follow_documents (
+    document_id TEXT PRIMARY KEY REFERENCES documents(id) ON DELETE CASCADE,
+    version INTEGER NOT NULL
+  );
+  `,
 ];

@@ -1,0 +1,91 @@
+// What an API node reads to copy one document into its local snapshot: the document as it is now, with its
+// text, its chunks (their ids, offsets, pages and metadata) and their vectors, all read in one snapshot of the
+// database, so the copy is a state the database was really in. And the database's identity.
+
+import type { NewDocument } from '../types.js';
+import { documentFromRow } from '../document-row.js';
+import { blobToVector } from '../sqlite/vector-blob.js';
+import type { PgPool } from './connect.js';
+import type { DocumentCopy } from '../system-of-record.js';
+
+type Row = Record<string, unknown>;
+
+export async function readDocumentCopy(pool: PgPool, id: string, modelId: string): Promise<DocumentCopy | null> {
+  const c = await pool.connect();
+  let broken: Error | undefined;
+  try {
+    await c.query('BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY');
+    try {
+      const d = (await c.query('SELECT * FROM documents WHERE id = $1', [id])).rows[0] as Row | undefined;
+      if (!d) return null;
+      const record = documentFromRow(d, d.metadata as Record<string, string>);
+      const doc: NewDocument = {
+        id: record.id,
+        collection: record.collection,
+        source: record.source,
+        root: record.root,
+        title: record.title,
+        format: record.format,
+        contentHash: record.contentHash,
+        byteSize: record.byteSize,
+        pageCount: record.pageCount,
+        effectiveDate: record.effectiveDate,
+        metadata: record.metadata,
+        settingsKey: record.settingsKey,
+        text: d.text as string,
+      };
+      const rows = (
+        await c.query(
+          `SELECT id, ordinal, text, start_offset, end_offset, heading_path, page_start, page_end, page_breaks, token_count,
+             chunk_hash, metadata FROM chunks WHERE document_id = $1 ORDER BY id`,
+          [id],
+        )
+      ).rows as Row[];
+      const hashes = [...new Set(rows.map((r) => r.chunk_hash as string))];
+      const vectors = new Map<string, Float32Array>();
+      if (hashes.length > 0) {
+        const v = await c.query<{ chunk_hash: string; vector: Buffer }>(
+          'SELECT chunk_hash, vector FROM vectors WHERE model_id = $1 AND chunk_hash = ANY($2::text[])',
+          [modelId, hashes],
+        );
+        for (const r of v.rows) vectors.set(r.chunk_hash, blobToVector(r.vector));
+      }
+      return {
+        version: d.version as number,
+        doc,
+        chunks: rows.map((r) => {
+          const breaks = (r.page_breaks as [number, number][] | null) ?? [];
+          return {
+            id: r.id as number,
+            ordinal: r.ordinal as number,
+            text: r.text as string,
+            start: r.start_offset as number,
+            end: r.end_offset as number,
+            headingPath: r.heading_path as string[],
+            pageStart: (r.page_start as number | null) ?? null,
+            pageEnd: (r.page_end as number | null) ?? null,
+            ...(breaks.length > 0 ? { pageBreaks: breaks.map(([at, page]) => ({ at, page })) } : {}),
+            tokenCount: r.token_count as number,
+            chunkHash: r.chunk_hash as string,
+            metadata: (r.metadata as Record<string, unknown> | null) ?? {},
+          };
+        }),
+        vectors,
+      };
+    } finally {
+      await c.query('COMMIT').catch((e: unknown) => {
+        broken = e as Error;
+      });
+    }
+  } finally {
+    c.release(broken);
+  }
+}
+
+/** The identity made when the database's schema was created (migration 2). */
+export async function readSystemId(pool: PgPool): Promise<string> {
+  const r = await pool.query<{ id: string }>('SELECT id::text AS id FROM system_identity ORDER BY created_at LIMIT 1');
+  const id = r.rows[0]?.id;
+  if (!id) throw new Error('the database has no system identity row (migration 2)');
+  return id;
+}
