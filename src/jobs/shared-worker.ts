@@ -99,7 +99,8 @@ export function createSharedWorker(deps: SharedWorkerDeps): SharedWorker {
     beat.unref();
     try {
       const folder = paths.uploads(collection);
-      const files = existsSync(folder) ? readdirSync(folder).filter((n) => !n.startsWith('.') && statSync(path.join(folder, n)).isFile()) : [];
+      // In name order, as the embedded ingest walks a folder: documents (and so chunk ids) come out in the same order.
+      const files = existsSync(folder) ? readdirSync(folder).filter((n) => !n.startsWith('.') && statSync(path.join(folder, n)).isFile()).sort((a, b) => (a < b ? -1 : a > b ? 1 : 0)) : [];
       const counts = { written: 0, unchanged: 0, removed: 0, failed: 0 };
       for (const name of files) {
         try {
