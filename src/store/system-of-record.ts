@@ -120,6 +120,8 @@ export interface SystemOfRecord {
   changeHead(): Promise<number>;
   /** The document with its chunks and their vectors of `modelId`, read in one snapshot; null when there is none. */
   documentCopy(id: string, modelId: string): Promise<DocumentCopy | null>;
+  /** Many documents as `documentCopy` reads one, all in one snapshot and a few queries; those not held are absent. */
+  documentCopies(ids: readonly string[], modelId: string): Promise<Map<string, DocumentCopy>>;
   /** The identity the database was given when its schema was created: a node's snapshot records whose it is. */
   systemId(): Promise<string>;
   /**
