@@ -12,6 +12,7 @@ import type { DocumentService, DocumentSummary } from './documents.js';
 import { checkFileName } from './documents.js';
 import type { JobPayload } from './execute.js';
 import { receiveUpload } from './incoming.js';
+import { deleteFailedUpload, listFailedUploadsOf } from './set-aside.js';
 
 /** Where uploads and originals live in the shared folder. */
 export function sharedPaths(sharedDir: string): { uploads: (collection: string) => string; originalsDir: string } {
@@ -131,13 +132,13 @@ export function createSharedDocumentService(deps: SharedDocumentDeps): DocumentS
       const jobs = await enqueueReindex(sor, opts);
       return jobs[0]!;
     },
-    failedUploads(collection) {
-      if (!local.getCollection(collection)) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [collection]);
-      // A failed upload's job keeps its reason in the database (GET /v1/jobs/:id); its file stays in the shared folder.
-      return [];
+    async failedUploads(collection) {
+      await knownCollection(collection);
+      // A worker sets a failed upload's file aside in the shared folder (uploads-failed/<collection>/); its reason is on its job.
+      return listFailedUploadsOf(deps.sharedDir, collection, (id) => sor.jobs.get(id));
     },
     deleteFailedUpload(collection, name) {
-      throw new SourceboundError('SB_ERR_UNKNOWN_DOCUMENT', [`${collection}/${name}`]);
+      deleteFailedUpload(deps.sharedDir, collection, name);
     },
   };
 }
