@@ -88,7 +88,7 @@ export async function registerDocumentRoutes(r: FastifyInstance, ctx: DocumentRo
   // Uploads whose job failed wait in uploads-failed/<collection>/ (never walked by a re-index) for an admin.
   const failedAccess = (action: string) => keyAccess('admin', action, { in: 'path' });
   r.get('/v1/collections/:collection/failed-uploads', { config: { access: failedAccess('list failed uploads') } }, async (req) => {
-    return { failedUploads: documents.failedUploads(grantedCollection(req)) };
+    return { failedUploads: await documents.failedUploads(grantedCollection(req)) };
   });
   r.delete('/v1/collections/:collection/failed-uploads/:name', { config: { access: failedAccess('delete failed uploads') } }, async (req) => {
     const name = (req.params as { name: string }).name;

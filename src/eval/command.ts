@@ -27,8 +27,9 @@ export function addEvalCommands(parent: Command, ctx: CliContext, run: Run): voi
     .command('retrieval')
     .summary('measure retrieval on a test collection (TREC qrels)')
     .description('Measures retrieval on a test collection: corpus and queries are JSONL ({id, title?, text}), qrels are TREC format (qid 0 docid grade).')
-    .usage('--corpus F --queries F --qrels F [options]')
-    .option('--corpus <file>', 'the documents (JSONL)')
+    .usage('(--corpus F | --collection C) --queries F --qrels F [options]')
+    .option('--corpus <file>', 'the documents (JSONL), ingested into a throw-away store')
+    .option('--collection <name>', "rank this collection of the configured data folder's store instead (a document is its source name without the extension)")
     .option('--queries <file>', 'the queries (JSONL)')
     .option('--qrels <file>', 'relevance judgements (TREC qrels)')
     .addOption(new Option('--mode <mode>', 'which retrieval to measure').choices(['hybrid', 'lexical', 'dense']).default('hybrid'))
@@ -79,6 +80,7 @@ export function addEvalCommands(parent: Command, ctx: CliContext, run: Run): voi
 
 interface RetrievalOptions {
   corpus?: string;
+  collection?: string;
   queries?: string;
   qrels?: string;
   mode: SearchMode;
@@ -92,14 +94,16 @@ interface RetrievalOptions {
 }
 
 async function retrievalCommand(ctx: CliContext, opts: RetrievalOptions): Promise<number> {
-  requireOptions(opts, ['corpus', 'queries', 'qrels']);
+  requireOptions(opts, opts.collection === undefined ? ['corpus', 'queries', 'qrels'] : ['queries', 'qrels']);
+  if (opts.corpus !== undefined && opts.collection !== undefined) throw usageError('give --corpus (a throw-away store) or --collection (the configured store), not both');
   const tuning: RetrievalTuning = {};
   if (opts.rm3 !== undefined) tuning.rm3 = opts.rm3 === 'on' ? DEFAULT_RM3 : null;
   if (opts.synonyms !== undefined) tuning.synonymWeight = opts.synonyms === 0 ? null : opts.synonyms;
   if (opts.denseWeight !== undefined) tuning.denseWeight = opts.denseWeight;
   if (opts.lexicalEngine !== undefined) tuning.lexicalEngine = opts.lexicalEngine;
   const result = await evaluateRetrieval({
-    corpus: opts.corpus!,
+    ...(opts.corpus !== undefined ? { corpus: opts.corpus } : {}),
+    ...(opts.collection !== undefined ? { collection: opts.collection } : {}),
     queries: opts.queries!,
     qrels: opts.qrels!,
     mode: opts.mode,

@@ -23,7 +23,13 @@ export function wordNetDir(): string {
 }
 
 export interface RetrievalEvalOptions {
-  corpus: string;
+  /** The documents to ingest into a throw-away store; not read when `collection` is given. */
+  corpus?: string;
+  /**
+   * Rank the documents this collection of the configured store (its data folder) already holds instead of
+   * ingesting `corpus`: a document's id in the run is its source name without the extension (`12.txt` is `12`).
+   */
+  collection?: string;
   queries: string;
   qrels: string;
   mode: SearchMode;
@@ -52,38 +58,52 @@ export function corpusDocToLoaded(d: CorpusDoc): LoadedDocument {
   return { format: 'text', title: d.title.trim() || d.id, blocks, pageCount: null, effectiveDate: null, metadata: {} };
 }
 
-/** Ingests the corpus into a throw-away store, runs every query, scores the ranking against the qrels. */
+/** Ingests the corpus into a throw-away store (or opens the configured one), runs every query, scores the ranking against the qrels. */
 export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<RetrievalEvalResult> {
   const started = performance.now();
-  const corpus = readCorpus(opts.corpus);
+  if (!opts.collection && !opts.corpus) throw new Error('give the corpus to ingest or the collection of the store to rank');
+  const corpus = opts.collection ? [] : readCorpus(opts.corpus!);
   const queries = readQueries(opts.queries);
   const qrels = readQrels(opts.qrels);
-  const dataDir = mkdtempSync(path.join(tmpdir(), 'sourcebound-eval-'));
+  const dataDir = opts.collection ? null : mkdtempSync(path.join(tmpdir(), 'sourcebound-eval-'));
   const config = loadConfig({
     env: opts.env,
     overrides: {
       ...opts.overrides,
-      dataDir,
+      ...(dataDir ? { dataDir } : {}),
+      // Whatever the configuration says, the ranking is the embedded store's own (a node's copy is one).
+      storage: { backend: 'sqlite' },
       seed: { ingestOnEmpty: false },
       retrieval: { candidates: Math.max(opts.depth, 100) },
     },
   });
   const logger = configuredLogger(config, { quiet: true });
   const rt = await createRuntime(config, logger);
+  const collection = opts.collection ?? 'eval';
   try {
-    opts.onProgress?.(`ingesting ${corpus.length} documents with ${rt.embedder.id}`);
-    const summary = await rt.ingestor.ingestLoaded(
-      'eval',
-      corpus
-        .filter((d) => d.text.trim() || d.title.trim())
-        .map((d) => ({
-          source: d.id,
-          loaded: corpusDocToLoaded(d),
-          contentHash: createHash('sha256').update(`${d.title}\n${d.text}`).digest('hex'),
-          byteSize: Buffer.byteLength(d.text),
-        })),
-    );
-    if (summary.documents.failed > 0) logger.warn({ failures: summary.failures.slice(0, 5) }, 'some corpus documents were not indexed');
+    if (opts.collection) {
+      if (!rt.repo.listCollections().some((c) => c.name === collection)) throw new Error(`the store in ${config.dataDir} has no collection "${collection}"`);
+      for (const c of rt.repo.listCollections()) {
+        rt.indexes.sync(c.name);
+        await rt.indexes.settled(c.name);
+      }
+      await rt.lexicalIndex?.whenReady();
+    } else {
+      opts.onProgress?.(`ingesting ${corpus.length} documents with ${rt.embedder.id}`);
+      const summary = await rt.ingestor.ingestLoaded(
+        'eval',
+        corpus
+          .filter((d) => d.text.trim() || d.title.trim())
+          .map((d) => ({
+            source: d.id,
+            loaded: corpusDocToLoaded(d),
+            contentHash: createHash('sha256').update(`${d.title}\n${d.text}`).digest('hex'),
+            byteSize: Buffer.byteLength(d.text),
+          })),
+      );
+      if (summary.documents.failed > 0) logger.warn({ failures: summary.failures.slice(0, 5) }, 'some corpus documents were not indexed');
+    }
+    const docId = opts.collection ? (source: string) => path.parse(source).name : (source: string) => source;
     opts.onProgress?.(`running ${queries.length} queries (${opts.mode})`);
     const ranked = new Map<string, { doc: string; score: number }[]>();
     const tuning = opts.tuning ?? {};
@@ -97,13 +117,13 @@ export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<Ret
     });
     for (const q of queries) {
       // Chunks are ranked; a document takes the rank of its best chunk.
-      const hits = await retriever.search({ query: q.text, collection: 'eval', k: opts.depth * 2, mode: opts.mode });
+      const hits = await retriever.search({ query: q.text, collection, k: opts.depth * 2, mode: opts.mode });
       const seen = new Set<string>();
       const docs: { doc: string; score: number }[] = [];
       for (const h of hits) {
         if (seen.has(h.source)) continue;
         seen.add(h.source);
-        docs.push({ doc: h.source, score: h.score });
+        docs.push({ doc: docId(h.source), score: h.score });
         if (docs.length >= opts.depth) break;
       }
       ranked.set(q.id, docs);
@@ -117,11 +137,11 @@ export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<Ret
       ...scores,
       mode: opts.mode,
       embedder: rt.embedder.id,
-      documents: rt.repo.countDocuments('eval'),
+      documents: rt.repo.countDocuments(collection),
       seconds: Math.round((performance.now() - started) / 100) / 10,
     };
   } finally {
     rt.close();
-    rmSync(dataDir, { recursive: true, force: true });
+    if (dataDir) rmSync(dataDir, { recursive: true, force: true });
   }
 }

@@ -39,7 +39,7 @@ export interface DocumentService {
   job(id: string): JobRecord | Promise<JobRecord>;
   reindex(opts: { collection?: string; full?: boolean }): JobRecord | Promise<JobRecord>;
   /** Uploads whose job failed, kept aside in `uploads-failed/<collection>/` (never walked by a re-index). */
-  failedUploads(collection: string): FailedUpload[];
+  failedUploads(collection: string): FailedUpload[] | Promise<FailedUpload[]>;
   /** Deletes one of them by its listed name. */
   deleteFailedUpload(collection: string, name: string): void;
 }
@@ -48,6 +48,7 @@ export interface DocumentService {
 export interface LocalDocumentService extends DocumentService {
   remove(collection: string, id: string): { chunksRemoved: number };
   job(id: string): JobRecord;
+  failedUploads(collection: string): FailedUpload[];
   reindex(opts: { collection?: string; full?: boolean }): JobRecord;
 }
 

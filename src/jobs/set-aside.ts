@@ -59,6 +59,19 @@ export interface FailedUpload {
 }
 
 export function listFailedUploads(dataDir: string, collection: string, jobs: Pick<JobContext['store']['jobs'], 'get'>): FailedUpload[] {
+  return keptFailures(dataDir, collection).map((f) => withJob(f, jobs.get(f.jobId)));
+}
+
+/** The same list where jobs are read from the database (the PostgreSQL back end keeps the folder in the shared folder). */
+export async function listFailedUploadsOf(dir: string, collection: string, getJob: (id: string) => Promise<JobRecord | null>): Promise<FailedUpload[]> {
+  const out: FailedUpload[] = [];
+  for (const f of keptFailures(dir, collection)) out.push(withJob(f, await getJob(f.jobId)));
+  return out;
+}
+
+type KeptFailure = Omit<FailedUpload, 'failedAt' | 'reason'> & { mtime: string };
+
+function keptFailures(dataDir: string, collection: string): KeptFailure[] {
   const dir = failedUploadsDir(dataDir, collection);
   if (!existsSync(dir)) return [];
   return readdirSync(dir)
@@ -68,9 +81,12 @@ export function listFailedUploads(dataDir: string, collection: string, jobs: Pic
       if (!m) return [];
       const st = statSync(path.join(dir, name));
       if (!st.isFile()) return [];
-      const job = jobs.get(m[1]!);
-      return [{ name, jobId: m[1]!, source: m[2]!, bytes: st.size, failedAt: job?.finishedAt ?? st.mtime.toISOString(), reason: job?.error ?? null }];
+      return [{ name, jobId: m[1]!, source: m[2]!, bytes: st.size, mtime: st.mtime.toISOString() }];
     });
+}
+
+function withJob(f: KeptFailure, job: JobRecord | null | undefined): FailedUpload {
+  return { name: f.name, jobId: f.jobId, source: f.source, bytes: f.bytes, failedAt: job?.finishedAt ?? f.mtime, reason: job?.error ?? null };
 }
 
 /** Deletes one failed upload by its name in the folder (as listed); nothing else can be named. */

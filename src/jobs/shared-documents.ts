@@ -12,6 +12,7 @@ import type { DocumentService, DocumentSummary } from './documents.js';
 import { checkFileName } from './documents.js';
 import type { JobPayload } from './execute.js';
 import { receiveUpload } from './incoming.js';
+import { deleteFailedUpload, listFailedUploadsOf } from './set-aside.js';
 
 /** Where uploads and originals live in the shared folder. */
 export function sharedPaths(sharedDir: string): { uploads: (collection: string) => string; originalsDir: string } {
@@ -19,7 +20,7 @@ export function sharedPaths(sharedDir: string): { uploads: (collection: string) 
 }
 
 export interface SharedDocumentDeps {
-  sor: Pick<SystemOfRecord, 'ensureCollection' | 'getCollection' | 'deleteDocument' | 'jobs' | 'listCollections'>;
+  sor: Pick<SystemOfRecord, 'ensureCollection' | 'getCollection' | 'deleteDocument' | 'jobs' | 'listCollections' | 'findDocumentByContent'>;
   local: Pick<Repository, 'getDocument' | 'listDocuments' | 'countChunks' | 'getCollection' | 'findDocumentByContent'>;
   sharedDir: string;
   originals: Originals;
@@ -44,10 +45,12 @@ export function createSharedDocumentService(deps: SharedDocumentDeps): DocumentS
     getCollection: (n) => reaching('reading the collection', () => raw.getCollection(n)),
     deleteDocument: (id) => reaching('deleting the document', () => raw.deleteDocument(id)),
     listCollections: () => reaching('listing collections', () => raw.listCollections()),
+    findDocumentByContent: (c, h) => reaching('looking for the same bytes', () => raw.findDocumentByContent(c, h)),
     jobs: {
       ...raw.jobs,
       create: (kind, collection, payload) => reaching('queueing the job', () => raw.jobs.create(kind, collection, payload)),
       get: (id) => reaching('reading the job', () => raw.jobs.get(id)),
+      pendingUpload: (c, h) => reaching('looking for the same bytes', () => raw.jobs.pendingUpload(c, h)),
     },
   };
   const paths = sharedPaths(deps.sharedDir);
@@ -78,10 +81,24 @@ export function createSharedDocumentService(deps: SharedDocumentDeps): DocumentS
       const name = checkFileName(rawName);
       const folder = paths.uploads(collection);
       const { tmp, contentHash } = await receiveUpload(folder, body, deps.maxUploadBytes);
-      const same = local.findDocumentByContent(collection, contentHash);
+      // The same bytes are looked for in the database, the system of record, not in this node's copy: another
+      // node may have received them, and its job may still be waiting for a worker.
+      let same: { id: string; source: string } | null;
+      let pending: JobRecord | null;
+      try {
+        same = await sor.findDocumentByContent(collection, contentHash);
+        pending = same ? null : await sor.jobs.pendingUpload(collection, contentHash);
+      } catch (err) {
+        unlinkSync(tmp);
+        throw err;
+      }
       if (same) {
         unlinkSync(tmp);
         return { status: 'unchanged', documentId: same.id, source: same.source };
+      }
+      if (pending) {
+        unlinkSync(tmp);
+        return { status: 'queued', job: pending, source: (pending.payload as { source?: string }).source ?? name };
       }
       // The original is kept before the job exists: a worker that claims the job at once finds it.
       originals.keep(collection, contentHash, tmp);
@@ -115,13 +132,13 @@ export function createSharedDocumentService(deps: SharedDocumentDeps): DocumentS
       const jobs = await enqueueReindex(sor, opts);
       return jobs[0]!;
     },
-    failedUploads(collection) {
-      if (!local.getCollection(collection)) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [collection]);
-      // A failed upload's job keeps its reason in the database (GET /v1/jobs/:id); its file stays in the shared folder.
-      return [];
+    async failedUploads(collection) {
+      await knownCollection(collection);
+      // A worker sets a failed upload's file aside in the shared folder (uploads-failed/<collection>/); its reason is on its job.
+      return listFailedUploadsOf(deps.sharedDir, collection, (id) => sor.jobs.get(id));
     },
     deleteFailedUpload(collection, name) {
-      throw new SourceboundError('SB_ERR_UNKNOWN_DOCUMENT', [`${collection}/${name}`]);
+      deleteFailedUpload(deps.sharedDir, collection, name);
     },
   };
 }

@@ -7,7 +7,7 @@
 // expired another worker claims the job and runs it again. Writing a document is a replacement, and a document
 // the database already holds with the same bytes and settings is left alone, so a job run twice writes it once.
 
-import { copyFileSync, existsSync, mkdirSync, readdirSync, statSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdirSync, readdirSync, renameSync, statSync } from 'node:fs';
 import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import path from 'node:path';
@@ -17,6 +17,7 @@ import type { Logger } from '../logger.js';
 import type { JobOwner, JobRecord, Originals, ReplicaDocument, SystemOfRecord } from '../store/index.js';
 import type { JobPayload } from './execute.js';
 import { heartbeatMs } from './queue.js';
+import { failedUploadsDir } from './set-aside.js';
 import { sharedPaths } from './shared-documents.js';
 
 /** Times a job is claimed before a lease that keeps expiring fails it (a job that kills every worker). */
@@ -99,7 +100,8 @@ export function createSharedWorker(deps: SharedWorkerDeps): SharedWorker {
     beat.unref();
     try {
       const folder = paths.uploads(collection);
-      const files = existsSync(folder) ? readdirSync(folder).filter((n) => !n.startsWith('.') && statSync(path.join(folder, n)).isFile()) : [];
+      // In name order, as the embedded ingest walks a folder: documents (and so chunk ids) come out in the same order.
+      const files = existsSync(folder) ? readdirSync(folder).filter((n) => !n.startsWith('.') && statSync(path.join(folder, n)).isFile()).sort((a, b) => (a < b ? -1 : a > b ? 1 : 0)) : [];
       const counts = { written: 0, unchanged: 0, removed: 0, failed: 0 };
       for (const name of files) {
         try {
@@ -126,6 +128,27 @@ export function createSharedWorker(deps: SharedWorkerDeps): SharedWorker {
     }
   };
 
+  /**
+   * Moves a failed upload's file out of the collection's shared upload folder into uploads-failed/<collection>/,
+   * named after its job, as the embedded back end does: a re-index would otherwise take it up again. Only when the
+   * file there still holds the failed bytes (a later upload of the same name is left alone); when the database
+   * holds a document of that name, its kept original goes back into the upload folder.
+   */
+  const setAsideShared = async (job: JobRecord): Promise<string | null> => {
+    const p = job.payload as JobPayload;
+    if (p.kind !== 'upload') return null;
+    const from = path.join(paths.uploads(p.collection), p.source);
+    if (!existsSync(from) || (p.contentHash && (await sha256(from)) !== p.contentHash)) return null;
+    const dir = failedUploadsDir(deps.sharedDir, p.collection);
+    const to = path.join(dir, `${job.id}-${p.source}`);
+    mkdirSync(dir, { recursive: true });
+    renameSync(from, to);
+    const indexed = await sor.getDocument(documentId(p.collection, p.source));
+    const kept = indexed ? deps.originals.find(p.collection, indexed.contentHash) : null;
+    if (kept && !existsSync(from)) copyFileSync(kept, from);
+    return to;
+  };
+
   const run = async (job: JobRecord): Promise<void> => {
     const jlog = log.child({ jobId: job.id, kind: job.kind });
     const beat = setInterval(() => void sor.jobs.renewAll(owner.holder, leaseMs).catch(() => {}), heartbeatMs(leaseMs));
@@ -137,8 +160,9 @@ export function createSharedWorker(deps: SharedWorkerDeps): SharedWorker {
       const kept = await sor.jobs.succeed(job.id, owner.holder, result);
       jlog.info({ result, kept }, kept ? 'job succeeded' : 'job finished after its lease was taken over; the other holder records it');
     } catch (err) {
-      await sor.jobs.fail(job.id, owner.holder, (err as Error).message).catch(() => false);
-      jlog.warn({ err: (err as Error).message }, 'job failed');
+      const failed = await sor.jobs.fail(job.id, owner.holder, (err as Error).message).catch(() => false);
+      const setAside = failed ? await setAsideShared(job).catch((e: unknown) => `not set aside: ${(e as Error).message}`) : null;
+      jlog.warn({ err: (err as Error).message, setAside }, 'job failed');
     } finally {
       clearInterval(beat);
     }

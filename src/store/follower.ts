@@ -16,8 +16,11 @@ import type { VectorIndexes } from './hnsw-types.js';
 import type { LocalReplica, ReplicaWrite } from './sqlite/replica.js';
 import type { ChangeEntry, DocumentCopy, SystemOfRecord } from './system-of-record.js';
 
-/** Document reads the follower has in flight at once (the node's pool holds a few connections). */
-const READS_AT_ONCE = 4;
+/**
+ * Documents read per query: a run's documents are read in slices of this many, each slice in one snapshot with
+ * three queries (a catch-up from an empty copy used to make one round trip per document).
+ */
+const DOCUMENTS_PER_READ = 200;
 
 export interface FollowerLogger {
   info(obj: object, msg: string): void;
@@ -110,13 +113,14 @@ export function createFollower(deps: FollowerDeps): Follower {
     if (batch.entries.length === 0) return false;
     const names = touched(batch.entries);
     const writes: ReplicaWrite[] = names.collections.map((name) => ({ kind: 'collection' as const, name }));
-    // A few reads at once: each is a round trip, and a catch-up from an empty copy makes one per document.
-    const copies: (DocumentCopy | null)[] = [];
-    for (let i = 0; i < names.documents.length; i += READS_AT_ONCE) {
-      copies.push(...(await Promise.all(names.documents.slice(i, i + READS_AT_ONCE).map((id) => sor.documentCopy(id, embedder.id)))));
+    // Read in bulk: each slice is one snapshot, so a document's rows are consistent with each other (documents of
+    // different slices may be from different moments; the log entries after `batch.head` cover what changed since).
+    const copies = new Map<string, DocumentCopy>();
+    for (let i = 0; i < names.documents.length; i += DOCUMENTS_PER_READ) {
+      for (const [id, copy] of await sor.documentCopies(names.documents.slice(i, i + DOCUMENTS_PER_READ), embedder.id)) copies.set(id, copy);
     }
-    names.documents.forEach((id, i) => {
-      const copy = copies[i]!;
+    names.documents.forEach((id) => {
+      const copy = copies.get(id);
       const local = replica.copied(id);
       if (!copy) {
         writes.push({ kind: 'delete', id });

@@ -79,6 +79,8 @@ export interface AsyncJobStore {
   succeed(id: string, holder: string, result: unknown): Promise<boolean>;
   fail(id: string, holder: string, error: string, result?: unknown): Promise<boolean>;
   counts(): Promise<{ state: JobState; count: number }[]>;
+  /** A queued or running upload job of the collection for these bytes (its payload's content hash), oldest first. */
+  pendingUpload(collection: string, contentHash: string): Promise<JobRecord | null>;
 }
 
 /** Named leases (the re-index lock): one holder at a time, taken over once its holder stops renewing it. */
@@ -107,6 +109,8 @@ export interface SystemOfRecord {
   listCollections(): Promise<CollectionRow[]>;
   getDocument(id: string): Promise<(DocumentRecord & { version: number }) | null>;
   getDocumentText(id: string): Promise<string | null>;
+  /** A document of the collection with these bytes (by content hash), if the database holds one. */
+  findDocumentByContent(collection: string, contentHash: string): Promise<(DocumentRecord & { version: number }) | null>;
   listDocuments(collection: string): Promise<DocumentRecord[]>;
   /** Replaces a document with its chunks and vectors, and logs the change, in one transaction. */
   replaceDocument(doc: NewDocument, chunks: ChunkInput[], vectors: Map<string, Float32Array>, modelId: string): Promise<ReplaceResult>;
@@ -120,6 +124,8 @@ export interface SystemOfRecord {
   changeHead(): Promise<number>;
   /** The document with its chunks and their vectors of `modelId`, read in one snapshot; null when there is none. */
   documentCopy(id: string, modelId: string): Promise<DocumentCopy | null>;
+  /** Many documents as `documentCopy` reads one, all in one snapshot and a few queries; those not held are absent. */
+  documentCopies(ids: readonly string[], modelId: string): Promise<Map<string, DocumentCopy>>;
   /** The identity the database was given when its schema was created: a node's snapshot records whose it is. */
   systemId(): Promise<string>;
   /**

@@ -108,6 +108,11 @@ export function pgCorpus(pool: PgPool) {
       return r.rows[0] ? toDocument(r.rows[0] as Row) : null;
     },
 
+    async findDocumentByContent(collection: string, contentHash: string): Promise<(DocumentRecord & { version: number }) | null> {
+      const r = await pool.query(`SELECT ${DOCUMENT_COLUMNS} FROM documents WHERE collection = $1 AND content_hash = $2 ORDER BY id LIMIT 1`, [collection, contentHash]);
+      return r.rows[0] ? toDocument(r.rows[0] as Row) : null;
+    },
+
     async getDocumentText(id: string): Promise<string | null> {
       const r = await pool.query<{ text: string }>('SELECT text FROM documents WHERE id = $1', [id]);
       return r.rows[0]?.text ?? null;

@@ -128,5 +128,13 @@ export function pgJobs(pool: PgPool): AsyncJobStore {
       const r = await pool.query<{ state: JobState; count: number }>('SELECT state, count(*)::int AS count FROM jobs GROUP BY state ORDER BY state');
       return r.rows;
     },
+
+    async pendingUpload(collection, contentHash) {
+      const r = await pool.query(
+        "SELECT * FROM jobs WHERE kind = 'upload' AND collection = $1 AND state IN ('queued', 'running') AND payload->>'contentHash' = $2 ORDER BY created_at LIMIT 1",
+        [collection, contentHash],
+      );
+      return r.rows[0] ? toJob(r.rows[0] as Row) : null;
+    },
   };
 }

@@ -7,7 +7,7 @@ import { pgJobs } from './jobs.js';
 import { pgLeases } from './leases.js';
 import { pgRatings } from './ratings.js';
 import { migratePg, type MigrationReport } from './migrations.js';
-import { readDocumentCopy, readSystemId } from './copy.js';
+import { readDocumentCopies, readDocumentCopy, readSystemId } from './copy.js';
 import { listenForChanges } from './listen.js';
 
 export interface PgSystemOfRecord extends SystemOfRecord {
@@ -37,6 +37,7 @@ export async function openPgSystemOfRecord(url: string, opts: PgConnectOptions =
     leases: pgLeases(pool),
     ratings: pgRatings(pool),
     documentCopy: (id, modelId) => readDocumentCopy(pool, id, modelId),
+    documentCopies: (ids, modelId) => readDocumentCopies(pool, ids, modelId),
     systemId: () => readSystemId(pool),
     listen: (handlers) => listenForChanges(url, handlers, { connectTimeoutMs: opts.connectTimeoutMs ?? 5000 }),
     close: () => (closed ??= pool.end()),

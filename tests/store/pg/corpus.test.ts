@@ -87,6 +87,22 @@ describePg('the PostgreSQL corpus and its change log', () => {
     ]);
   });
 
+  it('reads many documents in one snapshot exactly as it reads each one alone, leaving out those it does not hold', async () => {
+    await sor.replaceDocument(doc({ id: 'timetable', collection: 'timetables', source: 'timetable.md', contentHash: 'd'.repeat(64) }), [chunkAt(0, 0, 20, 'h7', { metadata: { kind: 'hours' } })], new Map([['h7', vec(1, 2, 4)]]), 'hashing-3');
+    const many = await sor.documentCopies(['timetable', 'no-such-document', 'handbook'], 'hashing-3');
+    expect([...many.keys()].sort()).toEqual(['handbook', 'timetable']);
+    for (const id of ['handbook', 'timetable']) {
+      const one = (await sor.documentCopy(id, 'hashing-3'))!;
+      expect(many.get(id)).toEqual(one);
+      // Each document gets its own chunks and only their vectors.
+      expect(one.chunks.every((c) => one.vectors.has(c.chunkHash))).toBe(true);
+      expect([...one.vectors.keys()].sort()).toEqual([...new Set(one.chunks.map((c) => c.chunkHash))].sort());
+    }
+    expect(many.get('timetable')!.chunks.map((c) => c.metadata)).toEqual([{ kind: 'hours' }]);
+    expect(await sor.documentCopies([], 'hashing-3')).toEqual(new Map());
+    await sor.deleteDocument('timetable');
+  });
+
   it('replaces a document as a new version: old chunks logged as removed, new ids never reused', async () => {
     const old = (await sor.pool.query<{ id: number }>("SELECT id FROM chunks WHERE document_id = 'handbook' ORDER BY id")).rows.map((x) => x.id);
     expect(old).toHaveLength(2);
