@@ -8,7 +8,8 @@
 // job ends, one search of "hostile" itself (as a real service is asked about what it was just given): once the
 // accepted prose is in, the request thread then holds that collection's vector graph, and the peak includes it.
 // Targets (issue 14): peak RSS < 600 MB, search p95 < 100 ms.
-// Usage: npm run build && node tests/bench/hostile-http.mjs [--json]
+// Usage: npm run build && node tests/bench/hostile-http.mjs [--json] [--server-node-option=FLAG ...]
+// (--server-node-option passes a flag to the server's node only, e.g. --server-node-option=--max-old-space-size=192)
 import { spawn } from 'node:child_process';
 import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
@@ -17,7 +18,9 @@ import { parseArgs } from 'node:util';
 
 const ROOT = path.resolve(import.meta.dirname, '..', '..');
 const { INPUTS } = await import('./hostile-inputs.mjs');
-const { values: args } = parseArgs({ options: { json: { type: 'boolean', default: false } } });
+const { values: args } = parseArgs({
+  options: { json: { type: 'boolean', default: false }, 'server-node-option': { type: 'string', multiple: true, default: [] } },
+});
 const MiB = 1024 * 1024;
 const work = mkdtempSync(path.join(os.tmpdir(), 'sb-hostile-http-'));
 const QUESTIONS = readFileSync(path.join(ROOT, 'tests', 'fixtures', 'demo-questions.jsonl'), 'utf8')
@@ -29,7 +32,7 @@ const QUESTIONS = readFileSync(path.join(ROOT, 'tests', 'fixtures', 'demo-questi
 // The rate limit raised (as in load.mjs), or the searcher, which never pauses, would be refused after 600 a minute.
 const configFile = path.join(work, 'config.json');
 writeFileSync(configFile, JSON.stringify({ limits: { rateLimitPerMinute: 10_000_000 } }));
-const server = spawn(process.execPath, [path.join(ROOT, 'dist', 'cli.js'), 'serve'], {
+const server = spawn(process.execPath, [...args['server-node-option'], path.join(ROOT, 'dist', 'cli.js'), 'serve'], {
   cwd: ROOT,
   env: {
     ...process.env,
