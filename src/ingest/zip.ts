@@ -2,9 +2,12 @@
 // directory header, 4.3.16 end of central directory record). A .docx is such a package. A ZIP bomb is a small
 // file whose entries inflate to gigabytes, so the reader checks the entry count and the sizes the central
 // directory declares before inflating anything, and then inflates each entry with a hard cap on its output,
-// since a declared size can be a lie. What comes out is written back as a package of stored (uncompressed)
-// entries: the converter that reads it next then never inflates anything this reader did not measure.
-import { inflateRawSync } from 'node:zlib';
+// since a declared size can be a lie. Each entry is inflated a piece at a time into one buffer of its declared
+// size (zlib's one-shot call would collect its output in pieces and then join them: twice the entry), and a
+// caller may read each piece as it comes and stop the inflation there (load-docx.ts counts a part's text so).
+// What comes out is written back as a package of stored (uncompressed) entries: the converter that reads it
+// next then never inflates anything this reader did not measure.
+import { createInflateRaw } from 'node:zlib';
 import { LimitExceeded, type DocumentLimits } from './budget.js';
 
 const EOCD_SIG = 0x06054b50;
@@ -36,11 +39,60 @@ function findEndOfCentralDirectory(view: DataView): number {
   throw new ZipFormatError('not a ZIP package: no end of central directory record');
 }
 
+/** Reads an entry's bytes as they are inflated; a throw stops the inflation and the read. */
+export interface EntryReader {
+  piece(bytes: Uint8Array): void;
+  /** After the entry's last piece. */
+  end(): void;
+}
+
+/** Pieces zlib hands over at a time. */
+const PIECE_BYTES = 64 * 1024;
+
+/**
+ * Inflates a raw DEFLATE stream into one buffer of the `expected` bytes its header declares, handing each piece
+ * to `reader` as it comes. Throws `overLimit()` as soon as the output would pass `cap`; nothing past it is
+ * inflated. A stream longer than declared keeps what overflows in its pieces and joins them at the end (only an
+ * entry that lies and still ends within the cap is ever held twice, and only then).
+ */
+async function inflateBounded(raw: Uint8Array, expected: number, cap: number, overLimit: () => Error, reader: EntryReader | null): Promise<Uint8Array> {
+  const inflater = createInflateRaw({ chunkSize: PIECE_BYTES });
+  inflater.end(raw);
+  const out = Buffer.allocUnsafe(Math.min(Math.max(expected, 0), cap));
+  const overflow: Buffer[] = [];
+  let length = 0;
+  try {
+    // The stream waits for each piece to be read before it inflates the next, so only one is in flight.
+    for await (const piece of inflater as AsyncIterable<Buffer>) {
+      if (length + piece.length > cap) throw overLimit();
+      const fits = Math.max(0, Math.min(piece.length, out.length - length));
+      piece.copy(out, length, 0, fits);
+      if (fits < piece.length) overflow.push(piece.subarray(fits));
+      length += piece.length;
+      reader?.piece(piece);
+    }
+  } catch (err) {
+    inflater.destroy();
+    if ((err as NodeJS.ErrnoException).code?.startsWith('Z_')) {
+      throw new ZipFormatError(`corrupt ZIP package: an entry does not inflate (${(err as Error).message})`);
+    }
+    throw err;
+  }
+  reader?.end();
+  return overflow.length === 0 ? out.subarray(0, length) : Buffer.concat([out.subarray(0, Math.min(length, out.length)), ...overflow], length);
+}
+
 /**
  * The entries of a ZIP package, inflated within `limits.zipMaxEntries` and `limits.zipMaxInflatedBytes`.
- * Memory stays within the inflated limit plus the input: no entry is inflated past what is left of it.
+ * Memory stays within the inflated limit plus the input: no entry is inflated past what is left of it, and
+ * each is held once. `readerFor` may give a reader for an entry (by its name), which sees its bytes as they
+ * are inflated and may stop the whole read by throwing.
  */
-export function readZipBounded(bytes: Uint8Array, limits: Pick<DocumentLimits, 'zipMaxEntries' | 'zipMaxInflatedBytes'>): ZipEntry[] {
+export async function readZipBounded(
+  bytes: Uint8Array,
+  limits: Pick<DocumentLimits, 'zipMaxEntries' | 'zipMaxInflatedBytes'>,
+  readerFor: (name: Uint8Array) => EntryReader | null = () => null,
+): Promise<ZipEntry[]> {
   const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
   if (bytes.byteLength < EOCD_SIZE) throw new ZipFormatError('not a ZIP package: too short');
   const eocd = findEndOfCentralDirectory(view);
@@ -117,18 +169,17 @@ export function readZipBounded(bytes: Uint8Array, limits: Pick<DocumentLimits, '
     if (start + h.compressedSize > bytes.byteLength) throw new ZipFormatError('corrupt ZIP package: an entry runs past the end of the file');
     const raw = bytes.subarray(start, start + h.compressedSize);
     let data: Uint8Array;
+    const reader = readerFor(h.name);
     if (h.method === 0) {
       if (raw.byteLength > left) throw overLimit();
       data = raw;
-    } else if (h.method === 8) {
-      try {
-        // zlib stops and throws as soon as the output would pass the cap, so a lying header costs no memory.
-        data = inflateRawSync(raw, { maxOutputLength: Math.max(1, left) });
-      } catch (err) {
-        if ((err as NodeJS.ErrnoException).code === 'ERR_BUFFER_TOO_LARGE') throw overLimit();
-        throw new ZipFormatError(`corrupt ZIP package: an entry does not inflate (${(err as Error).message})`);
+      if (reader) {
+        reader.piece(data);
+        reader.end();
       }
-      if (data.byteLength > left) throw overLimit();
+    } else if (h.method === 8) {
+      // Inflation stops as soon as the output would pass what is left, so a lying header costs no more memory.
+      data = await inflateBounded(raw, h.size, left, overLimit, reader);
     } else {
       throw new ZipFormatError(`the package uses compression method ${h.method}; only stored and deflated entries are read`);
     }

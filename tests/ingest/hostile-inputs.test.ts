@@ -36,7 +36,7 @@ const MiB = 1024 * 1024;
  * A Word document whose main part is `mib` MiB of one paragraph, deflated as a stream so the test never holds
  * the inflated text: a ZIP bomb of a few hundred KB.
  */
-async function bombDocx(mib: number, opts: { declaredSize?: number } = {}): Promise<Buffer> {
+async function bombDocx(mib: number, opts: { declaredSize?: number; entry?: string } = {}): Promise<Buffer> {
   const head = `<?xml version="1.0" encoding="UTF-8"?><w:document xmlns:w="${W}"><w:body><w:p><w:r><w:t>`;
   const tail = '</w:t></w:r></w:p></w:body></w:document>';
   const unit = Buffer.alloc(MiB, 'A');
@@ -52,8 +52,9 @@ async function bombDocx(mib: number, opts: { declaredSize?: number } = {}): Prom
   d.end();
   await once(d, 'end');
   const size = head.length + mib * MiB + tail.length;
-  const others = docxEntries([]).filter((e) => e.name !== 'word/document.xml').map((e) => deflated(e.name, e.data));
-  const document: PackedZipEntry = { name: Buffer.from('word/document.xml'), packed: Buffer.concat(out), method: 8, size: opts.declaredSize ?? size, crc: 0 };
+  const bombName = opts.entry ?? 'word/document.xml';
+  const others = docxEntries([]).filter((e) => e.name !== bombName).map((e) => deflated(e.name, e.data));
+  const document: PackedZipEntry = { name: Buffer.from(bombName), packed: Buffer.concat(out), method: 8, size: opts.declaredSize ?? size, crc: 0 };
   return writeZip([...others, document]);
 }
 
@@ -88,7 +89,8 @@ describe('a ZIP bomb', () => {
   });
 
   it('whose headers lie about its size fails while inflating, at the limit', async () => {
-    const { summary } = await ingestOne('minutes.txt', await bombDocx(100, { declaredSize: 1000 }));
+    // In a part that is not XML (an image's place), so no text is counted and only the package limit stops it.
+    const { summary } = await ingestOne('minutes.txt', await bombDocx(100, { declaredSize: 1000, entry: 'word/media/image1.png' }));
     expect(summary.failures).toEqual([
       {
         source: 'minutes.txt',
@@ -96,6 +98,16 @@ describe('a ZIP bomb', () => {
       },
     ]);
     expect(summary.documents.added).toBe(0);
+  });
+
+  it('whose main part lies about its size and is all text fails on limits.documentMaxChars while inflating', async () => {
+    const { summary } = await ingestOne('minutes.txt', await bombDocx(100, { declaredSize: 1000 }));
+    expect(summary.failures).toEqual([
+      {
+        source: 'minutes.txt',
+        reason: 'the Word file has more than 5,000,000 characters of text (limits.documentMaxChars); stopped while unpacking it',
+      },
+    ]);
   });
 
   it('of more entries than limits.zipMaxEntries fails before any entry is read', async () => {
@@ -107,7 +119,7 @@ describe('a ZIP bomb', () => {
     ]);
   });
 
-  it('holding more text than limits.documentMaxChars fails on the text of its parts, before it is converted', async () => {
+  it('holding more text than limits.documentMaxChars fails on the text of its parts while they are inflated, before it is converted', async () => {
     // 6 MiB of paragraphs inflates within the package limit; its text alone is over the character limit.
     const para = `<w:p><w:r><w:t>${'Tram stop '.repeat(100)}</w:t></w:r></w:p>\n`;
     const body = para.repeat(Math.ceil((6 * MiB) / para.length));
@@ -116,7 +128,9 @@ describe('a ZIP bomb', () => {
     );
     const { summary } = await ingestOne('stops.docx', writeZip(entries));
     expect(summary.failures).toHaveLength(1);
-    expect(summary.failures[0]!.reason).toMatch(/^the Word file has 6,\d{3},\d{3} characters of text, over the limit of 5,000,000 \(limits\.documentMaxChars\)$/);
+    expect(summary.failures[0]!.reason).toBe(
+      'the Word file has more than 5,000,000 characters of text (limits.documentMaxChars); stopped while unpacking it',
+    );
   });
 
   it('leaves an honest deflated Word file readable, through the same bounded reader', async () => {
