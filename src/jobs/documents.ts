@@ -73,12 +73,9 @@ export function checkFileName(name: string): string {
   return n;
 }
 
-export function createDocumentService(ctx: JobContext, queue: JobQueue): LocalDocumentService {
-  const { store } = ctx;
-  const uploadsRoot = uploadsDir(ctx.dataDir);
-  const maxBytes = ctx.maxUploadBytes;
-
-  const summary = (d: DocumentRecord): DocumentSummary => ({
+/** A document as the documents API lists it (both back ends). */
+export function documentSummary(d: DocumentRecord, chunks: number): DocumentSummary {
+  return {
     id: d.id,
     source: d.source,
     title: d.title,
@@ -87,16 +84,26 @@ export function createDocumentService(ctx: JobContext, queue: JobQueue): LocalDo
     pageCount: d.pageCount,
     effectiveDate: d.effectiveDate,
     contentHash: d.contentHash,
-    chunks: store.countChunks(d.id),
+    chunks,
     metadata: d.metadata,
     updatedAt: d.updatedAt,
-  });
-
-  const find = (collection: string, id: string): DocumentRecord => {
-    const d = store.getDocument(id);
-    if (!d || d.collection !== collection) throw new SourceboundError('SB_ERR_UNKNOWN_DOCUMENT', [id]);
-    return d;
   };
+}
+
+/** The document `id` of `collection` in `store`; SB_ERR_UNKNOWN_DOCUMENT when there is none. */
+export function findDocument(store: { getDocument(id: string): DocumentRecord | null }, collection: string, id: string): DocumentRecord {
+  const d = store.getDocument(id);
+  if (!d || d.collection !== collection) throw new SourceboundError('SB_ERR_UNKNOWN_DOCUMENT', [id]);
+  return d;
+}
+
+export function createDocumentService(ctx: JobContext, queue: JobQueue): LocalDocumentService {
+  const { store } = ctx;
+  const uploadsRoot = uploadsDir(ctx.dataDir);
+  const maxBytes = ctx.maxUploadBytes;
+
+  const summary = (d: DocumentRecord): DocumentSummary => documentSummary(d, store.countChunks(d.id));
+  const find = (collection: string, id: string): DocumentRecord => findDocument(store, collection, id);
 
   return {
     async upload(collection, rawName, body) {

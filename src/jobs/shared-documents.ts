@@ -9,7 +9,7 @@ import path from 'node:path';
 import { SourceboundError } from '../errors.js';
 import type { DocumentRecord, JobRecord, Originals, Repository, SystemOfRecord } from '../store/index.js';
 import type { DocumentService, DocumentSummary } from './documents.js';
-import { checkFileName } from './documents.js';
+import { checkFileName, documentSummary, findDocument } from './documents.js';
 import type { JobPayload } from './execute.js';
 import { receiveUpload } from './incoming.js';
 import { deleteFailedUpload, listFailedUploadsOf } from './set-aside.js';
@@ -54,24 +54,8 @@ export function createSharedDocumentService(deps: SharedDocumentDeps): DocumentS
     },
   };
   const paths = sharedPaths(deps.sharedDir);
-  const summary = (d: DocumentRecord): DocumentSummary => ({
-    id: d.id,
-    source: d.source,
-    title: d.title,
-    format: d.format,
-    byteSize: d.byteSize,
-    pageCount: d.pageCount,
-    effectiveDate: d.effectiveDate,
-    contentHash: d.contentHash,
-    chunks: local.countChunks(d.id),
-    metadata: d.metadata,
-    updatedAt: d.updatedAt,
-  });
-  const find = (collection: string, id: string): DocumentRecord => {
-    const d = local.getDocument(id);
-    if (!d || d.collection !== collection) throw new SourceboundError('SB_ERR_UNKNOWN_DOCUMENT', [id]);
-    return d;
-  };
+  const summary = (d: DocumentRecord): DocumentSummary => documentSummary(d, local.countChunks(d.id));
+  const find = (collection: string, id: string): DocumentRecord => findDocument(local, collection, id);
   const knownCollection = async (collection: string): Promise<void> => {
     if (!local.getCollection(collection) && !(await sor.getCollection(collection))) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [collection]);
   };
