@@ -2,7 +2,7 @@
 // the ranking scored against TREC relevance judgements.
 
 import { createHash } from 'node:crypto';
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
@@ -10,6 +10,7 @@ import { loadConfig } from '../config/index.js';
 import { configuredLogger } from '../logger.js';
 import { createRetriever, createWordNet, retrieverOptions, type RetrieverOptions } from '../retrieve/index.js';
 import { createRuntime } from '../runtime.js';
+import { storePaths } from '../store/index.js';
 import type { LoadedDocument, SearchMode } from '../types.js';
 import { formatRun, readCorpus, readQrels, readQueries, type CorpusDoc } from './data.js';
 import { scoreRun, type RetrievalScores } from './metrics.js';
@@ -77,6 +78,10 @@ export async function evaluateRetrieval(opts: RetrievalEvalOptions): Promise<Ret
       retrieval: { candidates: Math.max(opts.depth, 100) },
     },
   });
+  // A store to rank must exist already: opening a missing one would create an empty store there.
+  if (opts.collection && !existsSync(storePaths(config.dataDir).database)) {
+    throw new Error(`no store in ${config.dataDir} to rank collection "${opts.collection}" from (set dataDir or SOURCEBOUND_DATA_DIR)`);
+  }
   const logger = configuredLogger(config, { quiet: true });
   const rt = await createRuntime(config, logger);
   const collection = opts.collection ?? 'eval';

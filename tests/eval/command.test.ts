@@ -1,4 +1,4 @@
-import { mkdtempSync, readFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -7,6 +7,21 @@ import { evaluateRetrieval, ndcgAt, averagePrecision, parseQrels } from '../../s
 const FIX = path.resolve(import.meta.dirname, '..', 'fixtures', 'eval');
 
 describe('sourcebound eval retrieval', () => {
+  it('refuses to rank a collection of a store that does not exist, and creates nothing there', async () => {
+    const missing = path.join(mkdtempSync(path.join(tmpdir(), 'sb-none-')), 'no-such-data');
+    await expect(
+      evaluateRetrieval({
+        collection: 'cisi',
+        queries: path.join(FIX, 'queries.jsonl'),
+        qrels: path.join(FIX, 'qrels.txt'),
+        mode: 'lexical',
+        depth: 10,
+        env: { SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_LOG_LEVEL: 'silent', SOURCEBOUND_DATA_DIR: missing },
+      }),
+    ).rejects.toThrow(/no store in .*no-such-data to rank collection "cisi"/);
+    expect(existsSync(missing)).toBe(false);
+  });
+
   it('reports metrics that an independent computation from its own TREC run file reproduces', async () => {
     const runFile = path.join(mkdtempSync(path.join(tmpdir(), 'sb-run-')), 'run.txt');
     const r = await evaluateRetrieval({
