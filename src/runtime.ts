@@ -321,6 +321,7 @@ export function appDeps(
       embedder: { id: rt.embedder.id, semantic: rt.embedder.semantic, dimensions: rt.embedder.dimensions, note: rt.embedderReason },
       completion: rt.config.completion.baseUrl ? 'configured' : 'none (extractive answers)',
       ready: isReady(),
+      ...(rt.lexicalIndex ? { lexicalIndex: rt.lexicalIndex.stats() } : {}),
     }),
     collections: () =>
       rt.repo.listCollections().map((c) => ({ name: c.name, documents: c.documents, chunks: c.chunks, embedderId: c.embedderId })),

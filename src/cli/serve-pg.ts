@@ -73,7 +73,7 @@ export async function servePg(
     // Ratings from any node land in the database, where `feedback export` on any machine can read them.
     desk: createDeskService({ repo: rt.repo, ratings: sor.ratings, originals }),
     indexPosition: () => follower.status().position,
-    health: () => ({ ...base.health(), backend: 'postgres', follower: follower.status(), ...(rt.lexicalIndex ? { lexicalIndex: rt.lexicalIndex.stats() } : {}) }),
+    health: () => ({ ...base.health(), backend: 'postgres', follower: follower.status() }),
   });
   let closing = false;
   onSignal(async (signal) => {

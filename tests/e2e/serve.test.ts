@@ -31,10 +31,13 @@ const answer = async (question: string) => {
 
 describe('sourcebound serve on the demo documents', () => {
   it('is healthy and ready, and says which embedder it runs', async () => {
-    const h = (await (await fetch(`${base}/health`)).json()) as { status: string; embedder: { semantic: boolean } };
+    const h = (await (await fetch(`${base}/health`)).json()) as { status: string; embedder: { semantic: boolean }; lexicalIndex: { ready: boolean; building: boolean } };
     expect(h.status).toBe('ok');
     expect(h.embedder.semantic).toBe(false);
     expect((await fetch(`${base}/ready`)).status).toBe(200);
+    // Ready means the in-memory BM25 index is built, before any query asked for it: a load arriving at a ready
+    // service is not answered by FTS5's slow path while the build waits behind it.
+    expect(h.lexicalIndex).toMatchObject({ ready: true, building: false });
   });
 
   it('answers a question about a PDF with the right document, page and a verbatim quote', async () => {
