@@ -11,7 +11,7 @@ import { blobToVector, vectorToBlob } from './vector-blob.js';
 const ftsWeightText = (x: number): string => (Number.isFinite(x) && x >= 0 ? x.toFixed(6) : '1.0');
 
 /** The stored `[[offset, page], ...]` form; NULL (a chunk stored before page breaks were recorded, or on one page) is none. */
-function parsePageBreaks(raw: unknown): PageBreak[] {
+export function parsePageBreaks(raw: unknown): PageBreak[] {
   if (typeof raw !== 'string' || raw === '') return [];
   const pairs = JSON.parse(raw) as [number, number][];
   return pairs.map(([at, page]) => ({ at, page }));

@@ -7,6 +7,8 @@
 
 import { ftsColumns } from '../fts-columns.js';
 import type { ChunkInput, NewDocument } from '../types.js';
+import { documentFromRow } from '../document-row.js';
+import { parsePageBreaks } from './chunks.js';
 import type { Db } from './db.js';
 import { blobToVector, vectorToBlob } from './vector-blob.js';
 
@@ -67,25 +69,12 @@ export function readLocalDocument(db: Db, id: string, modelId: string): ReplicaD
     if (blob) vectors.set(r.chunk_hash as string, blobToVector(blob));
   }
   const version = db.prepare('SELECT version FROM follow_documents WHERE document_id = ?').pluck().get(id) as number | undefined;
+  const { createdAt: _created, updatedAt: _updated, ...fields } = documentFromRow(d, JSON.parse((d.metadata as string) || '{}') as Record<string, string>);
   return {
     version: version ?? 0,
-    doc: {
-      id: d.id as string,
-      collection: d.collection as string,
-      source: d.source as string,
-      root: (d.root as string | null) ?? null,
-      title: d.title as string,
-      format: d.format as string,
-      contentHash: d.content_hash as string,
-      byteSize: d.byte_size as number,
-      pageCount: (d.page_count as number | null) ?? null,
-      effectiveDate: (d.effective_date as string | null) ?? null,
-      metadata: JSON.parse((d.metadata as string) || '{}') as Record<string, string>,
-      text: d.text as string,
-      settingsKey: d.settings_key as string,
-    },
+    doc: { ...fields, text: d.text as string },
     chunks: rows.map((r) => {
-      const breaks = r.page_breaks ? (JSON.parse(r.page_breaks as string) as [number, number][]) : [];
+      const breaks = parsePageBreaks(r.page_breaks);
       return {
         id: r.id as number,
         ordinal: r.ordinal as number,
@@ -95,7 +84,7 @@ export function readLocalDocument(db: Db, id: string, modelId: string): ReplicaD
         headingPath: JSON.parse(r.heading_path as string) as string[],
         pageStart: (r.page_start as number | null) ?? null,
         pageEnd: (r.page_end as number | null) ?? null,
-        ...(breaks.length > 0 ? { pageBreaks: breaks.map(([at, page]) => ({ at, page })) } : {}),
+        ...(breaks.length > 0 ? { pageBreaks: breaks } : {}),
         tokenCount: r.token_count as number,
         chunkHash: r.chunk_hash as string,
       };
