@@ -1,4 +1,5 @@
 import { execFile } from 'node:child_process';
+import { existsSync } from 'node:fs';
 import path from 'node:path';
 import { expect, it } from 'vitest';
 import { describePg, PG_ADMIN_URL } from '../fixtures/pg.js';
@@ -8,8 +9,13 @@ import { ROOT } from '../fixtures/serve.js';
 // query) to keep it short: the embedded store and an API node's copy of PostgreSQL (filled by a worker) give
 // byte-identical TREC run files in every mode. The full collection is tests/bench/backends-cisi.mjs without
 // --limit (docs/scale-out.md records its result).
+// CISI lives in ../shared beside the repository; CI always has it, a plain clone may not (skipped, saying why).
+const CISI = path.resolve(ROOT, '..', 'shared', 'eval', 'cisi', 'corpus.jsonl');
+const haveCisi = existsSync(CISI) || !!process.env.CI;
+if (!haveCisi) console.warn(`skipping the CISI run-file comparison: ${CISI} is absent (CI=true requires it)`);
+
 describePg('the same TREC run file on CISI from the embedded store and from PostgreSQL', () => {
-  it('writes identical run files in lexical, hybrid and dense modes', async () => {
+  it.runIf(haveCisi)('writes identical run files in lexical, hybrid and dense modes', async () => {
     const out = await new Promise<string>((resolve, reject) => {
       execFile(
         process.execPath,
