@@ -75,6 +75,13 @@ export interface LexicalMemory {
   search(collection: string, phrases: readonly PhraseCount[], limit: number, w: FtsWeights, allowed?: ReadonlySet<number>): { chunkId: number; score: number }[] | null;
   /** Starts bringing the index up to date without waiting: a short run of changes now, a long one in the background. */
   refresh(): void;
+  /**
+   * Null when `search` would not pass the query to FTS5 for want of an index; otherwise (a load or a long run of
+   * changes being applied in the background) a promise that resolves when that work ends or after `maxWaitMs`,
+   * whichever comes first. A query that waits on it leaves the event loop to that work instead of running FTS5
+   * beside it.
+   */
+  settle(): Promise<void> | null;
   /** Loads, or applies every logged change, now (synchronously), finishing any background work first. */
   syncNow(): void;
   /** Resolves once the index holds every change logged at call time (or later). */
@@ -102,6 +109,10 @@ export interface LexicalMemoryOptions {
   changeReader?: LexicalChangeReader;
   /** Longest time queries are answered by an index behind the change log before FTS5 answers instead (1000 ms). */
   maxLagMs?: number;
+  /** Longest time `settle` waits for background work before FTS5 answers instead (default: maxLagMs). */
+  maxWaitMs?: number;
+  /** Time one turn of the event loop gives background work before queries get a turn (default 8 ms). */
+  sliceMs?: number;
   /** Most rows in one segment: the first load is cut into segments of this size and merges stop at it (16,384). */
   maxSegmentRows?: number;
   /** Rows the mutable segment of a collection takes before it becomes immutable (default 1024). */
@@ -134,6 +145,8 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
   const reader = background ? (opts.changeReader ?? null) : null;
   if (!background) opts.changeReader?.close();
   const maxLagMs = opts.maxLagMs ?? 1000;
+  const maxWaitMs = opts.maxWaitMs ?? maxLagMs;
+  const sliceMs = opts.sliceMs ?? 8;
   const tokens = store.queryTokenizer();
 
   let state: LexicalState | null = null;
@@ -243,8 +256,12 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
         scheduleMerge();
       },
     };
+    // Steps (256 rows each) for up to sliceMs a turn: one step a turn would leave a long run starved behind the
+    // queries, each of which FTS5 answers, slowly, until the run is applied.
     const tick = (): void => {
-      j.step();
+      const until = performance.now() + sliceMs;
+      do j.step();
+      while (!j.settled && performance.now() < until);
       if (!j.settled) setImmediate(tick);
     };
     setImmediate(tick);
@@ -343,6 +360,15 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     },
     refresh() {
       usable();
+    },
+    settle() {
+      if (closed) return null;
+      if (!job) usable();
+      const j = job;
+      if (!j) return null;
+      let timer: NodeJS.Timeout | undefined;
+      const waited = new Promise<void>((resolve) => (timer = setTimeout(resolve, maxWaitMs)));
+      return Promise.race([j.done, waited]).finally(() => clearTimeout(timer));
     },
     syncNow() {
       if (closed) return;

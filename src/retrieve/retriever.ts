@@ -201,6 +201,10 @@ export function createRetriever(deps: {
     const allowed = filter && (wantsDense || (memory && req.mode !== 'dense')) ? repo.chunkIdsMatching(req.collection, filter) : undefined;
     const limit = Math.max(req.k, options.candidates);
     const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
+    // A long run of changes being applied to the in-memory index (a full re-index's switch): wait for it, for a
+    // bounded time, rather than run FTS5 beside it and starve it (docs/architecture.md).
+    const pending = memory && useMemory && req.mode !== 'dense' ? memory.settle() : null;
+    if (pending) await pending;
     const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed, useMemory);
     const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;
     const den = wantsDense ? dense(req.collection, denseQuery, limit, allowed) : [];

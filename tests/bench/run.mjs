@@ -12,6 +12,7 @@ import { runHnswBench } from './hnsw-recall.mjs';
 import { runLatencyBench } from './retrieval-latency.mjs';
 import { recallChart } from './chart.mjs';
 import { reindexMarkdown, runReindexBench } from './reindex.mjs';
+import { backToBackMarkdown, runBackToBack } from './reindex-back-to-back.mjs';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..', '..');
 const log = (m) => process.stderr.write(`${m}\n`);
@@ -57,6 +58,10 @@ if (!only || only === 'reindex') {
   const r = await runReindexBench({ docs: 1000, runs: 5, log });
   out.push('\n### Re-index\n');
   out.push(reindexMarkdown(r));
+  log('searches during back-to-back full re-indexes');
+  const b = await runBackToBack({ docs: 1000, runs: 3, log });
+  out.push('\n### Searches during back-to-back full re-indexes\n');
+  out.push(backToBackMarkdown(b));
 }
 // The ingest and load benchmarks are scripts of their own (each can also be run alone); their Markdown joins this report.
 for (const [part, script, flags = []] of [

@@ -7,7 +7,7 @@ import { createLexicalMemory, type LexicalMemory } from '../../src/retrieve/lexi
 import { createLexicalChangeThread, type LexicalChangeReader } from '../../src/retrieve/lexical-thread.js';
 import { phraseCounts, toWeightedMatch, type WeightedTerm } from '../../src/retrieve/query-text.js';
 import { DEFAULT_RM3 } from '../../src/retrieve/rm3.js';
-import { createRetriever } from '../../src/retrieve/retriever.js';
+import { createRetriever, retrieverOptions } from '../../src/retrieve/retriever.js';
 import { createDocumentApi } from '../../src/runtime.js';
 import { openStore, type FtsWeights, type Repository, type SqliteStore, type VectorIndexes } from '../../src/store/index.js';
 import { sqliteLexical } from '../../src/store/sqlite/lexical.js';
@@ -327,6 +327,45 @@ describe('retriever with the in-memory lexical engine', () => {
     }
   });
 
+  it('a search during a long run of changes waits for it to be applied instead of asking FTS5 beside it', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'sb-lexmem-'));
+    const repo = openStore(path.join(dir, 'store.db'));
+    // One step a turn: the run takes many turns of the event loop, as a full re-index's switch does.
+    const mem = createLexicalMemory(repo, { background: true, minRebuildGapMs: 0, syncLimit: 5, sliceMs: 0, maxWaitMs: 60_000 });
+    let ftsCalls = 0;
+    const counted = new Proxy(repo, {
+      get(target, prop) {
+        const v = Reflect.get(target, prop) as unknown;
+        if (prop === 'searchFts') return (...args: Parameters<Repository['searchFts']>) => (ftsCalls++, repo.searchFts(...args));
+        return typeof v === 'function' ? v.bind(target) : v;
+      },
+    });
+    try {
+      for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
+      generate(repo, 5, 50);
+      await mem.whenReady();
+      expect(mem.settle()).toBeNull();
+      for (let d = 0; d < 50; d += 2) repo.deleteDocument(`d${d}`);
+      generate(repo, 6, 120);
+      const options = { candidates: 50, rrfK: 60, lexicalWeight: 1, denseWeight: 0.5, fieldWeights: WEIGHTS[0]!, rm3: null, lexicalEngine: 'memory' as const };
+      const req = { query: 'depot refund', collection: 'trams', k: 20, mode: 'lexical' as const };
+      const got = await createRetriever({ repo: counted, indexes: noIndexes, embedder: noEmbedder, options, lexicalIndex: mem }).search(req);
+      // The run was long enough to be applied in the background, and the search waited for it.
+      expect(mem.stats().applied).toBeGreaterThan(5);
+      expect(ftsCalls).toBe(0);
+      const want = await createRetriever({ repo, indexes: noIndexes, embedder: noEmbedder, options: { ...options, lexicalEngine: 'fts5' } }).search(req);
+      expectSameRanking(
+        got.map((h) => ({ chunkId: h.chunkId, score: h.score })),
+        want.map((h) => ({ chunkId: h.chunkId, score: h.score })),
+        20,
+      );
+    } finally {
+      mem.close();
+      repo.close();
+      rmSync(dir, { recursive: true, force: true });
+    }
+  });
+
   it('reads a short run of changes on the change thread; queries answer from the index as it was until it is applied', async () => {
     const dir = mkdtempSync(path.join(tmpdir(), 'sb-lexmem-'));
     const file = path.join(dir, 'store.db');
@@ -427,8 +466,10 @@ describe('retriever with the in-memory lexical engine', () => {
         return real(...args);
       };
       const req = { query: 'how long is the refund window for annual passes', collection: t.config.seed.collection, k: 5, mode: 'lexical' as const };
-      const first = await t.rt.retriever.search(req);
-      expect(calls).toBe(2); // FTS5 answered both passes while the index was building
+      // The same search answered by FTS5 alone (both passes: the query and its RM3 expansion).
+      const ftsOnly = createRetriever({ repo: t.rt.repo, indexes: t.rt.indexes, embedder: t.rt.embedder, options: { ...retrieverOptions(t.config.retrieval), lexicalEngine: 'fts5' } });
+      const first = await ftsOnly.search(req);
+      expect(calls).toBe(2);
       // The index builds in the background: search until one makes no FTS5 query, within a deadline.
       const after = await waitFor(
         async () => {
