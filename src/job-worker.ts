@@ -42,9 +42,11 @@ parentPort?.on('message', (m: ToJobThread) => {
     return;
   }
   running = true;
-  void runOne(ctx, m.run, logger).finally(() => {
-    // A job's vector graphs are in the files it saved, which the request thread reads; kept here as well, a large
-    // collection's graph (hnswlib's native memory, which V8 does not see) would cost twice until the next job.
+  // A job's vector graphs are in the files it saved, which the request thread reads; kept here as well, a large
+  // collection's graph (hnswlib's native memory, which V8 does not see) would cost twice until the next job. They
+  // are freed before the job's end is recorded (a search that follows it at once reads the file), and once more
+  // after it, whatever happened in between.
+  void runOne(ctx, m.run, logger, () => rt.indexes.close()).finally(() => {
     rt.indexes.close();
     running = false;
     send({ done: m.run.id });

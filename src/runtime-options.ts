@@ -1,6 +1,7 @@
 // The runtime's options read from the configuration: what the answer step, the document limits and the
 // PostgreSQL back end take from it (src/runtime.ts builds the parts with them).
 
+import { setFlagsFromString } from 'node:v8';
 import { readAnswerModel, type AnswererOptions } from './answer/index.js';
 import type { Config } from './config/index.js';
 import { SourceboundError } from './errors.js';
@@ -46,3 +47,16 @@ export function answererOptions(config: Readonly<Config>): AnswererOptions {
   };
 }
 
+
+/**
+ * `limits.heapGrowthPercent` as V8's `--heap-growing-percent`, for every thread of the process (V8's flags are
+ * per process). V8 reads it each time a full collection sets the next one's threshold, so it takes effect from
+ * the next collection on, whenever it is set. V8's own factor (1.1 to 4, higher while memory looks plentiful: its
+ * heap controller, src/heap/heap-controller.cc, as remembered from the source) let the
+ * request thread's heap fill with garbage from 50 to about 200 MiB while a large upload's chunks were applied
+ * (docs/benchmarks.md, "Bounded memory"). It is not a cap: the heap still grows to whatever is live.
+ */
+export function applyHeapGrowth(config: Readonly<Config>): void {
+  const percent = config.limits.heapGrowthPercent;
+  if (percent > 0) setFlagsFromString(`--heap-growing-percent=${percent}`);
+}

@@ -10,7 +10,7 @@ import { fileURLToPath } from 'node:url';
 import type { FastifyInstance } from 'fastify';
 import { buildApp, type AnswerRequest as HttpAnswerRequest, type AppDeps } from './api/app.js';
 import { PACKAGE_ROOT, type Config } from './config/index.js';
-import { answererOptions, documentLimits } from './runtime-options.js';
+import { answererOptions, applyHeapGrowth, documentLimits } from './runtime-options.js';
 import { resolveEmbedder } from './embed/index.js';
 import type { Embedder } from './embed/types.js';
 import { createIngestor, type Ingestor, type IngestProgress, type IngestSummary } from './ingest/index.js';
@@ -63,6 +63,7 @@ export async function createRuntime(
 ): Promise<Runtime> {
   // On either back end the runtime works on the SQLite store in dataDir: the whole store on "sqlite"; on
   // "postgres", the node's local copy that its follower keeps (serve) or a worker's scratch store (worker).
+  applyHeapGrowth(config);
   const paths = storePaths(config.dataDir);
   const store = openStore(paths.database, { mmap: opts.mapDatabase ?? true });
   const repo: Repository = store;

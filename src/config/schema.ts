@@ -193,6 +193,15 @@ const limits = z
     zipMaxEntries: z.number().int().min(1).default(2000).describe('Most parts in a Word (.docx) package, checked before any is read'),
     jobMaxSeconds: z.number().positive().default(6 * 3600).describe('Longest one queued job (an upload or a re-index) may run; then its thread is stopped, the job fails and the queue moves on'),
     jobLeaseSeconds: z.number().int().min(3).default(60).describe('How long a running job or the re-index lock stays held without a heartbeat (its holder renews it every third of this); after that it counts as abandoned and another process may take it over'),
+    heapGrowthPercent: z
+      .number()
+      .int()
+      .min(0)
+      .max(300)
+      .default(20)
+      .describe(
+        'How far V8 lets each heap of the process (the request thread\'s, the job thread\'s) grow past what its last full garbage collection kept before it collects again, in percent; 0 leaves V8\'s own choice (from 10% to 300%, higher while memory looks plentiful). Lower holds less garbage for more frequent collections; it never limits what may be kept, so it cannot end the process',
+      ),
     jobThreadMaxHeapMb: z.number().int().min(16).default(384).describe('Heap of the job thread in MiB (its V8 heap; a document\'s vectors and vector graph are held outside it, a batch at a time and in the graph); a job that needs more ends its thread, fails with the reason, and a new thread takes the next job'),
   })
   .strict()

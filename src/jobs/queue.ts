@@ -57,13 +57,20 @@ export function heartbeatMs(leaseMs: number): number {
   return Math.max(1000, Math.floor(leaseMs / 3));
 }
 
-export async function runOne(ctx: JobContext, job: JobRecord, log: Logger): Promise<void> {
+/**
+ * Runs one job and records how it ended. `release` (the job thread's: it frees the vector graphs the job loaded)
+ * runs before the end is recorded: a client that sees the job end may search the collection at once, and the
+ * request thread then reads the saved graph, which must not be held twice meanwhile.
+ */
+export async function runOne(ctx: JobContext, job: JobRecord, log: Logger, release: () => void = () => undefined): Promise<void> {
   const jlog = log.child({ jobId: job.id, kind: job.kind });
   try {
     const summary = await executeJob(ctx, job);
+    release();
     ctx.store.jobs.succeed(job.id, summary);
     jlog.info({ documents: summary.documents, failures: summary.failures.length }, 'job succeeded');
   } catch (err) {
+    release();
     // A job that ran to the end but failed at what it was for keeps its summary beside the reason.
     ctx.store.jobs.fail(job.id, (err as Error).message, err instanceof JobFailed ? err.summary : undefined);
     jlog.warn({ err: (err as Error).message, setAside: setAside(ctx, job, jlog) }, 'job failed');

@@ -188,7 +188,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     opts.onBuilt?.({ rows: state.live, terms: state.df.size, postings: st.postings, ms: buildMs });
   }
 
-  /** Applies a delta to `s`, yielding every 256 rows (run to its end at once, it is one step between queries). */
+  /** Applies a delta to `s`, yielding every 64 rows (run to its end at once, it is one step between queries). */
   function* apply(s: LexicalState, delta: LexicalDeltaInfo, changes: Iterable<LexicalRowChange>): Generator<void, void, void> {
     if (!delta.complete) throw new LogGap();
     yield* s.applyDelta(delta, changes);

@@ -12,6 +12,7 @@
 
 import type { LexicalRowChange } from '../store/index.js';
 import { NO_COLLECTION } from './lexical-build.js';
+import { PendingRows } from './lexical-pending.js';
 import { buildSegment, checkedTf, finish, mergeSource, type RowSource, type Segment } from './lexical-segment.js';
 
 /** An immutable segment in use and its deletion markers. */
@@ -73,6 +74,12 @@ export interface MergePlan {
   col: CollectionIndex;
   inputs: SegmentRef[];
 }
+
+/**
+ * Rows applied between two yields of `applyDelta` (one step between queries): the change log is read 64 rows at
+ * a time too (src/store/sqlite/lexical.ts), so that what a slice reads is garbage before the event loop's turn.
+ */
+const APPLY_SLICE = 64;
 
 const newRef = (seg: Segment, deleted = new Uint8Array(seg.ids.length)): SegmentRef => {
   let live = 0;
@@ -176,27 +183,49 @@ export class LexicalState {
 
   /**
    * Applies the rows changed since `head` (each removed, then added as it is now), then checks the statistics
-   * against the delta's; yields every 256 rows.
+   * against the delta's; yields every 64 rows. A run of at least `mutableRows` rows (a large document, a
+   * re-index) is not read by queries until it ends, so its rows skip the mutable segment: they are kept in flat
+   * arrays (lexical-pending.ts) and become a segment every `mutableRows × mergeFactor` rows of a collection and at
+   * the end. The row ids of one delta are distinct (the change log is read as the set of rows changed since).
    */
   *applyDelta(delta: LexicalDeltaInfo, changes: Iterable<LexicalRowChange>): Generator<void, void, void> {
     let i = 0;
+    const long = delta.count >= this.opts.mutableRows;
+    const pending = new Map<CollectionIndex, PendingRows>();
+    const segmentRows = this.opts.mutableRows * this.opts.mergeFactor;
     for (const ch of changes) {
       this.remove(ch.rowId);
       if (ch.row) {
-        const collection = ch.row.collection ?? NO_COLLECTION;
-        this.add(ch.rowId, collection, ch.row.length, ch.row.postings);
-        // A long run of changes (a large document's chunks) turns into segments as it goes: held in the mutable
-        // segment until its end, every row's term map would be alive at once (about 20 KiB a row of 120 words).
-        this.flushIfFull(this.collection(collection));
+        const col = this.collection(ch.row.collection ?? NO_COLLECTION);
+        if (long) {
+          let rows = pending.get(col);
+          if (!rows) pending.set(col, (rows = new PendingRows()));
+          rows.add(ch.rowId, ch.row.length, ch.row.postings, (term) => this.dfAdd(term, 1));
+          this.live++;
+          this.tokens += ch.row.length;
+          if (rows.count >= segmentRows) this.addSegment(col, rows.build());
+        } else {
+          this.add(ch.rowId, col.name, ch.row.length, ch.row.postings);
+          this.flushIfFull(col);
+        }
       }
-      if (++i % 256 === 0) yield;
+      if (++i % APPLY_SLICE === 0) yield;
     }
+    for (const [col, rows] of pending) if (rows.count > 0) this.addSegment(col, rows.build());
     for (const col of this.collections.values()) this.flushIfFull(col);
     if (this.live !== delta.rows || this.tokens !== delta.tokens) {
       throw new Error(`lexical statistics disagree after the change log: ${this.live} rows and ${this.tokens} tokens held, ${delta.rows} and ${delta.tokens} in FTS5`);
     }
     this.head = delta.head;
     this.applied += delta.count;
+  }
+
+  /** Puts a segment of rows already counted (live, tokens, document frequencies) into the collection. */
+  private addSegment(col: CollectionIndex, seg: Segment): void {
+    const ref = newRef(seg);
+    col.segments.push(ref);
+    for (let r = 0; r < seg.ids.length; r++) this.where.set(seg.ids[r]!, { col, ref, r });
+    col.version++;
   }
 
   /** Turns a full mutable segment into an immutable one (a few hundred rows: done at once). */

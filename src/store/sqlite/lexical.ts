@@ -22,8 +22,14 @@ const DEFAULT_TOKENIZE = 'porter unicode61 remove_diacritics 2';
  * again (a full re-index of 100k chunks logs about 300k entries; an entry is a few dozen bytes on disk).
  */
 export const LEXICAL_LOG_KEEP = 1_000_000;
-/** Rows read and tokenized together when following the change log. */
-const DELTA_BATCH = 256;
+/**
+ * Rows read and tokenized together when following the change log. Their postings (one small array per token,
+ * about 15 KiB a row of 120 words) are alive until the batch has been handed over: kept small, a batch is done
+ * between two of V8's young-generation collections and dies young, where 256 rows at once outlived two of them
+ * and were promoted to the old generation as garbage.
+ */
+const DELTA_BATCH = 64;
+const NO_POSTINGS: [string, LexicalField][] = [];
 const HEAD_SQL = "SELECT coalesce((SELECT seq FROM sqlite_sequence WHERE name = 'lexical_log'), 0)";
 
 const statements = new WeakMap<Db, Map<string, Database.Statement>>();
@@ -92,17 +98,21 @@ function openDelta(conn: Db, since: number, afterRelease: () => void, tokenize: 
           for (let at = 0; at < ids.length; at += DELTA_BATCH) {
             const batch = ids.slice(at, at + DELTA_BATCH);
             const found = batch.map((id) => readRow.get(id) as [string | null, string | null, string | null, Buffer, string | null] | undefined);
-            const present = found.flatMap((r) => (r ? [[r[0] ?? '', r[1] ?? '', r[2] ?? ''] as [string, string, string]] : []));
-            const postings = tokenize(present);
+            const postings = tokenize(found.flatMap((r) => (r ? [[r[0] ?? '', r[1] ?? '', r[2] ?? ''] as [string, string, string]] : [])));
             let p = 0;
             for (let i = 0; i < batch.length; i++) {
               const r = found[i];
+              // Each row's text and postings are let go as soon as the row is handed over: a reader that gives the
+              // event loop a turn between rows (the request thread's catch-up) then holds none of the batch's
+              // garbage across the turn, and V8 collects it young instead of promoting it to the old generation.
+              found[i] = undefined;
               if (!r) {
                 yield { rowId: batch[i]!, row: null };
                 continue;
               }
               const length = decodeRowLength(r[3]);
-              const rowPostings = postings[p++]!;
+              const rowPostings = postings[p]!;
+              postings[p++] = NO_POSTINGS;
               // The index's own record and a fresh tokenization must agree, or the copy would rank differently.
               if (rowPostings.length !== length) throw new Error(`lexical row ${batch[i]}: ${rowPostings.length} tokens read again, ${length} recorded`);
               yield { rowId: batch[i]!, row: { collection: r[4], length, postings: rowPostings } };

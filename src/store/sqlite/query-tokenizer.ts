@@ -53,7 +53,8 @@ export function createRowTokenizer(spec: string): RowTokenizer {
   const run = mem.transaction((rows: readonly [string, string, string][]) => {
     rows.forEach((r, i) => insert.run(i + 1, r[0], r[1], r[2]));
     const out: [string, LexicalField][][] = rows.map(() => []);
-    for (const [doc, term, col] of read.all() as [number, string, LexicalField][]) out[doc - 1]!.push([term, col]);
+    // Row by row, not all(): the instance rows (one per token) are garbage at once, not held as one array.
+    for (const [doc, term, col] of read.iterate() as IterableIterator<[number, string, LexicalField]>) out[doc - 1]!.push([term, col]);
     clear.run();
     return out;
   });
