@@ -1,4 +1,3 @@
-import { spawn, type ChildProcess } from 'node:child_process';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
@@ -8,8 +7,9 @@ import pg from 'pg';
 import { createTestDatabase, describePg, PG_ADMIN_URL, type TestDatabase } from '../fixtures/pg.js';
 import { mulberry32 } from '../fixtures/random.js';
 import { tempRuntime } from '../fixtures/runtime.js';
-import { CLI, ROOT, startServe, type ServeProcess } from '../fixtures/serve.js';
-import { collect, hasExited, waitFor, waitForExit } from '../fixtures/wait.js';
+import { startServe, type ServeProcess } from '../fixtures/serve.js';
+import { waitFor, waitForExit } from '../fixtures/wait.js';
+import { startWorker, type WorkerProcess } from '../fixtures/worker.js';
 
 // Three API nodes and two workers on one PostgreSQL database, all real processes on loopback (docs/scale-out.md).
 
@@ -36,24 +36,6 @@ function rulebook(): string {
     }
   }
   return parts.join('\n');
-}
-
-interface WorkerProcess {
-  child: ChildProcess;
-  output(): string;
-  stop(): Promise<void>;
-}
-
-async function startWorker(env: Record<string, string>): Promise<WorkerProcess> {
-  const child = spawn(process.execPath, [CLI, 'worker'], { cwd: ROOT, env: { ...process.env, SOURCEBOUND_EMBEDDER: 'hashing', ...env }, stdio: ['ignore', 'pipe', 'pipe'] });
-  const out = collect(child);
-  const stop = async (): Promise<void> => {
-    if (!hasExited(child)) child.kill('SIGKILL');
-    await waitForExit(child, { what: `worker ${child.pid} to exit` });
-  };
-  await waitFor(() => /worker ready/.test(out.output()) || hasExited(child), { what: 'a worker to report ready', timeoutMs: 60_000, detail: out.output });
-  if (hasExited(child)) throw new Error(`worker exited before it was ready:\n${out.output()}`);
-  return { child, output: out.output, stop };
 }
 
 const post = async (base: string, route: string, body: unknown) => {
