@@ -81,7 +81,7 @@ export interface LexicalMemory {
    * whichever comes first. A query that waits on it leaves the event loop to that work instead of running FTS5
    * beside it.
    */
-  settle(): Promise<void> | null;
+  waitForWork(): Promise<void> | null;
   /** Loads, or applies every logged change, now (synchronously), finishing any background work first. */
   syncNow(): void;
   /** Resolves once the index holds every change logged at call time (or later). */
@@ -109,7 +109,7 @@ export interface LexicalMemoryOptions {
   changeReader?: LexicalChangeReader;
   /** Longest time queries are answered by an index behind the change log before FTS5 answers instead (1000 ms). */
   maxLagMs?: number;
-  /** Longest time `settle` waits for background work before FTS5 answers instead (default: maxLagMs). */
+  /** Longest time `waitForWork` waits for background work before FTS5 answers instead (default: maxLagMs). */
   maxWaitMs?: number;
   /** Time one turn of the event loop gives background work before queries get a turn (default 8 ms). */
   sliceMs?: number;
@@ -361,7 +361,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
     refresh() {
       usable();
     },
-    settle() {
+    waitForWork() {
       if (closed) return null;
       if (!job) usable();
       const j = job;

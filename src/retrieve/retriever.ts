@@ -203,7 +203,7 @@ export function createRetriever(deps: {
     const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
     // A long run of changes being applied to the in-memory index (a full re-index's switch): wait for it, for a
     // bounded time, rather than run FTS5 beside it and starve it (docs/architecture.md).
-    const pending = memory && useMemory && req.mode !== 'dense' ? memory.settle() : null;
+    const pending = memory && useMemory && req.mode !== 'dense' ? memory.waitForWork() : null;
     if (pending) await pending;
     const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed, useMemory);
     const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;

@@ -344,7 +344,7 @@ describe('retriever with the in-memory lexical engine', () => {
       for (const c of ['trams', 'ferries']) repo.ensureCollection(c);
       generate(repo, 5, 50);
       await mem.whenReady();
-      expect(mem.settle()).toBeNull();
+      expect(mem.waitForWork()).toBeNull();
       for (let d = 0; d < 50; d += 2) repo.deleteDocument(`d${d}`);
       generate(repo, 6, 120);
       const options = { candidates: 50, rrfK: 60, lexicalWeight: 1, denseWeight: 0.5, fieldWeights: WEIGHTS[0]!, rm3: null, lexicalEngine: 'memory' as const };
