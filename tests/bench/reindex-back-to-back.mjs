@@ -5,51 +5,20 @@
 // with 10 ms between) are timed idle, then while `--runs` full re-indexes of "other" run one after another in
 // the job worker thread, then while as many full re-indexes of "policies" itself run and are swapped in.
 // Target: p95 during each ≤ 1.5× idle, no failed search.
+// The searches and corpus are reindex.mjs's.
 // Usage: node tests/bench/reindex-back-to-back.mjs [--docs N] [--runs N] [--json]
 import { mkdtempSync, rmSync } from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { parseArgs } from 'node:util';
 import { pathToFileURL } from 'node:url';
-import { latencySummary } from './generate.mjs';
-import { writeCorpus } from './reindex.mjs';
+import { timeQueries, writeCorpus } from './reindex.mjs';
 
 const ROOT = path.resolve(import.meta.dirname, '..', '..');
 const dist = (p) => import(pathToFileURL(path.join(ROOT, 'dist', p)).href);
 const { loadConfig } = await dist('config/index.js');
 const { createDocumentApi, createRuntime } = await dist('runtime.js');
 const { silentLogger } = await dist('logger.js');
-
-const QUERIES = [
-  'how long do refunds for delayed trams take',
-  'what must drivers record after a fault at Quarrel Lane depot',
-  'are assistance dogs allowed on night buses',
-  'who checks the ticket serial at Tollbridge Yard',
-  'bicycles on board route 12',
-  'season tickets fare capping days',
-  'pushchairs accessible boarding Brackenfold',
-  'cleaning rotas Kestle Road garage',
-  'park and ride Lowmere passenger count',
-  'driver rest breaks control room log',
-];
-
-async function searchUntil(rt, { until, min, pauseMs }) {
-  const latencies = [];
-  let failures = 0;
-  for (let i = 0; ; i++) {
-    if ((until ? until() : true) && latencies.length + failures >= min) break;
-    const t0 = performance.now();
-    try {
-      const hits = await rt.retriever.search({ query: QUERIES[i % QUERIES.length], collection: 'policies', k: 10, mode: 'hybrid' });
-      if (hits.length === 0) throw new Error('no hits');
-      latencies.push(performance.now() - t0);
-    } catch {
-      failures++;
-    }
-    await new Promise((r) => setTimeout(r, pauseMs));
-  }
-  return { ...latencySummary(latencies), count: latencies.length, failures };
-}
 
 export async function runBackToBack({ docs = 1000, runs = 3, log = () => {} } = {}) {
   const work = mkdtempSync(path.join(os.tmpdir(), 'sb-bench-b2b-'));
@@ -67,9 +36,9 @@ export async function runBackToBack({ docs = 1000, runs = 3, log = () => {} } = 
     const pauseMs = 10;
     // As `serve` does before it says it is ready: the in-memory lexical index built, then the query path warmed.
     await rt.lexicalIndex?.whenReady();
-    await searchUntil(rt, { min: 100, pauseMs });
+    await timeQueries({ rt, collection: 'policies', min: 100, pauseMs });
     log('idle searches');
-    const idle = await searchUntil(rt, { min: 300, pauseMs });
+    const idle = await timeQueries({ rt, collection: 'policies', min: 300, pauseMs });
     const phase = async (collection) => {
       log(`searches during ${runs} back-to-back full re-indexes of ${collection}`);
       let done = false;
@@ -84,7 +53,7 @@ export async function runBackToBack({ docs = 1000, runs = 3, log = () => {} } = 
           seconds.push((performance.now() - t0) / 1000);
         }
       })().finally(() => (done = true));
-      const during = await searchUntil(rt, { until: () => done, min: 100, pauseMs });
+      const during = await timeQueries({ rt, collection: 'policies', until: () => done, min: 100, pauseMs });
       await jobs;
       return { collection, seconds, ...during, p95Ratio: during.p95 / idle.p95 };
     };

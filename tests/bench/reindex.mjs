@@ -90,7 +90,7 @@ const QUERIES = [
   'driver rest breaks control room log',
 ];
 
-async function timeQueries({ rt, collection, until, min, pauseMs }) {
+export async function timeQueries({ rt, collection, until, min, pauseMs }) {
   const latencies = [];
   let failures = 0;
   let i = 0;
