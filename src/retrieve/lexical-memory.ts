@@ -76,9 +76,9 @@ export interface LexicalMemory {
   /** Starts bringing the index up to date without waiting: a short run of changes now, a long one in the background. */
   refresh(): void;
   /**
-   * Null when `search` would not pass the query to FTS5 for want of an index; otherwise (a load or a long run of
-   * changes being applied in the background) a promise that resolves when that work ends or after `maxWaitMs`,
-   * whichever comes first. A query that waits on it leaves the event loop to that work instead of running FTS5
+   * Null when `search` would not pass the query to FTS5 for want of an index, or when the work that keeps it from
+   * answering began more than `maxWaitMs` ago; otherwise (a load or a long run of changes being applied in the
+   * background) a promise that resolves when that work ends or `maxWaitMs` after it began, whichever comes first. A query that waits on it leaves the event loop to that work instead of running FTS5
    * beside it.
    */
   waitForWork(): Promise<void> | null;
@@ -109,7 +109,7 @@ export interface LexicalMemoryOptions {
   changeReader?: LexicalChangeReader;
   /** Longest time queries are answered by an index behind the change log before FTS5 answers instead (1000 ms). */
   maxLagMs?: number;
-  /** Longest time `waitForWork` waits for background work before FTS5 answers instead (default: maxLagMs). */
+  /** How long after background work begins `waitForWork` stops waiting for it and FTS5 answers instead (default: maxLagMs). */
   maxWaitMs?: number;
   /** Time one turn of the event loop gives background work before queries get a turn (default 8 ms). */
   sliceMs?: number;
@@ -134,6 +134,8 @@ interface Job {
   gen: Generator<void, void, void>;
   settled: boolean;
   done: Promise<void>;
+  /** performance.now() when it began. */
+  started: number;
   step(): void;
 }
 
@@ -240,6 +242,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
       gen,
       settled: false,
       done: new Promise<void>((r) => (resolve = r)),
+      started: performance.now(),
       step() {
         if (j.settled) return;
         try {
@@ -366,8 +369,11 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
       if (!job) usable();
       const j = job;
       if (!j) return null;
+      // Bounded from the work's start, not from each query's: past it, queries go to FTS5 at once (a very long run).
+      const left = maxWaitMs - (performance.now() - j.started);
+      if (left <= 0) return null;
       let timer: NodeJS.Timeout | undefined;
-      const waited = new Promise<void>((resolve) => (timer = setTimeout(resolve, maxWaitMs)));
+      const waited = new Promise<void>((resolve) => (timer = setTimeout(resolve, left)));
       return Promise.race([j.done, waited]).finally(() => clearTimeout(timer));
     },
     syncNow() {

@@ -359,6 +359,18 @@ describe('retriever with the in-memory lexical engine', () => {
         want.map((h) => ({ chunkId: h.chunkId, score: h.score })),
         20,
       );
+      // The wait is bounded from the work's start: with no time allowed, a search during a long run goes to FTS5.
+      const impatient = createLexicalMemory(repo, { background: true, minRebuildGapMs: 0, syncLimit: 5, sliceMs: 0, maxWaitMs: 0 });
+      await impatient.whenReady();
+      generate(repo, 7, 60);
+      ftsCalls = 0;
+      const quick = await createRetriever({ repo: counted, indexes: noIndexes, embedder: noEmbedder, options, lexicalIndex: impatient }).search(req);
+      expect(impatient.stats().building).toBe(true);
+      expect(ftsCalls).toBeGreaterThan(0);
+      const fresh = await createRetriever({ repo, indexes: noIndexes, embedder: noEmbedder, options: { ...options, lexicalEngine: 'fts5' } }).search(req);
+      expect(quick.map((h) => h.chunkId)).toEqual(fresh.map((h) => h.chunkId));
+      await impatient.whenReady();
+      impatient.close();
     } finally {
       mem.close();
       repo.close();
