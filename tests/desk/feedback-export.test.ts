@@ -4,22 +4,10 @@ import path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { readQuestions } from '../../src/eval/answers.js';
 import { main } from '../../src/cli.js';
-import { keyFigures, ratingsToQuestions, toJsonl, type NewRating } from '../../src/feedback/index.js';
+import { keyFigures, ratingsToQuestions, toJsonl } from '../../src/feedback/index.js';
+import { rated } from '../fixtures/ratings.js';
 import { openStore, storePaths } from '../../src/store/index.js';
 
-const rated = (over: Partial<NewRating> = {}): NewRating => ({
-  collection: 'default',
-  keyId: 'desk',
-  question: 'How long do I have to claim a delay refund?',
-  answeredQuestion: null,
-  history: [],
-  answer: 'Claims must be made within 28 days of the journey [1].',
-  abstained: false,
-  sources: [{ n: 1, documentId: 'd1', source: 'delay-refunds-2026.md', title: 'Delay Refunds', page: null, section: 'Delay Refunds > Claims', quote: 'within 28 days' }],
-  helpful: true,
-  comment: null,
-  ...over,
-});
 
 describe('desk ratings as a question set', () => {
   it('finds the figures an answer turns on', () => {

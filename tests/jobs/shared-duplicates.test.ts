@@ -1,44 +1,23 @@
-import { mkdtempSync, readdirSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readdirSync } from 'node:fs';
 import path from 'node:path';
 import { Readable } from 'node:stream';
-import { afterAll, beforeAll, expect, it } from 'vitest';
+import { expect, it } from 'vitest';
 import { createSharedDocumentService } from '../../src/jobs/index.js';
-import type { Repository } from '../../src/store/index.js';
 import { createOriginals } from '../../src/store/index.js';
-import { openPgSystemOfRecord, type PgSystemOfRecord } from '../../src/store/pg/index.js';
-import { createTestDatabase, describePg, type TestDatabase } from '../fixtures/pg.js';
+import { describePg, emptyLocalCopy, pgSuiteState } from '../fixtures/pg.js';
 
 // Duplicate uploads on the PostgreSQL back end are found in the database, not in the receiving node's copy: two
 // nodes whose copies hold nothing yet receive the same bytes; the second gets the first's job, and once a worker
 // has written the document, the same bytes are answered "unchanged" with it.
 const TIMETABLE = '# Tram timetable\n\nTrams run every 8 minutes from 06:00 to 23:30 on weekdays.\n';
 
-/** A node's local copy that holds nothing (the follower has not copied anything yet). */
-const emptyCopy = {
-  getDocument: () => null,
-  listDocuments: () => [],
-  countChunks: () => 0,
-  getCollection: () => null,
-  findDocumentByContent: () => null,
-} as unknown as Pick<Repository, 'getDocument' | 'listDocuments' | 'countChunks' | 'getCollection' | 'findDocumentByContent'>;
+const emptyCopy = emptyLocalCopy();
 
 describePg('duplicate uploads checked against the database', () => {
-  let db: TestDatabase;
-  let sor: PgSystemOfRecord;
-  let shared: string;
-  beforeAll(async () => {
-    db = await createTestDatabase();
-    sor = await openPgSystemOfRecord(db.url, { max: 3 });
-    shared = mkdtempSync(path.join(tmpdir(), 'sb-dup-'));
-  });
-  afterAll(async () => {
-    await sor?.close();
-    await db?.drop();
-    rmSync(shared, { recursive: true, force: true });
-  });
+  const pg = pgSuiteState({ tempPrefix: 'sb-dup-', max: 3 });
 
   it('answers a second upload of the same bytes with the pending job, then with the stored document', async () => {
+    const { sor, dir: shared } = pg;
     const node = () => createSharedDocumentService({ sor, local: emptyCopy, sharedDir: shared, originals: createOriginals(path.join(shared, 'originals')), maxUploadBytes: 1 << 20 });
     const a = node();
     const b = node();

@@ -1,41 +1,22 @@
-import { existsSync, mkdtempSync, readdirSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { existsSync, readdirSync } from 'node:fs';
 import path from 'node:path';
 import { Readable } from 'node:stream';
-import { afterAll, beforeAll, expect, it } from 'vitest';
+import { expect, it } from 'vitest';
 import { createSharedDocumentService, createSharedWorker, thisProcess } from '../../src/jobs/index.js';
 import type { Ingestor } from '../../src/ingest/index.js';
 import { silentLogger } from '../../src/logger.js';
-import { createOriginals, type Repository } from '../../src/store/index.js';
-import { openPgSystemOfRecord, type PgSystemOfRecord } from '../../src/store/pg/index.js';
-import { createTestDatabase, describePg, type TestDatabase } from '../fixtures/pg.js';
+import { createOriginals } from '../../src/store/index.js';
+import { describePg, emptyLocalCopy, pgSuiteState } from '../fixtures/pg.js';
 
 // The failed-uploads list on the PostgreSQL back end: a worker whose upload job fails sets the file aside in the
 // shared folder, named after its job; any node lists it with the job's reason and can delete it.
-const copy = {
-  getDocument: () => null,
-  listDocuments: () => [],
-  countChunks: () => 0,
-  getCollection: (name: string) => (name === 'default' ? { name } : null),
-  findDocumentByContent: () => null,
-} as unknown as Pick<Repository, 'getDocument' | 'listDocuments' | 'countChunks' | 'getCollection' | 'findDocumentByContent'>;
+const copy = emptyLocalCopy(['default']);
 
 describePg('failed uploads on the PostgreSQL back end', () => {
-  let db: TestDatabase;
-  let sor: PgSystemOfRecord;
-  let shared: string;
-  beforeAll(async () => {
-    db = await createTestDatabase();
-    sor = await openPgSystemOfRecord(db.url, { max: 3 });
-    shared = mkdtempSync(path.join(tmpdir(), 'sb-failed-'));
-  });
-  afterAll(async () => {
-    await sor?.close();
-    await db?.drop();
-    rmSync(shared, { recursive: true, force: true });
-  });
+  const pg = pgSuiteState({ tempPrefix: 'sb-failed-', max: 3 });
 
   it('sets the file of a failed upload aside, lists it with its reason, and deletes it when asked', async () => {
+    const { sor, dir: shared } = pg;
     const originals = createOriginals(path.join(shared, 'originals'));
     const node = createSharedDocumentService({ sor, local: copy, sharedDir: shared, originals, maxUploadBytes: 1 << 20 });
     const up = await node.upload('default', 'rota.md', Readable.from([Buffer.from('# Depot rota\n\nEarly shift starts at 04:45.\n')]));
