@@ -78,8 +78,8 @@ export interface LexicalMemory {
   /**
    * Null when `search` would not pass the query to FTS5 for want of an index, or when the work that keeps it from
    * answering began more than `maxWaitMs` ago; otherwise (a load or a long run of changes being applied in the
-   * background) a promise that resolves when that work ends or `maxWaitMs` after it began, whichever comes first. A query that waits on it leaves the event loop to that work instead of running FTS5
-   * beside it.
+   * background) a promise that resolves when that work ends or `maxWaitMs` after it began, whichever comes first.
+   * A query that waits on it leaves the event loop to that work instead of running FTS5 beside it.
    */
   waitForWork(): Promise<void> | null;
   /** Loads, or applies every logged change, now (synchronously), finishing any background work first. */
@@ -259,7 +259,7 @@ export function createLexicalMemory(store: LexicalSource, opts: LexicalMemoryOpt
         scheduleMerge();
       },
     };
-    // Steps (256 rows each) for up to sliceMs a turn: one step a turn would leave a long run starved behind the
+    // Steps (64 rows each) for up to sliceMs a turn: one step a turn would leave a long run starved behind the
     // queries, each of which FTS5 answers, slowly, until the run is applied.
     const tick = (): void => {
       const until = performance.now() + sliceMs;

@@ -186,6 +186,11 @@ export function createRetriever(deps: {
   };
 
   const search = async (req: RetrieveRequest, useMemory = true): Promise<SearchHit[]> => {
+    // A long run of changes being applied to the in-memory index (a full re-index's switch): wait for it, for a
+    // bounded time, rather than run FTS5 beside it and starve it (docs/architecture.md). First, so that what is
+    // read below (the collection's state, a filter's chunk ids) is read after it.
+    const pending = memory && useMemory && req.mode !== 'dense' ? memory.waitForWork() : null;
+    if (pending) await pending;
     // One primary-key lookup per query (no counts): it gives the generation the vector index checks too.
     const col = repo.collectionState(req.collection);
     if (!col) throw new SourceboundError('SB_ERR_UNKNOWN_COLLECTION', [req.collection]);
@@ -201,10 +206,6 @@ export function createRetriever(deps: {
     const allowed = filter && (wantsDense || (memory && req.mode !== 'dense')) ? repo.chunkIdsMatching(req.collection, filter) : undefined;
     const limit = Math.max(req.k, options.candidates);
     const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
-    // A long run of changes being applied to the in-memory index (a full re-index's switch): wait for it, for a
-    // bounded time, rather than run FTS5 beside it and starve it (docs/architecture.md).
-    const pending = memory && useMemory && req.mode !== 'dense' ? memory.waitForWork() : null;
-    if (pending) await pending;
     const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed, useMemory);
     const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;
     const den = wantsDense ? dense(req.collection, denseQuery, limit, allowed) : [];
