@@ -1,0 +1,272 @@
+import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import path from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { CAUTION } from '../../src/answer/caution.js';
+import { createTestDatabase, describePg, type TestDatabase } from '../fixtures/pg.js';
+import { startServe, type ServeProcess } from '../fixtures/serve.js';
+import { waitFor } from '../fixtures/wait.js';
+import { startWorker, type WorkerProcess } from '../fixtures/worker.js';
+
+// One suite, parameterised by storage back end: the same HTTP contract (upload, job, search, filters, answer,
+// abstention, passage, original link, replacement, deletion) is run against a real `serve` process on the
+// embedded back end and against an API node and a worker on PostgreSQL, and the two must rank and cite alike
+// (DESIGN.md: ranking comes from the project's own BM25 and HNSW on both).
+
+const FARES = `---
+team: fares
+---
+# Night fares
+
+A night fare costs 3.20 and is valid on every night bus until 05:00.
+
+## Night fare refunds
+
+A night fare refund is paid within 10 working days of a valid claim.
+`;
+
+const FARES_CHANGED = `---
+team: fares
+---
+# Night fares
+
+A night fare costs 3.60 from the spring timetable change and is valid on every night bus until 05:30.
+
+## Night fare refunds
+
+A night fare refund is paid within 10 working days of a valid claim.
+`;
+
+const LOST = `---
+team: stations
+---
+# Lost property at stations
+
+Items found at stations are kept for 30 days at the central lost property desk.
+
+## Umbrellas and gloves
+
+Umbrellas and single gloves are kept for 7 days only.
+`;
+
+const QUERIES = ['night fare refund', 'lost property desk', 'how long are items kept at stations'];
+
+interface Reply {
+  status: number;
+  body: Record<string, any>;
+}
+
+interface Target {
+  base: string;
+  /** Every process's output, for failure messages. */
+  output(): string;
+  stop(): Promise<void>;
+}
+
+interface Observed {
+  rankings: unknown[];
+  citations: unknown[];
+}
+
+const observed: Record<string, Observed> = {};
+const dirs: string[] = [];
+const dir = (): string => {
+  const d = mkdtempSync(path.join(tmpdir(), 'sb-backends-'));
+  dirs.push(d);
+  return d;
+};
+afterAll(() => {
+  for (const d of dirs) rmSync(d, { recursive: true, force: true });
+});
+
+function configFile(settings: Record<string, unknown>): string {
+  const file = path.join(dir(), 'config.json');
+  // No seed documents: both back ends start empty and get the same uploads.
+  writeFileSync(file, JSON.stringify({ seed: { ingestOnEmpty: false }, ...settings }));
+  return file;
+}
+
+async function startSqlite(): Promise<Target> {
+  const serve = await startServe({ SOURCEBOUND_CONFIG: configFile({}), SOURCEBOUND_DATA_DIR: dir() });
+  return { base: serve.base, output: serve.output, stop: serve.stop };
+}
+
+async function startPostgres(): Promise<Target> {
+  const db: TestDatabase = await createTestDatabase();
+  const env = {
+    SOURCEBOUND_CONFIG: configFile({ storage: { backend: 'postgres', followPollMs: 250 } }),
+    SOURCEBOUND_DATABASE_URL: db.url,
+    SOURCEBOUND_SHARED_DIR: dir(),
+  };
+  const processes: (ServeProcess | WorkerProcess)[] = [];
+  try {
+    processes.push(await startWorker({ ...env, SOURCEBOUND_DATA_DIR: dir() }));
+    const serve = await startServe({ ...env, SOURCEBOUND_DATA_DIR: dir() });
+    processes.push(serve);
+    return {
+      base: serve.base,
+      output: () => processes.map((p) => p.output().slice(-4000)).join('\n---\n'),
+      stop: async () => {
+        for (const p of processes) await p.stop().catch(() => undefined);
+        await db.drop();
+      },
+    };
+  } catch (err) {
+    for (const p of processes) await p.stop().catch(() => undefined);
+    await db.drop();
+    throw err;
+  }
+}
+
+function contract(backend: string, start: () => Promise<Target>): void {
+  let t: Target;
+  const ids: Record<string, string> = {};
+
+  const call = async (method: string, route: string, body?: unknown): Promise<Reply> => {
+    const r = await fetch(`${t.base}${route}`, {
+      method,
+      ...(body === undefined ? {} : { headers: { 'content-type': 'application/json' }, body: JSON.stringify(body) }),
+    });
+    const text = await r.text();
+    let parsed: Record<string, any>;
+    try {
+      parsed = JSON.parse(text) as Record<string, any>;
+    } catch {
+      parsed = { text };
+    }
+    return { status: r.status, body: parsed };
+  };
+  const search = (query: string, extra: Record<string, unknown> = {}) => call('POST', '/v1/search', { query, k: 5, ...extra });
+  const sources = (r: Reply): string[] => (r.body.results as { source: string }[]).map((x) => x.source);
+
+  /** Uploads a Markdown document and waits for its job to succeed. */
+  const upload = async (name: string, text: string): Promise<void> => {
+    const up = await call('POST', '/v1/collections/default/documents', { name, text });
+    expect(up.status, JSON.stringify(up.body)).toBe(202);
+    const job = await waitFor(
+      async () => {
+        const j = await call('GET', `/v1/jobs/${up.body.jobId}`);
+        return j.body.state === 'succeeded' || j.body.state === 'failed' ? j.body : null;
+      },
+      { what: `${backend}: the upload job of ${name} to finish`, timeoutMs: 60_000, intervalMs: 25, detail: () => t.output() },
+    );
+    expect(job.state, JSON.stringify(job.error)).toBe('succeeded');
+  };
+
+  /** Waits until a search for `query` shows what `holds` expects (a job's changes reach the node's indexes just after it ends). */
+  const searchUntil = (query: string, holds: (found: string[]) => boolean, what: string) =>
+    waitFor(
+      async () => {
+        const r = await search(query);
+        return r.status === 200 && holds(sources(r)) ? r : null;
+      },
+      { what: `${backend}: ${what}`, timeoutMs: 30_000, intervalMs: 25, detail: () => t.output() },
+    );
+
+  beforeAll(async () => {
+    t = await start();
+  }, 120_000);
+  afterAll(async () => {
+    await t?.stop();
+  });
+
+  it('ingests uploads and lists them with their counts', async () => {
+    expect((await call('GET', '/ready')).status).toBe(200);
+    await upload('night-fares.md', FARES);
+    await upload('lost-property.md', LOST);
+    await searchUntil('lost property desk', (s) => s.includes('lost-property.md'), 'both uploads to be searchable');
+    const collections = await call('GET', '/v1/collections');
+    const def = (collections.body.collections as { name: string; documents: number; chunks: number }[]).find((c) => c.name === 'default');
+    expect(def?.documents).toBe(2);
+    expect(def?.chunks).toBeGreaterThanOrEqual(2);
+    const docs = (await call('GET', '/v1/collections/default/documents')).body.documents as { id: string; source: string; metadata: Record<string, string> }[];
+    expect(docs.map((d) => d.source).sort()).toEqual(['lost-property.md', 'night-fares.md']);
+    for (const d of docs) ids[d.source] = d.id;
+    expect(docs.find((d) => d.source === 'lost-property.md')?.metadata).toEqual({ team: 'stations' });
+  }, 120_000);
+
+  it('searches, filters by metadata and by document, and refuses what it cannot match', async () => {
+    const rankings: unknown[] = [];
+    for (const q of QUERIES) {
+      for (const mode of ['lexical', 'dense', 'hybrid']) {
+        const r = await search(q, { mode });
+        expect(r.status).toBe(200);
+        rankings.push((r.body.results as { source: string; section: string; score: number }[]).map((x) => [q, mode, x.source, x.section, x.score.toFixed(9)]));
+      }
+    }
+    (observed[backend] ??= { rankings: [], citations: [] }).rankings = rankings;
+    const byMeta = await search('kept for days', { filter: { metadata: { team: 'stations' } } });
+    expect(byMeta.status).toBe(200);
+    expect(new Set(sources(byMeta))).toEqual(new Set(['lost-property.md']));
+    const byId = await search('kept for days', { filter: { documentIds: [ids['night-fares.md']] } });
+    expect(new Set(sources(byId))).toEqual(new Set(['night-fares.md']));
+    const none = await search('kept for days', { filter: { metadata: { team: 'nobody' } } });
+    expect(none.status).toBe(200);
+    expect(none.body.results).toEqual([]);
+    expect((await call('POST', '/v1/search', { query: 'fare', typo: 1 })).status).toBe(400);
+    expect((await call('GET', '/v1/jobs/no-such-job')).body.error?.code).toBe('SB_ERR_UNKNOWN_JOB');
+  }, 60_000);
+
+  it('answers with verbatim, followable citations and the caution, and abstains on what the documents do not say', async () => {
+    const r = await call('POST', '/v1/answer', { question: 'How long are umbrellas kept?', mode: 'extractive' });
+    expect(r.status).toBe(200);
+    expect(r.body.abstained).toBe(false);
+    expect(r.body.answer).toContain('7 days');
+    expect(r.body.caution).toBe(CAUTION);
+    const c = r.body.citations[0] as { documentId: string; source: string; section: string; quote: string; start: number; end: number };
+    expect(c.source).toBe('lost-property.md');
+    expect(LOST).toContain(c.quote);
+    observed[backend]!.citations = (r.body.citations as Record<string, unknown>[]).map(({ n, source, section, quote, page, start, end }) => ({ n, source, section, quote, page, start, end }));
+    const passage = await call('GET', `/v1/collections/default/documents/${c.documentId}/passage?start=${c.start}&end=${c.end}`);
+    expect(passage.status).toBe(200);
+    expect(passage.body.quote).toBe(c.quote);
+    const link = await call('POST', `/v1/collections/default/documents/${c.documentId}/original-link`);
+    expect(link.status).toBe(200);
+    const original = await fetch(`${t.base}${link.body.path}`);
+    expect(original.status).toBe(200);
+    expect(await original.text()).toBe(LOST);
+    const off = await call('POST', '/v1/answer', { question: 'What is the boiling point of liquid nitrogen in kelvin?', mode: 'extractive' });
+    expect(off.status).toBe(200);
+    expect(off.body.abstained).toBe(true);
+    expect(off.body.caution).toBe(CAUTION);
+  }, 60_000);
+
+  it('keeps one document for identical content, replaces a changed one, and forgets a deleted one', async () => {
+    const same = await call('POST', '/v1/collections/default/documents', { name: 'night-fares.md', text: FARES });
+    expect(same.status).toBe(200);
+    expect(same.body.status).toBe('unchanged');
+    await upload('night-fares.md', FARES_CHANGED);
+    const changed = await waitFor(
+      async () => {
+        const r = await search('night fare costs', { mode: 'lexical' });
+        const texts = (r.body.results as { text: string }[]).map((x) => x.text).join('\n');
+        return texts.includes('3.60') ? texts : null;
+      },
+      { what: `${backend}: the replaced text to be searchable`, timeoutMs: 30_000, intervalMs: 25, detail: () => t.output() },
+    );
+    expect(changed).not.toContain('3.20');
+    const docs = (await call('GET', '/v1/collections/default/documents')).body.documents as { source: string }[];
+    expect(docs.map((d) => d.source).sort()).toEqual(['lost-property.md', 'night-fares.md']);
+    const gone = await call('DELETE', `/v1/collections/default/documents/${ids['lost-property.md']}`);
+    expect(gone.status, JSON.stringify(gone.body)).toBe(200);
+    expect(gone.body.chunksRemoved).toBeGreaterThan(0);
+    await searchUntil('lost property desk umbrellas', (s) => !s.includes('lost-property.md'), 'the deleted document to leave search');
+    expect((await call('GET', `/v1/collections/default/documents/${ids['lost-property.md']}`)).status).toBe(404);
+  }, 120_000);
+}
+
+describe('the API contract on the embedded back end', () => contract('sqlite', startSqlite));
+describePg('the API contract on PostgreSQL (an API node and a worker)', () => contract('postgres', startPostgres));
+
+describePg('the two back ends', () => {
+  it('rank and cite alike: the same sources, sections and scores for every query and mode, the same citations', () => {
+    const [a, b] = [observed.sqlite, observed.postgres];
+    expect(a, 'the embedded back end ran').toBeDefined();
+    expect(b, 'the PostgreSQL back end ran').toBeDefined();
+    expect(a!.rankings.length).toBe(QUERIES.length * 3);
+    for (const r of a!.rankings) expect((r as unknown[]).length, 'every query and mode found something').toBeGreaterThan(0);
+    expect(a!.citations.length).toBeGreaterThan(0);
+    expect(b!.rankings).toEqual(a!.rankings);
+    expect(b!.citations).toEqual(a!.citations);
+  });
+});
