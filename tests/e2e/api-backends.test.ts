@@ -1,3 +1,4 @@
+import { createHash, randomBytes } from 'node:crypto';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
@@ -79,10 +80,16 @@ afterAll(() => {
   for (const d of dirs) rmSync(d, { recursive: true, force: true });
 });
 
+// Keys as an operator configures them (`sourcebound key new`): one that may upload and query, one that may only query.
+const WRITER = `sbk_${randomBytes(24).toString('base64url')}`;
+const READER = `sbk_${randomBytes(24).toString('base64url')}`;
+const keyEntry = (id: string, key: string, scopes: string[]) => ({ id, sha256: createHash('sha256').update(key).digest('hex'), scopes, collections: ['*'] });
+
 function configFile(settings: Record<string, unknown>): string {
   const file = path.join(dir(), 'config.json');
   // No seed documents: both back ends start empty and get the same uploads.
-  writeFileSync(file, JSON.stringify({ seed: { ingestOnEmpty: false }, ...settings }));
+  const auth = { required: true, keys: [keyEntry('writer', WRITER, ['query', 'ingest']), keyEntry('reader', READER, ['query'])] };
+  writeFileSync(file, JSON.stringify({ seed: { ingestOnEmpty: false }, auth, ...settings }));
   return file;
 }
 
@@ -122,10 +129,11 @@ function contract(backend: string, start: () => Promise<Target>): void {
   let t: Target;
   const ids: Record<string, string> = {};
 
-  const call = async (method: string, route: string, body?: unknown): Promise<Reply> => {
+  const call = async (method: string, route: string, body?: unknown, key: string | null = WRITER): Promise<Reply> => {
+    const headers: Record<string, string> = key ? { authorization: `Bearer ${key}` } : {};
     const r = await fetch(`${t.base}${route}`, {
       method,
-      ...(body === undefined ? {} : { headers: { 'content-type': 'application/json' }, body: JSON.stringify(body) }),
+      ...(body === undefined ? { headers } : { headers: { ...headers, 'content-type': 'application/json' }, body: JSON.stringify(body) }),
     });
     const text = await r.text();
     let parsed: Record<string, any>;
@@ -222,6 +230,7 @@ function contract(backend: string, start: () => Promise<Target>): void {
     expect(passage.body.quote).toBe(c.quote);
     const link = await call('POST', `/v1/collections/default/documents/${c.documentId}/original-link`);
     expect(link.status).toBe(200);
+    // The signed link is the credential: no key is sent.
     const original = await fetch(`${t.base}${link.body.path}`);
     expect(original.status).toBe(200);
     expect(await original.text()).toBe(LOST);
@@ -229,6 +238,52 @@ function contract(backend: string, start: () => Promise<Target>): void {
     expect(off.status).toBe(200);
     expect(off.body.abstained).toBe(true);
     expect(off.body.caution).toBe(CAUTION);
+  }, 60_000);
+
+  it('streams the same answer as server-sent events, and carries a follow-up\'s subject from its history', async () => {
+    const question = { question: 'How long are umbrellas kept?', mode: 'extractive' };
+    const plain = await call('POST', '/v1/answer', question);
+    const r = await fetch(`${t.base}/v1/answer`, {
+      method: 'POST',
+      headers: { authorization: `Bearer ${READER}`, 'content-type': 'application/json' },
+      body: JSON.stringify({ ...question, stream: true }),
+    });
+    expect(r.status).toBe(200);
+    expect(r.headers.get('content-type')).toContain('text/event-stream');
+    // Server-sent events (WHATWG HTML, "Server-sent events"): blocks separated by a blank line, "event:" and "data:" fields.
+    const events = (await r.text())
+      .split(/\n\n/)
+      .map((block) => ({ event: /^event: (.+)$/m.exec(block)?.[1], data: /^data: (.+)$/m.exec(block)?.[1] }))
+      .filter((e) => e.event);
+    expect(events[0]?.event).toBe('sources');
+    const done = events.at(-1)!;
+    expect(done.event).toBe('done');
+    const final = JSON.parse(done.data!) as Record<string, unknown>;
+    expect(final.answer).toBe(plain.body.answer);
+    expect(final.citations).toEqual(plain.body.citations);
+    expect(events.filter((e) => e.event === 'delta').map((e) => (JSON.parse(e.data!) as { text: string }).text).join('')).toBe(plain.body.answer);
+    const follow = await call('POST', '/v1/answer', {
+      question: 'And single gloves?',
+      mode: 'extractive',
+      history: [
+        { role: 'user', content: 'How long are umbrellas kept at stations?' },
+        { role: 'assistant', content: plain.body.answer },
+      ],
+    });
+    expect(follow.status).toBe(200);
+    expect(follow.body.abstained).toBe(false);
+    expect((follow.body.citations as { source: string }[])[0]?.source).toBe('lost-property.md');
+  }, 60_000);
+
+  it('refuses a caller without a key, and a query-only key where it would change documents', async () => {
+    const anon = await call('POST', '/v1/search', { query: 'fare' }, null);
+    expect(anon.status).toBe(401);
+    const upload = await call('POST', '/v1/collections/default/documents', { name: 'x.md', text: '# X\n\nText.' }, READER);
+    expect(upload.status).toBe(403);
+    const del = await call('DELETE', `/v1/collections/default/documents/${ids['night-fares.md']}`, undefined, READER);
+    expect(del.status).toBe(403);
+    expect((await call('POST', '/v1/search', { query: 'fare' }, READER)).status).toBe(200);
+    expect((await call('GET', '/health', undefined, null)).status).toBe(200);
   }, 60_000);
 
   it('keeps one document for identical content, replaces a changed one, and forgets a deleted one', async () => {
