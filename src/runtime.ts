@@ -97,6 +97,7 @@ export async function createRuntime(
     dimensions: embedder.dimensions,
     params: config.retrieval.hnsw,
     logger: logger.child({ stage: 'index' }),
+    cacheBytes: config.limits.vectorCacheMb * 1024 * 1024,
   });
   const metrics = createMetrics(
     {

@@ -192,6 +192,12 @@ const limits = z
     zipMaxInflatedBytes: z.number().int().min(1).default(64 * 1024 * 1024).describe('Most bytes a Word (.docx) package may inflate to, all parts together: checked against the sizes its directory declares before inflating, and again while inflating'),
     zipMaxEntries: z.number().int().min(1).default(2000).describe('Most parts in a Word (.docx) package, checked before any is read'),
     jobMaxSeconds: z.number().positive().default(6 * 3600).describe('Longest one queued job (an upload or a re-index) may run; then its thread is stopped, the job fails and the queue moves on'),
+    vectorCacheMb: z
+      .number()
+      .int()
+      .min(1)
+      .default(256)
+      .describe('Most MiB of stored vectors a collection\'s filter vector cache holds (the exact scan of a selective filter); past it the longest-held entries make room'),
     jobLeaseSeconds: z.number().int().min(3).default(60).describe('How long a running job or the re-index lock stays held without a heartbeat (its holder renews it every third of this); after that it counts as abandoned and another process may take it over'),
     heapGrowthPercent: z
       .number()

@@ -18,8 +18,11 @@ export function createVectorIndexes(deps: {
   dimensions: number;
   params: HnswParams;
   logger?: VectorIndexLogger;
+  /** Most bytes of stored vectors the filter's vector cache holds per collection (default: no bound). */
+  cacheBytes?: number;
 }): VectorIndexes {
   const { repo, dir, embedderId, dimensions, params, logger } = deps;
+  const cacheEntries = deps.cacheBytes === undefined ? Number.POSITIVE_INFINITY : Math.max(1, Math.floor(deps.cacheBytes / (4 * dimensions)));
   const loaded = new Map<string, Loaded>();
   const caches = new Map<string, VectorCache>();
   const read = (ids: number[]): ReadonlyMap<number, Float32Array> => repo.chunkVectors(embedderId, ids);
@@ -102,8 +105,10 @@ export function createVectorIndexes(deps: {
     if (!state || filling.has(c) || filled.has(state)) return;
     filled.add(state);
     let cache = caches.get(c);
-    if (!cache) caches.set(c, (cache = new VectorCache(dimensions, state.live.size + 16)));
+    if (!cache) caches.set(c, (cache = new VectorCache(dimensions, state.live.size + 16, cacheEntries)));
     if (cache.size > state.live.size * 1.25 + 64) cache.retain(state.live);
+    // A collection larger than the cache's bound is not filled ahead: filtered scans cache what they read.
+    if (state.live.size > cache.maxEntries) return;
     const todo = cache.missing(state.live);
     if (todo.length === 0) return;
     const mine = epoch;

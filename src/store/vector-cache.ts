@@ -2,7 +2,9 @@
 // queries, for the exact scan of a selective filter: reading a thousand scattered vectors from SQLite costs
 // milliseconds a query, copying them out of hnswlib (getPoint) more. Chunk ids are never handed out twice
 // (AUTOINCREMENT), so an id's vector never changes: an entry stays right across generations, and only entries of
-// points that left the index need dropping.
+// points that left the index need dropping. It holds at most `maxEntries` vectors (`limits.vectorCacheMb`): past
+// that, the entry cached longest ago makes room (first in, first out), so memory stays bounded whatever the
+// collection's size; an id it no longer holds is read from the store again.
 import type { VectorHit } from './hnsw-types.js';
 
 /** Allowed sets up to this size are scanned exactly instead of walking the graph through a filter. */
@@ -14,8 +16,11 @@ export class VectorCache {
   private readonly free: number[] = [];
   private used = 0;
 
-  constructor(readonly dimensions: number, capacity = 1024) {
-    this.data = new Float32Array(Math.max(1, capacity) * dimensions);
+  readonly maxEntries: number;
+
+  constructor(readonly dimensions: number, capacity = 1024, maxEntries = Number.POSITIVE_INFINITY) {
+    this.maxEntries = Math.max(1, Math.floor(maxEntries));
+    this.data = new Float32Array(Math.max(1, Math.min(capacity, this.maxEntries)) * dimensions);
   }
 
   get size(): number {
@@ -41,9 +46,15 @@ export class VectorCache {
     if (vector.length !== this.dimensions) return;
     let slot = this.slots.get(id);
     if (slot === undefined) {
+      if (this.slots.size >= this.maxEntries) {
+        // Full: the oldest entry (a Map iterates in insertion order) gives up its slot.
+        const [oldest, its] = this.slots.entries().next().value as [number, number];
+        this.slots.delete(oldest);
+        this.free.push(its);
+      }
       slot = this.free.pop() ?? this.used++;
       if ((slot + 1) * this.dimensions > this.data.length) {
-        const grown = new Float32Array(Math.ceil((slot + 1) * 1.5) * this.dimensions);
+        const grown = new Float32Array(Math.min(Math.ceil((slot + 1) * 1.5), this.maxEntries) * this.dimensions);
         grown.set(this.data);
         this.data = grown;
       }
@@ -91,17 +102,18 @@ export function exactSearch(
 ): VectorHit[] {
   const scored: VectorHit[] = [];
   const absent = cache ? cache.missing(ids) : [...ids];
+  // The held ones first: adding the others to a full cache pushes entries out, perhaps some of these.
+  if (cache) {
+    const fresh = new Set(absent);
+    for (const id of ids) if (!fresh.has(id)) scored.push({ chunkId: id, score: cache.dot(id, query) });
+  }
   if (absent.length > 0) {
     for (const [id, v] of read(absent)) {
-      cache?.set(id, v);
       let s = 0;
       for (let i = 0; i < query.length; i++) s += query[i]! * v[i]!;
       scored.push({ chunkId: id, score: s });
+      cache?.set(id, v);
     }
-  }
-  if (cache) {
-    const fresh = new Set(absent);
-    for (const id of ids) if (!fresh.has(id) && cache.has(id)) scored.push({ chunkId: id, score: cache.dot(id, query) });
   }
   return scored.sort((a, b) => b.score - a.score || a.chunkId - b.chunkId).slice(0, n);
 }

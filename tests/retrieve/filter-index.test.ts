@@ -104,6 +104,27 @@ describe.each(['fts5', 'memory'] as const)('a filter inside both legs (lexical e
   });
 });
 
+describe('a filter vector cache bounded below the collection (limits.vectorCacheMb)', () => {
+  it('gives the same dense hits as an unbounded one', async () => {
+    // Room for 10 of the collection's 240 vectors: every filtered scan reads most of its vectors from the store.
+    const small = createVectorIndexes({ repo: store, dir: path.join(dir, 'index'), embedderId: embedder.id, dimensions: embedder.dimensions, params: { m: 16, efConstruction: 200, efSearch: 512 }, cacheBytes: 10 * embedder.dimensions * 4 });
+    small.sync('c', { persist: false });
+    try {
+      for (const [label, filter] of FILTERS) {
+        const allowed = store.chunkIdsMatching('c', filter);
+        for (const query of ['night buses north depot', 'lost property step 3']) {
+          const [v] = await embedder.embed([query]);
+          for (let round = 0; round < 2; round++) {
+            expect(small.search('c', v!, 5, allowed), `${label}: ${query}, round ${round}`).toEqual(indexes.search('c', v!, 5, allowed));
+          }
+        }
+      }
+    } finally {
+      small.close();
+    }
+  });
+});
+
 describe('the allowed-chunk set', () => {
   it('holds exactly the chunks of the documents that pass, in this collection only', () => {
     const zoneEast = store.chunkIdsMatching('c', { metadata: { zone: 'east' } });
