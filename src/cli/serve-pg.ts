@@ -15,6 +15,7 @@ import { postgresSettings } from '../runtime-options.js';
 import { createFollower, createOriginals, sqliteReplica, type SqliteStore } from '../store/index.js';
 import { openPgSystemOfRecord, type PgSystemOfRecord } from '../store/pg/index.js';
 import { EXIT } from './context.js';
+import { syncIndexesInThread } from './prepare.js';
 
 /** How long to wait between attempts to reach the database at start-up. */
 const RETRY_MS = 1000;
@@ -56,6 +57,8 @@ export async function servePg(
     embedder: rt.embedder,
     logger: logger.child({ stage: 'follower' }),
     onApplied: () => rt.lexicalIndex?.refresh(),
+    // A catch-up's graph is built in the start-up index thread, so the node keeps answering /health meanwhile.
+    syncElsewhere: (collections) => syncIndexesInThread(rt, collections),
     pollMs: pgs.followPollMs,
   });
   let started = false;

@@ -61,6 +61,14 @@ export interface FollowerDeps {
   logger: FollowerLogger;
   /** Called after each applied run of changes (the in-memory lexical index refreshes). */
   onApplied?: (position: number) => void;
+  /**
+   * Brings these collections' index files in step with the local store somewhere other than this thread (the
+   * index thread of `serve`). Used for a collection whose in-place update gave up (a catch-up moved it by more
+   * than one change): checking it against every stored chunk rebuilds its graph, which on this thread would
+   * stop the node answering anything, /health included, for as long as that takes (7.7 s at 20,000 chunks of
+   * 384 dimensions, minutes at 100,000). Without it, that check runs here.
+   */
+  syncElsewhere?: (collections: string[]) => Promise<void>;
   pollMs?: number;
   /** Log entries read per run (each run is one local transaction). */
   batchSize?: number;
@@ -97,6 +105,8 @@ export function createFollower(deps: FollowerDeps): Follower {
   const waiters: { position: number; resolve: () => void }[] = [];
   /** Collections whose vector index has changed since it was last saved. */
   const unsaved = new Set<string>();
+  /** Of those, the ones whose index the in-place update gave up on this pass. */
+  const behind = new Set<string>();
 
   const wake = (): void => {
     for (let i = waiters.length - 1; i >= 0; i--) {
@@ -138,7 +148,7 @@ export function createFollower(deps: FollowerDeps): Follower {
         const vector = vectorsOf.get(a.chunkHash);
         return vector ? [{ id: a.id, vector }] : [];
       });
-      indexes.apply(ch.collection, { generation: ch.generation, removed: ch.removed, added });
+      if (!indexes.apply(ch.collection, { generation: ch.generation, removed: ch.removed, added })) behind.add(ch.collection);
     }
     for (const c of collections) unsaved.add(c);
     position = batch.head;
@@ -156,7 +166,13 @@ export function createFollower(deps: FollowerDeps): Follower {
         while (!closed && (await applyRun()));
       } finally {
         // Saved once a pass, with the generation it holds: a restart loads the file instead of building the graph
-        // again. (A crash before the save leaves the file behind the store, which the next sync patches.)
+        // again. (A crash before the save leaves the file behind the store, which the next sync patches.) An index
+        // the in-place update gave up on is brought in step elsewhere first; this thread then only reads its file.
+        const far = [...behind].filter((c) => unsaved.has(c));
+        behind.clear();
+        if (far.length > 0 && deps.syncElsewhere) {
+          await deps.syncElsewhere(far).catch((err: Error) => logger.warn({ err: err.message, collections: far }, 'the index thread failed; bringing the vector indexes in step on this thread'));
+        }
         for (const c of unsaved) indexes.sync(c);
         unsaved.clear();
       }

@@ -5,10 +5,12 @@
 //     "ready on" line;
 //   - change-to-searchable: a document written to the database (replaceDocument, as a worker does) until a search
 //     on the node finds it, timed from the commit;
-//   - queries per second of one node: concurrent POST /v1/search from this process, for a fixed time.
+//   - queries per second of one node: concurrent POST /v1/search from this process, for a fixed time;
+//   - how long the node's event loop is held during each start-up: /health asked every 100 ms from spawn to the
+//     ready line, the slowest reply kept (an orchestrator's liveness probe asks the same).
 //
 //   npm run build && node tests/bench/scale-out.mjs [--chunks 20000] [--dims 384] [--changes 30] [--seconds 10]
-//     [--concurrency 4] [--json]
+//     [--concurrency 4] [--cli dist/cli.js] [--json]
 //
 // The corpus is synthetic (generate.mjs: an invented vocabulary, Zipf-distributed words), 20 chunks a document,
 // with vectors of the hashing embedder at --dims dimensions, which the node also runs. It creates a database of
@@ -16,6 +18,7 @@
 import { spawn } from 'node:child_process';
 import { createHash } from 'node:crypto';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { createServer } from 'node:net';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { parseArgs } from 'node:util';
@@ -31,6 +34,7 @@ const { values: args } = parseArgs({
     changes: { type: 'string', default: '30' },
     seconds: { type: 'string', default: '10' },
     concurrency: { type: 'string', default: '4' },
+    cli: { type: 'string', default: '' },
     json: { type: 'boolean', default: false },
   },
 });
@@ -38,7 +42,8 @@ const CHUNKS = Number(args.chunks);
 const DIMS = Number(args.dims);
 const PER_DOC = 20;
 const ROOT = path.resolve(import.meta.dirname, '..', '..');
-const CLI = path.join(ROOT, 'dist', 'cli.js');
+// `--cli` runs another build's CLI (say, a copy of dist/ from an earlier commit) against the same data, for a before/after in one sitting.
+const CLI = args.cli ? path.resolve(args.cli) : path.join(ROOT, 'dist', 'cli.js');
 const ADMIN = process.env.SOURCEBOUND_TEST_PG_URL ?? 'postgres://postgres@127.0.0.1:5432/postgres';
 
 const admin = async (sql) => {
@@ -96,25 +101,49 @@ const config = path.join(work, 'config.json');
 writeFileSync(config, JSON.stringify({ storage: { backend: 'postgres', followPollMs: 1000 }, embedding: { hashingDimensions: DIMS }, limits: { rateLimitPerMinute: 10_000_000 } }));
 const dataDir = path.join(work, 'node');
 const env = {
-  ...process.env, PORT: '0', HOST: '127.0.0.1', SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_CONFIG: config,
+  ...process.env, HOST: '127.0.0.1', SOURCEBOUND_EMBEDDER: 'hashing', SOURCEBOUND_CONFIG: config,
   SOURCEBOUND_DATABASE_URL: url.toString(), SOURCEBOUND_SHARED_DIR: path.join(work, 'shared'), SOURCEBOUND_DATA_DIR: dataDir,
 };
 
-/** Starts the node; resolves with its base URL and the ms from spawn to its ready line. */
-function startNode() {
+/** A port free right now (the node is given it, so /health can be asked before the node logs anything). */
+const freePort = () =>
+  new Promise((resolve) => {
+    const srv = createServer().listen(0, '127.0.0.1', () => {
+      const { port } = srv.address();
+      srv.close(() => resolve(port));
+    });
+  });
+
+/** Starts the node; resolves with its base URL, the ms from spawn to its ready line, and the slowest /health reply meanwhile. */
+async function startNode() {
+  const port = await freePort();
   const t0 = performance.now();
-  const child = spawn(process.execPath, [CLI, 'serve'], { cwd: ROOT, env, stdio: ['ignore', 'pipe', 'pipe'] });
+  const child = spawn(process.execPath, [CLI, 'serve'], { cwd: ROOT, env: { ...env, PORT: String(port) }, stdio: ['ignore', 'pipe', 'pipe'] });
   let out = '';
-  return new Promise((resolve, reject) => {
+  let ready = false;
+  let worstHealthMs = 0;
+  const probe = (async () => {
+    while (!ready && child.exitCode === null) {
+      const t = performance.now();
+      // Refused before the stand-in listens: only replies count.
+      const answered = await fetch(`http://127.0.0.1:${port}/health`).then(() => true, () => false);
+      if (answered) worstHealthMs = Math.max(worstHealthMs, performance.now() - t);
+      await new Promise((r) => setTimeout(r, 100));
+    }
+  })();
+  const started = await new Promise((resolve, reject) => {
     const on = (d) => {
       out += String(d);
       const m = /ready on (http:\/\/[^\s"]+)/.exec(out);
-      if (m) resolve({ child, base: m[1], ms: performance.now() - t0 });
+      if (m) resolve({ base: m[1], ms: performance.now() - t0 });
     };
     child.stdout.on('data', on);
     child.stderr.on('data', on);
     child.once('exit', (code) => reject(new Error(`serve exited with ${code}:\n${out}`)));
   });
+  ready = true;
+  await probe;
+  return { child, ...started, worstHealthMs };
 }
 const stopNode = (child) => new Promise((resolve) => { child.once('exit', resolve); child.kill('SIGTERM'); });
 const search = async (base, body) => {
@@ -125,9 +154,11 @@ const search = async (base, body) => {
 
 let node = await startNode();
 const fromDatabaseMs = node.ms;
+const healthFromDatabaseMs = node.worstHealthMs;
 await stopNode(node.child);
 node = await startNode();
 const fromSnapshotMs = node.ms;
+const healthFromSnapshotMs = node.worstHealthMs;
 
 const searchable = [];
 for (let i = 0; i < Number(args.changes); i++) {
@@ -174,6 +205,7 @@ const result = {
   fillSeconds: Math.round(fillSeconds * 10) / 10,
   startFromDatabaseMs: Math.round(fromDatabaseMs),
   startFromSnapshotMs: Math.round(fromSnapshotMs),
+  slowestHealthDuringStartMs: { fromDatabase: Math.round(healthFromDatabaseMs), fromSnapshot: Math.round(healthFromSnapshotMs) },
   changeToSearchableMs: { median: Math.round(median(searchable)), p95: Math.round(percentile([...searchable].sort((a, b) => a - b), 95)), n: searchable.length },
   qps: { lexical: Math.round(qpsLexical), hybrid: Math.round(qpsHybrid), concurrency: Number(args.concurrency), seconds: Number(args.seconds) },
   nodeRssMb: Math.round(rss / 1e6),
