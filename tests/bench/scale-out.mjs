@@ -122,12 +122,14 @@ async function startNode() {
   let out = '';
   let ready = false;
   let worstHealthMs = 0;
+  let up = false;
   const probe = (async () => {
     while (!ready && child.exitCode === null) {
       const t = performance.now();
-      // Refused before the stand-in listens: only replies count.
-      const answered = await fetch(`http://127.0.0.1:${port}/health`).then(() => true, () => false);
-      if (answered) worstHealthMs = Math.max(worstHealthMs, performance.now() - t);
+      // Refused before the stand-in listens; once the port has answered, a failed ask counts for as long as it took.
+      const answered = await fetch(`http://127.0.0.1:${port}/health`, { signal: AbortSignal.timeout(900_000) }).then(() => true, () => false);
+      up ||= answered;
+      if (up) worstHealthMs = Math.max(worstHealthMs, performance.now() - t);
       await new Promise((r) => setTimeout(r, 100));
     }
   })();
