@@ -66,7 +66,7 @@ export interface FollowerDeps {
    * index thread of `serve`). Used for a collection whose in-place update gave up (a catch-up moved it by more
    * than one change): checking it against every stored chunk rebuilds its graph, which on this thread would
    * stop the node answering anything, /health included, for as long as that takes (7.7 s at 20,000 chunks of
-   * 384 dimensions, minutes at 100,000). Without it, that check runs here.
+   * 384 dimensions, 80 s at 100,000). Without it, that check runs here.
    */
   syncElsewhere?: (collections: string[]) => Promise<void>;
   pollMs?: number;
