@@ -83,13 +83,15 @@ afterAll(() => {
 // Keys as an operator configures them (`sourcebound key new`): one that may upload and query, one that may only query.
 const WRITER = `sbk_${randomBytes(24).toString('base64url')}`;
 const READER = `sbk_${randomBytes(24).toString('base64url')}`;
+const ADMIN = `sbk_${randomBytes(24).toString('base64url')}`;
 const keyEntry = (id: string, key: string, scopes: string[]) => ({ id, sha256: createHash('sha256').update(key).digest('hex'), scopes, collections: ['*'] });
 
 function configFile(settings: Record<string, unknown>): string {
   const file = path.join(dir(), 'config.json');
   // No seed documents: both back ends start empty and get the same uploads.
-  const auth = { required: true, keys: [keyEntry('writer', WRITER, ['query', 'ingest']), keyEntry('reader', READER, ['query'])] };
-  writeFileSync(file, JSON.stringify({ seed: { ingestOnEmpty: false }, auth, ...settings }));
+  const auth = { required: true, keys: [keyEntry('writer', WRITER, ['query', 'ingest']), keyEntry('reader', READER, ['query']), keyEntry('admin', ADMIN, ['query', 'ingest', 'admin'])] };
+  // A small text limit, so that one upload fails for a reason both back ends must report alike.
+  writeFileSync(file, JSON.stringify({ seed: { ingestOnEmpty: false }, auth, limits: { documentMaxChars: 20_000 }, ...settings }));
   return file;
 }
 
@@ -147,17 +149,21 @@ function contract(backend: string, start: () => Promise<Target>): void {
   const search = (query: string, extra: Record<string, unknown> = {}) => call('POST', '/v1/search', { query, k: 5, ...extra });
   const sources = (r: Reply): string[] => (r.body.results as { source: string }[]).map((x) => x.source);
 
+  /** Waits for a job to end; its last state. */
+  const finished = (jobId: string, what: string) =>
+    waitFor(
+      async () => {
+        const j = await call('GET', `/v1/jobs/${jobId}`);
+        return j.body.state === 'succeeded' || j.body.state === 'failed' ? j.body : null;
+      },
+      { what: `${backend}: ${what} to finish`, timeoutMs: 60_000, intervalMs: 25, detail: () => t.output() },
+    );
+
   /** Uploads a Markdown document and waits for its job to succeed. */
   const upload = async (name: string, text: string): Promise<void> => {
     const up = await call('POST', '/v1/collections/default/documents', { name, text });
     expect(up.status, JSON.stringify(up.body)).toBe(202);
-    const job = await waitFor(
-      async () => {
-        const j = await call('GET', `/v1/jobs/${up.body.jobId}`);
-        return j.body.state === 'succeeded' || j.body.state === 'failed' ? j.body : null;
-      },
-      { what: `${backend}: the upload job of ${name} to finish`, timeoutMs: 60_000, intervalMs: 25, detail: () => t.output() },
-    );
+    const job = await finished(up.body.jobId as string, `the upload job of ${name}`);
     expect(job.state, JSON.stringify(job.error)).toBe('succeeded');
   };
 
@@ -274,6 +280,34 @@ function contract(backend: string, start: () => Promise<Target>): void {
     expect(follow.body.abstained).toBe(false);
     expect((follow.body.citations as { source: string }[])[0]?.source).toBe('lost-property.md');
   }, 60_000);
+
+  it('sets aside an upload over a limit and names the limit, re-indexes without changing a ranking, and keeps a rating', async () => {
+    const long = `# Long notice\n\n${'Night buses stop at marked stops only. '.repeat(700)}`;
+    const up = await call('POST', '/v1/collections/default/documents', { name: 'long-notice.md', text: long });
+    expect(up.status, JSON.stringify(up.body)).toBe(202);
+    const failed = await finished(up.body.jobId as string, 'the upload over the limit');
+    expect(failed.state).toBe('failed');
+    expect(JSON.stringify(failed.error)).toContain('documentMaxChars');
+    const listed = await call('GET', '/v1/collections/default/failed-uploads', undefined, ADMIN);
+    expect(listed.status, JSON.stringify(listed.body)).toBe(200);
+    const entry = (listed.body.failedUploads as { name: string; source: string; jobId: string; reason: string }[]).find((f) => f.jobId === up.body.jobId);
+    expect(entry?.source).toBe('long-notice.md');
+    expect(entry?.reason).toContain('documentMaxChars');
+    expect((await call('GET', '/v1/collections/default/failed-uploads', undefined, WRITER)).status).toBe(403);
+    expect((await call('DELETE', `/v1/collections/default/failed-uploads/${entry!.name}`, undefined, ADMIN)).status).toBe(200);
+    expect((await call('GET', '/v1/collections/default/failed-uploads', undefined, ADMIN)).body.failedUploads).toEqual([]);
+
+    const before = await search('night fare refund', { mode: 'hybrid' });
+    const reindex = await call('POST', '/v1/reindex', { collection: 'default' }, ADMIN);
+    expect(reindex.status, JSON.stringify(reindex.body)).toBe(202);
+    const done = await finished(reindex.body.jobId as string, 'the re-index');
+    expect(done.state, JSON.stringify(done.error)).toBe('succeeded');
+    expect((await search('night fare refund', { mode: 'hybrid' })).body.results).toEqual(before.body.results);
+
+    const rated = await call('POST', '/v1/ratings', { question: 'How long are umbrellas kept?', answer: 'Umbrellas and single gloves are kept for 7 days only.', abstained: false, helpful: true }, READER);
+    expect(rated.status, JSON.stringify(rated.body)).toBe(201);
+    expect(rated.body.id).toBeGreaterThan(0);
+  }, 120_000);
 
   it('refuses a caller without a key, and a query-only key where it would change documents', async () => {
     const anon = await call('POST', '/v1/search', { query: 'fare' }, null);
