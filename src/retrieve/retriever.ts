@@ -124,10 +124,12 @@ export function createRetriever(deps: {
   // question alone. The centroid is weighted by the hits' lexical scores (as RM3 weights its feedback
   // documents): when one passage matches the question and the rest only matched expansion terms, the
   // vector moves toward that passage, not toward the crowd.
-  const feedbackVector = (query: Float32Array, top: readonly Scored[]): Float32Array => {
+  const feedbackVector = (collection: string, query: Float32Array, top: readonly Scored[]): Float32Array => {
     if (!denseFeedback) return query;
     const fb = top.slice(0, rm3?.docs ?? 10);
-    const vecs = repo.chunkVectors(embedder.id, fb.map((r) => r.id));
+    // Through the vector index's cache when it offers one: the top hits of popular questions recur.
+    const ids = fb.map((r) => r.id);
+    const vecs = indexes.vectors ? indexes.vectors(collection, ids) : repo.chunkVectors(embedder.id, ids);
     if (vecs.size === 0) return query;
     const min = Math.min(...fb.map((r) => r.score));
     const weightOf = new Map(fb.map((r) => [r.id, r.score - Math.min(0, min) + 1e-9]));
@@ -207,7 +209,7 @@ export function createRetriever(deps: {
     const limit = Math.max(req.k, options.candidates);
     const queryVector = wantsDense ? ((await embedder.embed([req.query]))[0] ?? null) : null;
     const lex = req.mode === 'dense' ? [] : lexical(req.collection, req.query, limit, filter, allowed, useMemory);
-    const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(queryVector, lex) : queryVector;
+    const denseQuery = queryVector && req.mode === 'hybrid' && lex.length > 0 ? feedbackVector(req.collection, queryVector, lex) : queryVector;
     const den = wantsDense ? dense(req.collection, denseQuery, limit, allowed) : [];
     const denseScore = new Map(den.map((d) => [d.id, d.score]));
     let ranked: { id: number; score: number; ranks: { lexical?: number; dense?: number } }[];

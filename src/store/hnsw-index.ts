@@ -4,7 +4,7 @@ import { createIndexFiles, newIndex } from './hnsw-files.js';
 import { batchesOf, countOf, deletedOf, needsCompaction, release, tooFar, type Loaded } from './hnsw-state.js';
 import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
 import type { HnswParams, SyncResult, VectorChange, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
-import { EXACT_SCAN_LIMIT, exactSearch, toHits, VectorCache } from './vector-cache.js';
+import { EXACT_SCAN_LIMIT, exactSearch, readThrough, toHits, VectorCache } from './vector-cache.js';
 
 export type { HnswParams, SyncResult, VectorBatches, VectorChange, VectorHit, VectorIndexes, VectorIndexLogger, VectorPoint } from './hnsw-types.js';
 
@@ -378,6 +378,12 @@ export function createVectorIndexes(deps: {
     },
     cachedVectors(c) {
       return caches.get(c)?.size ?? 0;
+    },
+    vectors(c, ids) {
+      const state = loaded.get(c);
+      let cache = caches.get(c);
+      if (!cache && state) caches.set(c, (cache = new VectorCache(dimensions, Math.min(state.live.size + 16, 1024), cacheEntries)));
+      return readThrough(cache ?? null, ids, read, (id) => state?.live.has(id) ?? false);
     },
     close() {
       epoch++;

@@ -95,6 +95,12 @@ export interface VectorIndexes {
   settled(collection?: string): Promise<void>;
   /** Vectors held in memory for the exact scan of selective filters (filled after a collection's first filter). */
   cachedVectors(collection: string): number;
+  /**
+   * The stored vectors of these chunks (of this index's embedder), in ascending id order, through the collection's
+   * vector cache: held ones are copied from it, the others read from the store and kept there when the index holds
+   * them (within `limits.vectorCacheMb`). Absent when not offered (callers read the store).
+   */
+  vectors?(collection: string, ids: readonly number[]): Map<number, Float32Array>;
   /** Forgets in-memory state, e.g. before closing. */
   close(): void;
 }

@@ -118,6 +118,34 @@ export function exactSearch(
   return scored.sort((a, b) => b.score - a.score || a.chunkId - b.chunkId).slice(0, n);
 }
 
+/**
+ * The vectors of `ids` in ascending id order (the store's own order, so sums over them come out the same to the
+ * last bit): copied from the cache where it holds them (a view changes when its slot goes to another vector), the
+ * rest from `read`, and those kept in the cache when `keep` says the index holds them.
+ */
+export function readThrough(
+  cache: VectorCache | null,
+  ids: readonly number[],
+  read: (ids: number[]) => ReadonlyMap<number, Float32Array>,
+  keep: (id: number) => boolean,
+): Map<number, Float32Array> {
+  const sorted = [...new Set(ids)].sort((a, b) => a - b);
+  const held = new Map<number, Float32Array>();
+  for (const id of sorted) {
+    const v = cache?.get(id);
+    if (v) held.set(id, Float32Array.from(v));
+  }
+  const fetched = sorted.length > held.size ? read(sorted.filter((id) => !held.has(id))) : new Map<number, Float32Array>();
+  const out = new Map<number, Float32Array>();
+  for (const id of sorted) {
+    const v = held.get(id) ?? fetched.get(id);
+    if (!v) continue;
+    out.set(id, v);
+    if (!held.has(id) && keep(id)) cache?.set(id, v);
+  }
+  return out;
+}
+
 /** hnswlib's answer (inner-product distances) as hits with cosine scores (vectors are unit length). */
 export function toHits(res: { neighbors: number[]; distances: number[] }): VectorHit[] {
   const hits: VectorHit[] = [];

@@ -125,6 +125,28 @@ describe('a filter vector cache bounded below the collection (limits.vectorCache
   });
 });
 
+describe('the Rocchio centroid\'s vectors through the vector cache', () => {
+  it('gives the same hybrid ranking, to the last bit, as reading them from the store, cold and warm', async () => {
+    const withFeedback = (viaCache: boolean): Retriever =>
+      createRetriever({
+        repo: store,
+        indexes: viaCache ? indexes : { ...indexes, vectors: undefined },
+        embedder,
+        options: { candidates: 100, rrfK: 60, lexicalWeight: 1, denseWeight: 0.5, fieldWeights: { title: 2, heading: 1, body: 1 }, rm3: null, denseFeedback: 1, mmr: null, lexicalEngine: 'fts5' },
+      });
+    const cached = withFeedback(true);
+    const plain = withFeedback(false);
+    for (let round = 0; round < 2; round++) {
+      for (const query of ['night buses north depot', 'refunds for delay at the east depot', 'ticket machines step 2']) {
+        const want = await plain.search({ query, collection: 'c', k: 20, mode: 'hybrid' });
+        expect(want.length).toBeGreaterThan(0);
+        expect(await cached.search({ query, collection: 'c', k: 20, mode: 'hybrid' }), `${query}, round ${round}`).toEqual(want);
+      }
+    }
+    expect(indexes.cachedVectors('c')).toBeGreaterThan(0);
+  });
+});
+
 describe('the allowed-chunk set', () => {
   it('holds exactly the chunks of the documents that pass, in this collection only', () => {
     const zoneEast = store.chunkIdsMatching('c', { metadata: { zone: 'east' } });

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { exactSearch, VectorCache } from '../../src/store/vector-cache.js';
+import { exactSearch, readThrough, VectorCache } from '../../src/store/vector-cache.js';
 import { mulberry32 } from '../fixtures/random.js';
 
 // The filter's vector cache is bounded (limits.vectorCacheMb): full, it lets its longest-held entry go. Exactness
@@ -60,5 +60,30 @@ describe('exactSearch with a bounded cache', () => {
         expect(cache.size).toBeLessThanOrEqual(bound);
       }
     }
+  });
+});
+
+describe('readThrough', () => {
+  it('returns the stored vectors in ascending id order, reads only what the cache lacks, and keeps only what it may', () => {
+    const rnd = mulberry32(5);
+    const store = new Map<number, Float32Array>();
+    for (let id = 0; id < 40; id++) store.set(id, unit(rnd));
+    const asked: number[][] = [];
+    const read = (ids: number[]): Map<number, Float32Array> => {
+      asked.push(ids);
+      return new Map(ids.filter((id) => store.has(id)).map((id) => [id, store.get(id)!]));
+    };
+    const cache = new VectorCache(DIMS, 4, 6);
+    const first = readThrough(cache, [30, 2, 17, 2, 99], read, (id) => id !== 17);
+    expect([...first.keys()]).toEqual([2, 17, 30]);
+    for (const [id, v] of first) expect(Array.from(v)).toEqual(Array.from(store.get(id)!));
+    expect(asked).toEqual([[2, 17, 30, 99]]);
+    expect([cache.has(2), cache.has(17), cache.has(30)]).toEqual([true, false, true]);
+    const second = readThrough(cache, [30, 17, 2], read, () => true);
+    expect([...second.keys()]).toEqual([2, 17, 30]);
+    expect(asked[1]).toEqual([17]);
+    // What it returns is a copy: pushing entries out of the cache afterwards does not change it.
+    for (let id = 0; id < 12; id++) cache.set(100 + id, unit(rnd));
+    expect(Array.from(second.get(2)!)).toEqual(Array.from(store.get(2)!));
   });
 });
