@@ -197,7 +197,7 @@ const limits = z
       .int()
       .min(1)
       .default(256)
-      .describe('Most MiB of stored vectors a collection\'s filter vector cache holds (the exact scan of a selective filter); past it the longest-held entries make room'),
+      .describe('Most MiB of stored vectors a collection\'s vector cache holds (for the exact scan of a selective filter and the hybrid leg\'s feedback vectors); past it the longest-held entries make room'),
     jobLeaseSeconds: z.number().int().min(3).default(60).describe('How long a running job or the re-index lock stays held without a heartbeat (its holder renews it every third of this); after that it counts as abandoned and another process may take it over'),
     heapGrowthPercent: z
       .number()
