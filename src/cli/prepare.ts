@@ -51,6 +51,8 @@ export async function prepare(rt: Runtime, opts: { syncIndexes?: SyncIndexes; on
     (loading = loading.then(async () => {
       if (loaded.has(c)) return;
       loaded.add(c);
+      // The file the thread saved is read off this thread; the sync then only checks it.
+      await rt.indexes.preload?.(c);
       const r = rt.indexes.sync(c);
       await rt.indexes.settled(c);
       logger.info({ collection: c, vectors: r.size, rebuilt: r.rebuilt }, 'vector index loaded');

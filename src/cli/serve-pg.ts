@@ -115,6 +115,7 @@ export async function servePg(
   }
   // Collections the catch-up did not touch have their index loaded from the saved file now, not on a first query.
   for (const c of rt.repo.listCollections()) {
+    await rt.indexes.preload?.(c.name);
     rt.indexes.sync(c.name);
     await rt.indexes.settled(c.name);
   }

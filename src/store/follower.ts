@@ -172,6 +172,8 @@ export function createFollower(deps: FollowerDeps): Follower {
         behind.clear();
         if (far.length > 0 && deps.syncElsewhere) {
           await deps.syncElsewhere(far).catch((err: Error) => logger.warn({ err: err.message, collections: far }, 'the index thread failed; bringing the vector indexes in step on this thread'));
+          // The saved files read off this thread too; the sync below then finds them in memory.
+          for (const c of far) await indexes.preload?.(c);
         }
         for (const c of unsaved) indexes.sync(c);
         unsaved.clear();

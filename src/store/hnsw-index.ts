@@ -1,7 +1,7 @@
 import { existsSync, mkdirSync } from 'node:fs';
 import path from 'node:path';
 import { createIndexFiles, newIndex } from './hnsw-files.js';
-import { batchesOf, countOf, deletedOf, needsCompaction, release, tooFar, type Loaded } from './hnsw-state.js';
+import { batchesOf, compacted as compactedState, countOf, deletedOf, fromFile, needsCompaction, release, tooFar, type Loaded } from './hnsw-state.js';
 import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
 import type { HnswParams, SyncResult, VectorChange, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
 import { EXACT_SCAN_LIMIT, exactSearch, readThrough, toHits, VectorCache } from './vector-cache.js';
@@ -64,10 +64,7 @@ export function createVectorIndexes(deps: {
       if (r.reason) logger?.warn({ collection: c, reason: r.reason }, 'vector index file not usable; rebuilding');
       return null;
     }
-    r.index.setEf(params.efSearch);
-    const deleted = new Set(r.meta.deleted);
-    const live = new Set(r.index.getIdsList().filter((id) => !deleted.has(id)));
-    return { index: r.index, meta: r.meta, live, saved: true };
+    return fromFile(r.index, r.meta, params.efSearch);
   };
 
   const room = (state: Loaded, more: number): void => {
@@ -127,6 +124,13 @@ export function createVectorIndexes(deps: {
     filling.set(c, run);
   };
 
+  /** Puts a graph read from its file in place of `base` (freed). */
+  const install = (c: string, next: Loaded, base: Loaded | null): Loaded => {
+    loaded.set(c, next);
+    if (base) release(base.index);
+    return next;
+  };
+
   /** Reads the later file a writer saved off the thread; the index in memory answers until it is ready. */
   const readLater = (c: string, base: Loaded, disk: number): void => {
     const mine = epoch;
@@ -140,11 +144,7 @@ export function createVectorIndexes(deps: {
           return;
         }
         if (r.meta.generation <= base.meta.generation) return;
-        r.index.setEf(params.efSearch);
-        const deleted = new Set(r.meta.deleted);
-        const live = new Set(r.index.getIdsList().filter((id) => !deleted.has(id)));
-        loaded.set(c, { index: r.index, meta: r.meta, live, saved: true });
-        release(base.index);
+        const { live } = install(c, fromFile(r.index, r.meta, params.efSearch), base);
         const cache = caches.get(c);
         if (cache && cache.size > live.size * 1.25 + 64) cache.retain(live);
         logger?.info({ collection: c, generation: r.meta.generation, from: disk }, 'vector index loaded from the file a writer saved');
@@ -209,17 +209,6 @@ export function createVectorIndexes(deps: {
     return { state, added, removed, rebuilt, loaded: fromDisk };
   };
 
-  /** The same points in a new graph, without the tombstones. */
-  const compact = (state: Loaded): Loaded => {
-    const next = emptyState(state.live.size + 16);
-    for (const id of [...state.live].sort((a, b) => a - b)) {
-      next.index.addPoint(state.index.getPoint(id), id);
-      next.live.add(id);
-    }
-    next.meta = { ...next.meta, generation: state.meta.generation };
-    return next;
-  };
-
   const sync: VectorIndexes['sync'] = (c, opts = {}) => {
     const persist = opts.persist ?? true;
     const generation = opts.generation ?? repo.collectionState(c)?.generation ?? 0;
@@ -259,7 +248,7 @@ export function createVectorIndexes(deps: {
     if (needsCompaction(state)) {
       const before = deletedOf(state).size;
       const old = state;
-      state = compact(state);
+      state = compactedState(state, emptyState);
       release(old.index);
       loaded.set(c, state);
       save(c, state, generation);
@@ -378,6 +367,16 @@ export function createVectorIndexes(deps: {
     },
     cachedVectors(c) {
       return caches.get(c)?.size ?? 0;
+    },
+    async preload(c) {
+      const base = loaded.get(c) ?? null;
+      const disk = files.savedGeneration(c);
+      if (disk === null || (base && base.meta.generation >= disk)) return;
+      const mine = epoch;
+      const r = await files.loadAsync(c, { embedderId, dimensions }).catch((err: Error) => ({ index: null, reason: err.message }));
+      // Left to the next sync when something moved this collection's index meanwhile, or the file is not usable.
+      if (!r.index || mine !== epoch || (loaded.get(c) ?? null) !== base || (base && r.meta.generation <= base.meta.generation)) return;
+      install(c, fromFile(r.index, r.meta, params.efSearch), base);
     },
     vectors(c, ids) {
       const state = loaded.get(c);

@@ -19,6 +19,24 @@ export interface Loaded {
   saved: boolean;
 }
 
+/** The same points in a new graph (made by `empty`), without the tombstones, added in id order. */
+export function compacted(state: Loaded, empty: (capacity: number) => Loaded): Loaded {
+  const next = empty(state.live.size + 16);
+  for (const id of [...state.live].sort((a, b) => a - b)) {
+    next.index.addPoint(state.index.getPoint(id), id);
+    next.live.add(id);
+  }
+  next.meta = { ...next.meta, generation: state.meta.generation };
+  return next;
+}
+
+/** The state of a graph read from its saved file (which holds its tombstones in `meta.deleted`). */
+export function fromFile(index: Hnsw, meta: IndexMeta, efSearch: number): Loaded {
+  index.setEf(efSearch);
+  const deleted = new Set(meta.deleted);
+  return { index, meta, live: new Set(index.getIdsList().filter((id) => !deleted.has(id))), saved: true };
+}
+
 // Past a third of the graph in tombstones and missing points, patching costs about what a rebuild does.
 export function tooFar(state: Loaded, wanted: ReadonlyMap<number, string>): boolean {
   let stale = 0;

@@ -101,6 +101,12 @@ export interface VectorIndexes {
    * them (within `limits.vectorCacheMb`). Absent when not offered (callers read the store).
    */
   vectors?(collection: string, ids: readonly number[]): Map<number, Float32Array>;
+  /**
+   * Reads the collection's saved file off the thread (hnswlib's asynchronous read) when memory holds no index of
+   * it or an older one, so that the next `sync` finds it in memory instead of reading the file on the spot (2 s at
+   * 100,000 chunks of 384 dimensions, the request thread stalled meanwhile). Absent when not offered.
+   */
+  preload?(collection: string): Promise<void>;
   /** Forgets in-memory state, e.g. before closing. */
   close(): void;
 }
