@@ -1,7 +1,7 @@
 import { existsSync, mkdirSync } from 'node:fs';
 import path from 'node:path';
 import { createIndexFiles, newIndex } from './hnsw-files.js';
-import { batchesOf, compacted as compactedState, countOf, deletedOf, fromFile, needsCompaction, release, tooFar, type Loaded } from './hnsw-state.js';
+import { batchesOf, withoutTombstones, countOf, deletedOf, fromFile, needsCompaction, release, tooFar, type Loaded } from './hnsw-state.js';
 import type { ChunkStore, CollectionStore, VectorStore } from './types.js';
 import type { HnswParams, SyncResult, VectorChange, VectorIndexes, VectorIndexLogger } from './hnsw-types.js';
 import { EXACT_SCAN_LIMIT, exactSearch, readThrough, toHits, VectorCache } from './vector-cache.js';
@@ -26,6 +26,12 @@ export function createVectorIndexes(deps: {
   const loaded = new Map<string, Loaded>();
   const caches = new Map<string, VectorCache>();
   const read = (ids: number[]): ReadonlyMap<number, Float32Array> => repo.chunkVectors(embedderId, ids);
+  /** The collection's vector cache, made on first use with room for `capacity` (a filter's fill wants them all, the feedback a few). */
+  const cacheOf = (c: string, capacity: number): VectorCache => {
+    let cache = caches.get(c);
+    if (!cache) caches.set(c, (cache = new VectorCache(dimensions, capacity, cacheEntries)));
+    return cache;
+  };
   /** Work under way off the query path, per collection: reads of later files, fills of the vector cache. */
   const reading = new Map<string, Promise<void>>();
   const filling = new Map<string, Promise<void>>();
@@ -101,8 +107,7 @@ export function createVectorIndexes(deps: {
     // Once per index in memory (a read of a later file brings a new one): finding what is missing walks every point.
     if (!state || filling.has(c) || filled.has(state)) return;
     filled.add(state);
-    let cache = caches.get(c);
-    if (!cache) caches.set(c, (cache = new VectorCache(dimensions, state.live.size + 16, cacheEntries)));
+    const cache = cacheOf(c, state.live.size + 16);
     if (cache.size > state.live.size * 1.25 + 64) cache.retain(state.live);
     // A collection larger than the cache's bound is not filled ahead: filtered scans cache what they read.
     if (state.live.size > cache.maxEntries) return;
@@ -248,7 +253,7 @@ export function createVectorIndexes(deps: {
     if (needsCompaction(state)) {
       const before = deletedOf(state).size;
       const old = state;
-      state = compactedState(state, emptyState);
+      state = withoutTombstones(state, emptyState);
       release(old.index);
       loaded.set(c, state);
       save(c, state, generation);
@@ -380,9 +385,8 @@ export function createVectorIndexes(deps: {
     },
     vectors(c, ids) {
       const state = loaded.get(c);
-      let cache = caches.get(c);
-      if (!cache && state) caches.set(c, (cache = new VectorCache(dimensions, Math.min(state.live.size + 16, 1024), cacheEntries)));
-      return readThrough(cache ?? null, ids, read, (id) => state?.live.has(id) ?? false);
+      const cache = state ? cacheOf(c, Math.min(state.live.size + 16, 1024)) : null;
+      return readThrough(cache, ids, read, (id) => state?.live.has(id) ?? false);
     },
     close() {
       epoch++;

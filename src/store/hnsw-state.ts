@@ -20,7 +20,7 @@ export interface Loaded {
 }
 
 /** The same points in a new graph (made by `empty`), without the tombstones, added in id order. */
-export function compacted(state: Loaded, empty: (capacity: number) => Loaded): Loaded {
+export function withoutTombstones(state: Loaded, empty: (capacity: number) => Loaded): Loaded {
   const next = empty(state.live.size + 16);
   for (const id of [...state.live].sort((a, b) => a - b)) {
     next.index.addPoint(state.index.getPoint(id), id);
