@@ -167,12 +167,15 @@ function contract(backend: string, start: () => Promise<Target>): void {
     expect(job.state, JSON.stringify(job.error)).toBe('succeeded');
   };
 
-  /** Waits until a search for `query` shows what `holds` expects (a job's changes reach the node's indexes just after it ends). */
+  /** Waits until a search for `query` in every mode shows what `holds` expects (a job's changes reach the lexical and the vector index each just after it ends, not at one moment). */
   const searchUntil = (query: string, holds: (found: string[]) => boolean, what: string) =>
     waitFor(
       async () => {
-        const r = await search(query);
-        return r.status === 200 && holds(sources(r)) ? r : null;
+        for (const mode of ['lexical', 'dense', 'hybrid']) {
+          const r = await search(query, { mode });
+          if (r.status !== 200 || !holds(sources(r))) return null;
+        }
+        return true;
       },
       { what: `${backend}: ${what}`, timeoutMs: 30_000, intervalMs: 25, detail: () => t.output() },
     );
@@ -188,7 +191,7 @@ function contract(backend: string, start: () => Promise<Target>): void {
     expect((await call('GET', '/ready')).status).toBe(200);
     await upload('night-fares.md', FARES);
     await upload('lost-property.md', LOST);
-    await searchUntil('lost property desk', (s) => s.includes('lost-property.md'), 'both uploads to be searchable');
+    await searchUntil('night fare refund lost property desk', (s) => s.includes('lost-property.md') && s.includes('night-fares.md'), 'both uploads to be searchable');
     const collections = await call('GET', '/v1/collections');
     const def = (collections.body.collections as { name: string; documents: number; chunks: number }[]).find((c) => c.name === 'default');
     expect(def?.documents).toBe(2);
