@@ -145,7 +145,7 @@ describe('the document API', () => {
 });
 
 describe('a 200 MB upload over real HTTP', () => {
-  it('is refused with 413 and the process grows by less than 50 MB', async () => {
+  it('is refused with 413 and the process grows by less than half of one body', async () => {
     const address = await app.listen({ port: 0, host: '127.0.0.1' });
     const url = new URL('/v1/collections/uploads/documents', address);
     const before = process.memoryUsage().rss;
@@ -187,7 +187,10 @@ describe('a 200 MB upload over real HTTP', () => {
     const streamed = await client(false);
     expect(streamed).toEqual({ status: 413, code: 'SB_ERR_UPLOAD_TOO_LARGE' });
     const grown = process.memoryUsage().rss - before;
-    expect(grown).toBeLessThan(50 * 1024 * 1024);
+    // Each body is 200 MB: holding either whole would pass this bound. The process's own allocations meanwhile
+    // (the listener, two child processes' pipes, garbage not yet collected) reached 50.4 MB in one clean CI run,
+    // so a 50 MB bound failed without any body being held.
+    expect(grown).toBeLessThan(100 * 1024 * 1024);
     // Nothing half-written is left in the upload folder.
     const { readdirSync } = await import('node:fs');
     expect(readdirSync(path.join(dataDir, 'uploads', 'uploads')).filter((f) => f.startsWith('.incoming'))).toEqual([]);
